@@ -1,0 +1,11 @@
+"""obbiou: exact, fast overlap of rotated 2D boxes, convex quadrilaterals and upright 3D boxes.
+
+Public names only; the numba kernels live in ``obbiou._kernels`` and compile on first use
+(``obbiou warmup`` compiles them all once and caches them on disk).
+"""
+
+from obbiou.shapes import SHAPES
+
+__version__ = "0.1.0"
+
+__all__ = ["SHAPES", "__version__"]

@@ -1,0 +1,369 @@
+"""Box layouts ("shapes"): their names, inference from array dimensions, and validation.
+
+Every public function of obbiou takes boxes as an array whose last axis holds one box and a
+``shape`` argument naming the layout (or ``None`` to infer it):
+
+============  =====================================================  ==================
+shape         columns / array form                                   inferred from
+============  =====================================================  ==================
+``axis``      ``x_min, y_min, x_max, y_max``                         ``(N, 4)``
+``rotated``   ``cx, cy, width, height, angle``                       ``(N, 5)``
+``polygon``   ``(N, K, 2)`` vertices of a convex polygon, K >= 3      ``(N, K, 2)``
+``axis3``     ``x_min, y_min, z_min, x_max, y_max, z_max``           ``(N, 6)``
+``upright``   ``cx, cy, cz, length, width, height, yaw``             ``(N, 7)``
+============  =====================================================  ==================
+
+Angles (``angle``, ``yaw``) are in radians, counter-clockwise from +x towards +y. ``width``
+lies along the box's own x axis (the direction ``angle`` points to), ``height`` along its own
+y axis; for ``upright`` boxes ``length`` lies along the heading, ``width`` across it, and
+``cz`` is the centre of the box. A single box (1-D array, or one ``(K, 2)`` polygon with
+``shape="polygon"``) is accepted wherever a batch is.
+
+This module is the one place where input is read and checked; the numba kernels in
+``obbiou._kernels`` trust what it hands them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+__all__ = ["SHAPES", "COLUMNS", "Boxes", "read_boxes", "check", "infer_shape", "same_length"]
+
+SHAPES: tuple[str, ...] = ("axis", "rotated", "polygon", "axis3", "upright")
+
+#: Column names of the flat layouts (the polygon layout has vertices instead).
+COLUMNS: dict[str, tuple[str, ...]] = {
+    "axis": ("x_min", "y_min", "x_max", "y_max"),
+    "rotated": ("cx", "cy", "width", "height", "angle"),
+    "axis3": ("x_min", "y_min", "z_min", "x_max", "y_max", "z_max"),
+    "upright": ("cx", "cy", "cz", "length", "width", "height", "yaw"),
+}
+_BY_WIDTH = {len(cols): name for name, cols in COLUMNS.items()}
+
+#: Which columns are sizes (must be >= 0), per flat layout.
+_SIZE_COLUMNS = {
+    "rotated": (2, 3),
+    "upright": (3, 4, 5),
+}
+#: (min column, max column) pairs that must satisfy max >= min.
+_EXTENT_COLUMNS = {
+    "axis": ((0, 2), (1, 3)),
+    "axis3": ((0, 3), (1, 4), (2, 5)),
+}
+
+_LAYOUT_HELP = (
+    "expected (N, 4) axis, (N, 5) rotated, (N, K, 2) polygon, (N, 6) axis3 or (N, 7) upright"
+)
+
+
+@dataclass(frozen=True)
+class Boxes:
+    """Validated boxes: a float64 C-contiguous array, its layout and whether one box came in.
+
+    ``data`` always has the batch axis: ``(N, C)`` for flat layouts, ``(N, K, 2)`` for
+    polygons, so kernels see one form; ``single`` tells the caller to drop that axis from
+    the result.
+    """
+
+    data: np.ndarray
+    shape: str
+    single: bool
+
+    def __len__(self) -> int:
+        return int(self.data.shape[0])
+
+    @property
+    def is_3d(self) -> bool:
+        return self.shape in ("axis3", "upright")
+
+
+def _as_float_array(boxes: Any, name: str) -> np.ndarray:
+    try:
+        arr = np.asarray(boxes)
+    except Exception as exc:  # e.g. ragged nested lists
+        raise ValueError(f"{name}: cannot read as an array of numbers ({exc})") from None
+    if arr.dtype == object:
+        try:
+            arr = arr.astype(np.float64)
+        except (TypeError, ValueError):
+            raise ValueError(
+                f"{name}: cannot read as an array of numbers (ragged rows or non-numeric values)"
+            ) from None
+    if arr.dtype.kind == "c":
+        raise ValueError(f"{name}: complex numbers are not box coordinates")
+    if arr.dtype.kind not in "fiub":
+        raise ValueError(f"{name}: expected numbers, got dtype {arr.dtype}")
+    return np.ascontiguousarray(arr, dtype=np.float64)
+
+
+def infer_shape(dims: tuple[int, ...], shape: str | None = None, *, name: str = "boxes") -> str:
+    """Name the layout of an array of dimensions ``dims``, or check the one given.
+
+    Parameters
+    ----------
+    dims : tuple of int
+        The array's dimensions (``arr.shape``).
+    shape : str, optional
+        A layout name; when given it is checked against ``dims``.
+    name : str
+        The argument name used in error messages.
+
+    Returns
+    -------
+    str
+        One of :data:`SHAPES`.
+
+    Raises
+    ------
+    ValueError
+        If ``dims`` match no layout, or do not fit the layout given.
+
+    Examples
+    --------
+    >>> infer_shape((10, 5))
+    'rotated'
+    >>> infer_shape((7,))
+    'upright'
+    >>> infer_shape((3, 4, 2))
+    'polygon'
+    >>> infer_shape((4, 2), "polygon")
+    'polygon'
+    >>> infer_shape((3, 4), "rotated")
+    Traceback (most recent call last):
+    ...
+    ValueError: boxes: shape='rotated' needs (N, 5) or (5,) boxes, got an array of shape (3, 4)
+    """
+    if shape is not None:
+        if shape not in SHAPES:
+            raise ValueError(
+                f"{name}: unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}"
+            )
+        if shape == "polygon":
+            if len(dims) not in (2, 3) or dims[-1] != 2:
+                raise ValueError(
+                    f"{name}: shape='polygon' needs (N, K, 2) or (K, 2) vertices, "
+                    f"got an array of shape {tuple(dims)}"
+                )
+            if dims[-2] < 3 and not (len(dims) == 3 and dims[0] == 0):
+                raise ValueError(f"{name}: a polygon needs at least 3 vertices, got K={dims[-2]}")
+            return shape
+        width = len(COLUMNS[shape])
+        if len(dims) not in (1, 2) or dims[-1] != width:
+            raise ValueError(
+                f"{name}: shape={shape!r} needs (N, {width}) or ({width},) boxes, "
+                f"got an array of shape {tuple(dims)}"
+            )
+        return shape
+    if len(dims) == 3 and dims[-1] == 2:
+        return infer_shape(dims, "polygon", name=name)
+    if len(dims) in (1, 2) and dims[-1] in _BY_WIDTH:
+        return _BY_WIDTH[dims[-1]]
+    hint = ""
+    if len(dims) == 2 and dims[-1] == 2:
+        hint = "; for a single polygon pass shape='polygon'"
+    raise ValueError(
+        f"{name}: array of shape {tuple(dims)} matches no box layout ({_LAYOUT_HELP}{hint})"
+    )
+
+
+def read_boxes(boxes: Any, shape: str | None = None, *, name: str = "boxes") -> Boxes:
+    """Read and validate boxes; the common entry of every public function.
+
+    Parameters
+    ----------
+    boxes : array_like
+        Boxes in one of the layouts of :data:`SHAPES` (lists, numpy arrays of any real
+        dtype, or objects with ``__array__``).
+    shape : str, optional
+        The layout name; inferred from the trailing dimensions when ``None``.
+    name : str
+        The argument name used in error messages.
+
+    Returns
+    -------
+    Boxes
+        float64 C-contiguous data with the batch axis, the layout name and ``single``.
+
+    Raises
+    ------
+    ValueError
+        For any input that :func:`check` rejects.
+
+    Examples
+    --------
+    >>> b = read_boxes([0, 0, 2, 1, 0.5])
+    >>> b.shape, b.single, b.data.shape
+    ('rotated', True, (1, 5))
+    """
+    arr = _as_float_array(boxes, name)
+    if arr.ndim == 1 and arr.size == 0 and shape is None:
+        raise ValueError(
+            f"{name}: an empty 1-D array has no layout; pass shape= or an (0, C) array"
+        )
+    layout = infer_shape(arr.shape, shape, name=name)
+    single = arr.ndim == (2 if layout == "polygon" else 1)
+    if single:
+        arr = arr[np.newaxis]
+    if arr.size:
+        _validate(arr, layout, name)
+    return Boxes(arr, layout, single)
+
+
+def check(boxes: Any, shape: str | None = None, *, name: str = "boxes") -> np.ndarray:
+    """Validate boxes and return them as a float64 array (batch axis kept as given).
+
+    The same validation runs inside every public function. It is vectorised and cheap.
+
+    Parameters
+    ----------
+    boxes : array_like
+        Boxes in one of the layouts of :data:`SHAPES`.
+    shape : str, optional
+        The layout name; inferred from the trailing dimensions when ``None``.
+    name : str
+        The argument name used in error messages.
+
+    Returns
+    -------
+    numpy.ndarray
+        The boxes as float64, with the same dimensions as the input.
+
+    Raises
+    ------
+    ValueError
+        Naming the argument, the first offending row and the reason: a NaN or infinite
+        value, a negative size, an inverted extent (``x_max < x_min``), a polygon with fewer
+        than 3 vertices or one that is not convex or crosses itself, or dimensions that
+        match no layout.
+
+    Examples
+    --------
+    >>> check([[0, 0, 4, 2, 0.0], [1, 1, -3.0, 2, 0.0]], name="a")
+    Traceback (most recent call last):
+    ...
+    ValueError: a[1]: negative width -3.0
+    >>> check([[0, 0, 1, 1], [2, 0, 1, 1]], name="gt")
+    Traceback (most recent call last):
+    ...
+    ValueError: gt[1]: x_max 1.0 < x_min 2.0
+    >>> check([[0, 0, float("nan"), 1, 0]])
+    Traceback (most recent call last):
+    ...
+    ValueError: boxes[0]: width is NaN
+    >>> check([[[0, 0], [2, 0], [1, 1], [2, 2], [0, 2]]])  # a notch: not convex
+    Traceback (most recent call last):
+    ...
+    ValueError: boxes[0]: polygon is not convex (it turns the other way at vertex 2)
+    >>> check([[0, 0, 1, 1]]).dtype
+    dtype('float64')
+    """
+    b = read_boxes(boxes, shape, name=name)
+    return b.data[0] if b.single else b.data
+
+
+def same_length(a: Boxes, b: Boxes, *, names: tuple[str, str] = ("a", "b")) -> None:
+    """Raise unless ``a`` and ``b`` have as many rows (for ``elementwise=True``).
+
+    Examples
+    --------
+    >>> same_length(read_boxes([[0, 0, 1, 1]]), read_boxes([[0, 0, 1, 1]] * 2))
+    Traceback (most recent call last):
+    ...
+    ValueError: elementwise=True needs as many rows in a as in b: a has 1, b has 2
+    """
+    if len(a) != len(b):
+        raise ValueError(
+            f"elementwise=True needs as many rows in {names[0]} as in {names[1]}: "
+            f"{names[0]} has {len(a)}, {names[1]} has {len(b)}"
+        )
+
+
+def _first_bad(mask: np.ndarray) -> int:
+    """Index of the first row where ``mask`` (rows × anything) holds a True."""
+    rows = mask.reshape(mask.shape[0], -1).any(axis=1)
+    return int(np.argmax(rows))
+
+
+def _column_name(layout: str, col: int) -> str:
+    if layout == "polygon":
+        return ("x", "y")[col]
+    return COLUMNS[layout][col]
+
+
+def _validate(arr: np.ndarray, layout: str, name: str) -> None:
+    finite = np.isfinite(arr)
+    if not finite.all():
+        row = _first_bad(~finite)
+        flat = arr[row].reshape(-1, arr.shape[-1])
+        vertex, col = (int(v) for v in np.argwhere(~np.isfinite(flat))[0])
+        value = flat[vertex, col]
+        what = "NaN" if np.isnan(value) else ("+inf" if value > 0 else "-inf")
+        where = _column_name(layout, col)
+        if layout == "polygon":
+            where = f"vertex {vertex} {where}"
+        raise ValueError(f"{name}[{row}]: {where} is {what}")
+    if layout in _SIZE_COLUMNS:
+        cols = list(_SIZE_COLUMNS[layout])
+        neg = arr[:, cols] < 0
+        if neg.any():
+            row = _first_bad(neg)
+            col = cols[int(np.argmax(neg[row]))]
+            raise ValueError(
+                f"{name}[{row}]: negative {_column_name(layout, col)} {float(arr[row, col])!r}"
+            )
+    elif layout in _EXTENT_COLUMNS:
+        for lo, hi in _EXTENT_COLUMNS[layout]:
+            bad = arr[:, hi] < arr[:, lo]
+            if bad.any():
+                row = _first_bad(bad)
+                raise ValueError(
+                    f"{name}[{row}]: {COLUMNS[layout][hi]} {float(arr[row, hi])!r} < "
+                    f"{COLUMNS[layout][lo]} {float(arr[row, lo])!r}"
+                )
+    elif layout == "polygon":
+        _validate_polygons(arr, name)
+
+
+def _validate_polygons(poly: np.ndarray, name: str) -> None:
+    """Reject polygons that are not convex or wind around more than once.
+
+    Zero-length edges and collinear vertices are allowed (a degenerate polygon has zero area
+    and overlaps nothing). Small wrong-way turns within rounding of the coordinates are
+    tolerated so that corners computed at map-metre offsets (~1e6) pass.
+    """
+    # Work relative to each polygon's first vertex: exact enough, and tolerances then scale
+    # with the polygon's own size rather than with its distance from the origin.
+    origin = poly[:, :1, :]
+    local = poly - origin
+    edges = np.roll(local, -1, axis=1) - local  # e_k = v_{k+1} - v_k
+    nxt = np.roll(edges, -1, axis=1)  # e_{k+1}
+    cross = edges[..., 0] * nxt[..., 1] - edges[..., 1] * nxt[..., 0]
+    dot = (edges * nxt).sum(axis=-1)
+    len_e = np.hypot(edges[..., 0], edges[..., 1])
+    len_n = np.hypot(nxt[..., 0], nxt[..., 1])
+    scale = np.abs(poly).max(axis=(1, 2))[:, None] + np.abs(local).max(axis=(1, 2))[:, None]
+    eps = np.finfo(np.float64).eps
+    tol = 1e-9 * len_e * len_n + 16 * eps * scale * (len_e + len_n)
+    # Orientation of each polygon from its signed area; degenerate ones (area 0) have no
+    # turn that counts as wrong.
+    x, y = local[..., 0], local[..., 1]
+    area2 = (x * np.roll(y, -1, axis=1) - np.roll(x, -1, axis=1) * y).sum(axis=1)
+    sign = np.sign(area2)[:, None]
+    wrong = (cross * sign < -tol) & (sign != 0)
+    if wrong.any():
+        row = _first_bad(wrong)
+        vertex = (int(np.argmax(wrong[row])) + 1) % poly.shape[1]
+        raise ValueError(
+            f"{name}[{row}]: polygon is not convex (it turns the other way at vertex {vertex})"
+        )
+    # A convex-turning polygon that is simple turns through exactly 2*pi in total; a star
+    # (pentagram) turns through 4*pi and crosses itself.
+    turning = np.abs(np.arctan2(cross, dot).sum(axis=1))
+    crossing = turning > 3 * np.pi
+    if crossing.any():
+        row = _first_bad(crossing)
+        winds = int(round(turning[row] / (2 * np.pi)))
+        raise ValueError(f"{name}[{row}]: polygon crosses itself (it winds around {winds} times)")
