@@ -66,10 +66,10 @@ def corners(boxes: Any, *, shape: str | None = None) -> np.ndarray:
            [ 2.,  1.],
            [-2.,  1.]])
     >>> corners([1, 1, 2, 2, np.pi / 2]).round(12) + 0.0  # a quarter turn; + 0.0 drops -0.
-    array([[ 2.,  0.],
-           [ 2.,  2.],
-           [ 0.,  2.],
-           [ 0.,  0.]])
+    array([[2., 0.],
+           [2., 2.],
+           [0., 2.],
+           [0., 0.]])
     >>> corners(np.zeros((0, 7))).shape
     (0, 8, 3)
     """
