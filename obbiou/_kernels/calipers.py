@@ -127,38 +127,68 @@ def _calipers(hx, hy, h, out):
             out[4] = np.arctan2(uy, ux)
 
 
+@njit(cache=True)
+def _sort_by_x_then_y(x, y, order):
+    """Fill ``order`` with the indices of the points sorted by (x, y): insertion sort for the
+    small sets that dominate (quadrilaterals), stable merge sorts for large ones."""
+    k = x.shape[0]
+    if k > 32:
+        by_y = np.argsort(y, kind="mergesort")
+        order[:] = by_y[np.argsort(x[by_y], kind="mergesort")]
+        return
+    for p in range(k):
+        order[p] = p
+    for p in range(1, k):
+        q = order[p]
+        t = p - 1
+        while t >= 0 and (x[order[t]] > x[q] or (x[order[t]] == x[q] and y[order[t]] > y[q])):
+            order[t + 1] = order[t]
+            t -= 1
+        order[t + 1] = q
+
+
+@njit(cache=True)
+def _fit_one(points, s, x, y, order, hx, hy, box, out):
+    kk = points.shape[1]
+    x0, x1, y0, y1 = np.inf, -np.inf, np.inf, -np.inf
+    for p in range(kk):
+        px, py = points[s, p, 0], points[s, p, 1]
+        x0 = min(x0, px)
+        x1 = max(x1, px)
+        y0 = min(y0, py)
+        y1 = max(y1, py)
+    cx = 0.5 * (x0 + x1)
+    cy = 0.5 * (y0 + y1)
+    for p in range(kk):
+        x[p] = points[s, p, 0] - cx
+        y[p] = points[s, p, 1] - cy
+    _sort_by_x_then_y(x, y, order)
+    h = _hull(x, y, order, hx, hy)
+    _calipers(hx, hy, h, box)
+    out[s, 0] = box[0] + cx
+    out[s, 1] = box[1] + cy
+    out[s, 2] = box[2]
+    out[s, 3] = box[3]
+    out[s, 4] = box[4]
+
+
 @njit(cache=True, parallel=True)
 def fit_rectangles(points, out):
     """``points (N, K, 2)`` -> ``out (N, 5)`` rotated boxes (not yet canonical), K >= 1.
 
     Each set works relative to the centre of its own extent, so map-metre offsets lose
-    nothing in the hull and projection arithmetic.
+    nothing in the hull and projection arithmetic. Sets are processed in blocks, each with
+    its own scratch buffers (no allocation per set).
     """
     n, kk = points.shape[0], points.shape[1]
-    for s in prange(n):
+    block = 256
+    blocks = (n + block - 1) // block
+    for b in prange(blocks):
         x = np.empty(kk)
         y = np.empty(kk)
-        x0, x1, y0, y1 = np.inf, -np.inf, np.inf, -np.inf
-        for p in range(kk):
-            px, py = points[s, p, 0], points[s, p, 1]
-            x0 = min(x0, px)
-            x1 = max(x1, px)
-            y0 = min(y0, py)
-            y1 = max(y1, py)
-        cx = 0.5 * (x0 + x1)
-        cy = 0.5 * (y0 + y1)
-        for p in range(kk):
-            x[p] = points[s, p, 0] - cx
-            y[p] = points[s, p, 1] - cy
-        by_y = np.argsort(y, kind="mergesort")
-        order = by_y[np.argsort(x[by_y], kind="mergesort")]  # by x, then y
+        order = np.empty(kk, dtype=np.int64)
         hx = np.empty(2 * kk + 1)
         hy = np.empty(2 * kk + 1)
-        h = _hull(x, y, order, hx, hy)
         box = np.empty(5)
-        _calipers(hx, hy, h, box)
-        out[s, 0] = box[0] + cx
-        out[s, 1] = box[1] + cy
-        out[s, 2] = box[2]
-        out[s, 3] = box[3]
-        out[s, 4] = box[4]
+        for s in range(b * block, min(n, (b + 1) * block)):
+            _fit_one(points, s, x, y, order, hx, hy, box, out)
