@@ -5,8 +5,9 @@ Public names only; the numba kernels live in ``obbiou._kernels`` and compile on 
 """
 
 from obbiou import boxes
+from obbiou.measures import coverage, diou, giou, intersection, iou
 from obbiou.shapes import SHAPES
 
 __version__ = "0.1.0"
 
-__all__ = ["SHAPES", "__version__", "boxes"]
+__all__ = ["SHAPES", "__version__", "boxes", "iou", "giou", "diou", "intersection", "coverage"]
