@@ -164,7 +164,7 @@ def _label_codes(labels: Any, n: int) -> np.ndarray:
         bad = ~np.isfinite(arr)
         if bad.any():
             row = int(np.argmax(bad))
-            raise ValueError(f"labels[{row}]: {arr[row]!r} is not a valid label")
+            raise ValueError(f"labels[{row}]: {float(arr[row])!r} is not a valid label")
     if arr.dtype == object:
         for row, v in enumerate(arr):
             if v is None or (isinstance(v, float) and not np.isfinite(v)):
@@ -299,7 +299,7 @@ def _read_scores(scores: Any, n: int, single: bool) -> np.ndarray:
     bad = ~np.isfinite(s)
     if bad.any():
         row = int(np.argmax(bad))
-        raise ValueError(f"scores[{row}]: score is {s[row]!r}, expected a finite number")
+        raise ValueError(f"scores[{row}]: score is {float(s[row])!r}, expected a finite number")
     return np.ascontiguousarray(s)
 
 
@@ -429,7 +429,7 @@ def suppress(
     if decay is not None and (s < 0).any():
         row = int(np.argmax(s < 0))
         raise ValueError(
-            f"scores[{row}]: negative score {s[row]!r}; soft suppression decays scores "
+            f"scores[{row}]: negative score {float(s[row])!r}; soft suppression decays scores "
             "towards 0 and needs scores >= 0"
         )
 
