@@ -118,40 +118,14 @@ def _base_cell(ext: np.ndarray) -> float:
     return max(float(np.median(d)), top * 2.0**-40, 1e-300)
 
 
-def _pair_iou(a: Boxes, b: Boxes, first: np.ndarray, second: np.ndarray) -> np.ndarray:
-    try:
-        from obbiou.measures import pair_values
-    except ImportError:  # TEMPORARY until obbiou.measures lands on main: remove then
-        return _shapely_pair_iou(a, b, first, second)
+def _pair_iou(a: Boxes, b: Boxes | None, first: np.ndarray, second: np.ndarray) -> np.ndarray:
+    """Exact IoU of the listed pairs (b=None: pairs of a with itself, prepared once)."""
+    from obbiou.measures import pair_values, prepare
+
+    if b is None:
+        pa = prepare(a)
+        return pair_values(pa, pa, first, second, measure="iou")
     return pair_values(a, b, first, second, measure="iou")
-
-
-def _shapely_pair_iou(a, b, first, second):  # TEMPORARY fallback, see _pair_iou
-    import shapely
-
-    from obbiou.boxes import corners
-
-    def geoms(x: Boxes):
-        c = corners(x.data, shape=x.shape)
-        if x.is_3d:
-            return shapely.polygons(c[:, :4, :2]), c[:, 0, 2], c[:, 4, 2]
-        return shapely.polygons(c), None, None
-
-    ga, za0, za1 = geoms(a)
-    gb, zb0, zb1 = geoms(b)
-    pa, pb = ga[first], gb[second]
-    inter = shapely.area(shapely.intersection(pa, pb))
-    sa, sb = shapely.area(pa), shapely.area(pb)
-    if a.is_3d:
-        dz = np.clip(
-            np.minimum(za1[first], zb1[second]) - np.maximum(za0[first], zb0[second]), 0, None
-        )
-        inter = inter * dz
-        sa = sa * (za1[first] - za0[first])
-        sb = sb * (zb1[second] - zb0[second])
-    union = sa + sb - inter
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(union > 0, np.clip(inter / union, 0, 1), 0.0)
 
 
 def _label_codes(labels: Any, n: int) -> np.ndarray:
@@ -194,7 +168,7 @@ def _pairs(
     )
     if first.shape[0] == 0:
         return first, second, np.zeros(0)
-    iou = _pair_iou(a, other, first, second)
+    iou = _pair_iou(a, b, first, second)
     return sweep.keep_above(first, second, np.ascontiguousarray(iou, np.float64), threshold)
 
 

@@ -12,6 +12,7 @@ import shapely
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+import obbiou
 from obbiou.boxes import corners
 from obbiou.scene import Pairs, overlapping_pairs
 
@@ -92,6 +93,19 @@ def shapely_iou_matrix(a: np.ndarray, b: np.ndarray, layout: str) -> np.ndarray:
         return np.where(union > 0, inter / union, 0.0)
 
 
+def check_against_own_matrix(pairs: Pairs, a, b, layout: str, min_iou: float, self_pairs: bool):
+    """The index loses nothing: exactly the entries of obbiou.iou's dense matrix above the
+    threshold, bit for bit (same per-pair kernel)."""
+    dense = obbiou.iou(a, b, shape=layout) if len(a) and len(b) else np.zeros((len(a), len(b)))
+    want = dense > min_iou
+    if self_pairs:
+        want &= np.triu(np.ones(dense.shape, bool), 1)
+    found = np.zeros(dense.shape, bool)
+    found[pairs.first, pairs.second] = True
+    assert np.array_equal(found, want)
+    np.testing.assert_array_equal(pairs.iou, dense[pairs.first, pairs.second])
+
+
 def check_against_dense(pairs: Pairs, dense: np.ndarray, min_iou: float, self_pairs: bool):
     n, m = dense.shape
     assert pairs.first.dtype == np.int64 and pairs.second.dtype == np.int64
@@ -125,6 +139,7 @@ def test_self_pairs_equal_thresholded_dense_matrix(seed, family, layout, n, min_
     a = make_scene(np.random.default_rng(seed), family, layout, n)
     pairs = overlapping_pairs(a, shape=layout, min_iou=min_iou)
     check_against_dense(pairs, shapely_iou_matrix(a, a, layout), min_iou, self_pairs=True)
+    check_against_own_matrix(pairs, a, a, layout, min_iou, self_pairs=True)
 
 
 @settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -142,6 +157,7 @@ def test_pairs_between_sets_equal_thresholded_dense_matrix(seed, family, layout,
     a, b = both[:n], both[n:]
     pairs = overlapping_pairs(a, b, shape=layout, min_iou=min_iou)
     check_against_dense(pairs, shapely_iou_matrix(a, b, layout), min_iou, self_pairs=False)
+    check_against_own_matrix(pairs, a, b, layout, min_iou, self_pairs=False)
 
 
 def test_touching_squares_have_no_pairs():
