@@ -119,7 +119,8 @@ def build_grid(ext, base):
     ``base`` is the level-0 cell size (> 0). Returns ``levels`` (L, 6): origin x, origin y,
     cell size, cells along x, cells along y (0 for an empty level), index of the level's
     first cell; ``bounds`` (L, 4): extent of the level's boxes; ``cell_ptr``, ``items``: the
-    boxes of each cell in CSR form.
+    boxes of each cell in CSR form; ``item_ext``: their x-y extents in the same order (read
+    in sequence by the queries instead of jumping around ``ext``).
     """
     m = ext.shape[0]
     level = np.zeros(m, np.int64)
@@ -187,6 +188,7 @@ def build_grid(ext, base):
         cell_ptr[c + 1] += cell_ptr[c]
     fill = cell_ptr[:-1].copy()
     items = np.empty(cell_ptr[ncells], np.int64)
+    item_ext = np.empty((cell_ptr[ncells], 4))
     for j in range(m):
         lv = level[j]
         gx, gy, s = levels[lv, 0], levels[lv, 1], levels[lv, 2]
@@ -197,8 +199,10 @@ def build_grid(ext, base):
             for cx in range(cx0, cx1 + 1):
                 c = c0 + cy * nx + cx
                 items[fill[c]] = j
+                for q in range(4):
+                    item_ext[fill[c], q] = ext[j, q]
                 fill[c] += 1
-    return levels, bounds, cell_ptr, items
+    return levels, bounds, cell_ptr, items, item_ext
 
 
 @njit(cache=True)
@@ -212,6 +216,7 @@ def _query(
     bounds,
     cell_ptr,
     items,
+    item_ext,
     same,
     labels_a,
     labels_b,
@@ -243,17 +248,18 @@ def _query(
             for cx in range(cx0, cx1 + 1):
                 c = c0 + cy * nx + cx
                 for k in range(cell_ptr[c], cell_ptr[c + 1]):
+                    bx0, by0 = item_ext[k, 0], item_ext[k, 1]
+                    if bx0 >= x1 or item_ext[k, 2] <= x0 or by0 >= y1 or item_ext[k, 3] <= y0:
+                        continue
                     j = items[k]
                     if same and j <= i:
                         continue
-                    if eb[j, 0] >= x1 or eb[j, 2] <= x0 or eb[j, 1] >= y1 or eb[j, 3] <= y0:
-                        continue
-                    if eb[j, 4] >= z1 or eb[j, 5] <= z0:
-                        continue
                     # report the pair only in the cell of the reference point
-                    if _cell(max(x0, eb[j, 0]), gx, s, nx) != cx:
+                    if _cell(max(x0, bx0), gx, s, nx) != cx:
                         continue
-                    if _cell(max(y0, eb[j, 1]), gy, s, ny) != cy:
+                    if _cell(max(y0, by0), gy, s, ny) != cy:
+                        continue
+                    if has_z and (eb[j, 4] >= z1 or eb[j, 5] <= z0):
                         continue
                     if use_labels and labels_a[i] != labels_b[j]:
                         continue
@@ -275,6 +281,30 @@ def _query(
 
 
 @njit(cache=True)
+def _spatial_order(ea, levels):
+    """Rows of ``ea`` in the order of the level-0 cell of their lower-left corner (counting
+    sort): neighbouring queries then read the same cells, which stay in cache."""
+    n = ea.shape[0]
+    lv = 0
+    while lv < levels.shape[0] - 1 and levels[lv, 3] == 0:
+        lv += 1
+    gx, gy, s = levels[lv, 0], levels[lv, 1], levels[lv, 2]
+    nx, ny = int(levels[lv, 3]), int(levels[lv, 4])
+    key = np.empty(n, np.int64)
+    ptr = np.zeros(nx * ny + 1, np.int64)
+    for i in range(n):
+        key[i] = _cell(ea[i, 1], gy, s, ny) * nx + _cell(ea[i, 0], gx, s, nx)
+        ptr[key[i] + 1] += 1
+    for c in range(nx * ny):
+        ptr[c + 1] += ptr[c]
+    rows = np.empty(n, np.int64)
+    for i in range(n):
+        rows[ptr[key[i]]] = i
+        ptr[key[i]] += 1
+    return rows
+
+
+@njit(cache=True)
 def _sort_small(a):
     for p in range(1, a.shape[0]):
         v = a[p]
@@ -293,10 +323,12 @@ def candidates(ea, sa, eb, sb, base, same, labels_a, labels_b, min_iou, has_z):
     arrays for no labels.
     """
     n = ea.shape[0]
-    levels, bounds, cell_ptr, items = build_grid(eb, base)
+    levels, bounds, cell_ptr, items, item_ext = build_grid(eb, base)
+    rows = _spatial_order(ea, levels)
     counts = np.zeros(n + 1, np.int64)
     empty = np.empty(0, np.int64)
-    for i in prange(n):
+    for r in prange(n):
+        i = rows[r]
         counts[i + 1] = _query(
             i,
             ea,
@@ -307,6 +339,7 @@ def candidates(ea, sa, eb, sb, base, same, labels_a, labels_b, min_iou, has_z):
             bounds,
             cell_ptr,
             items,
+            item_ext,
             same,
             labels_a,
             labels_b,
@@ -319,7 +352,8 @@ def candidates(ea, sa, eb, sb, base, same, labels_a, labels_b, min_iou, has_z):
     total = counts[n]
     first = np.empty(total, np.int64)
     second = np.empty(total, np.int64)
-    for i in prange(n):
+    for r in prange(n):
+        i = rows[r]
         lo, hi = counts[i], counts[i + 1]
         if hi == lo:
             continue
@@ -334,6 +368,7 @@ def candidates(ea, sa, eb, sb, base, same, labels_a, labels_b, min_iou, has_z):
             bounds,
             cell_ptr,
             items,
+            item_ext,
             same,
             labels_a,
             labels_b,
