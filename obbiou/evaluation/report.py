@@ -573,6 +573,8 @@ def reduce_records(
         ``None``: all thresholds in the records.
     ap, recall_points, size_buckets, range_buckets, localisation_floor
         As for :func:`evaluate`.
+    options : dict, optional
+        Options of the map step to record in the protocol (``max_detections``, ``degrees``).
 
     Returns
     -------
@@ -583,7 +585,7 @@ def reduce_records(
     rec = records.canonical()
     _check_whole_frames(rec)
     spec = parse_thresholds(list(rec.thresholds) if iou is None else iou)
-    opts = dict(options or {})
+    opts = {"max_detections": None, "degrees": False, **(options or {})}
     sizes = _parse_buckets(size_buckets, "size_buckets")
     ranges = _parse_buckets(range_buckets, "range_buckets")
     if ranges and rec.shape not in ("upright", "axis3"):
