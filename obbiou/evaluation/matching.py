@@ -271,45 +271,10 @@ def _rank_in_group(codes: np.ndarray) -> np.ndarray:
 
 
 def _pair_iou(det: np.ndarray, truth: np.ndarray, shape: str, first, second) -> np.ndarray:
-    try:
-        from obbiou.measures import pair_values
-    except ImportError:  # TEMPORARY until obbiou.measures lands on main
-        return _shapely_pair_iou(det, truth, shape, first, second)
+    from obbiou.measures import pair_values
     from obbiou.shapes import Boxes
 
     return pair_values(Boxes(det, shape, False), Boxes(truth, shape, False), first, second)
-
-
-def _shapely_pair_iou(det, truth, shape, first, second):  # TEMPORARY fallback, to be removed
-    import shapely
-
-    from obbiou.boxes import corners
-
-    def polys(b):
-        if shape in ("axis3", "upright"):
-            c = corners(b, shape=shape)[:, :4, :2]
-            z = corners(b, shape=shape)[:, [0, 4], 2]
-        else:
-            c = corners(b, shape=shape)
-            z = None
-        return shapely.polygons(c), z
-
-    pd_, zd = polys(det)
-    pt, zt = polys(truth)
-    a, b = pd_[first], pt[second]
-    inter = shapely.area(shapely.intersection(a, b))
-    sa, sb = shapely.area(a), shapely.area(b)
-    if zd is not None:
-        dz = np.clip(
-            np.minimum(zd[first, 1], zt[second, 1]) - np.maximum(zd[first, 0], zt[second, 0]),
-            0,
-            None,
-        )
-        inter = inter * dz
-        sa = sa * (zd[first, 1] - zd[first, 0])
-        sb = sb * (zt[second, 1] - zt[second, 0])
-    union = sa + sb - inter
-    return np.where(union > 0, np.clip(inter / np.where(union > 0, union, 1), 0, 1), 0.0)
 
 
 def match_frames(
