@@ -172,16 +172,19 @@ def greedy_match(
 
 
 @njit(cache=True, parallel=True)
-def bootstrap_ap(weights, det_frame, det_tp, det_fp, tp_total, fp_total, npos, kind, npoints):
+def bootstrap_ap(
+    weights, det_frame, det_tp, det_fp, tp_lo, tp_hi, tp_total, fp_total, npos, kind, npoints
+):
     """AP of one label at every threshold for every row of frame ``weights``.
 
     ``weights`` (B, F) int: how often each frame is drawn; ``det_frame`` (n,) the frame of
-    each detection in global ranking order; ``det_tp`` / ``det_fp`` (n, K) bool;
-    ``tp_total`` / ``fp_total`` (B, K) weighted totals over all n rows; ``npos`` (B,) the
-    weighted number of non-ignored truths. A frame drawn w times contributes w copies of each
-    of its detections, adjacent in the ranking. ``kind``: 0 all-points, 1 step sum, 2 the
-    envelope sampled at ``npoints`` recall levels q / (npoints - 1). Rows with ``npos`` 0
-    give NaN (undefined; the caller excludes them).
+    each detection in global ranking order; ``det_tp`` and ``det_fp`` (n, K) float64 0/1;
+    ``tp_lo`` / ``tp_hi`` (n,) the first and one past the last threshold column where the
+    row is a TP (equal: none); ``tp_total`` / ``fp_total`` (B, K) weighted totals over all n
+    rows; ``npos`` (B,) the weighted number of non-ignored truths. A frame drawn w times
+    contributes w copies of each of its detections, adjacent in the ranking. ``kind``: 0
+    all-points, 1 step sum, 2 the envelope sampled at ``npoints`` recall levels
+    q / (npoints - 1). Rows with ``npos`` 0 give NaN (undefined; the caller excludes them).
 
     One backward pass per row: walking from the lowest score up, the running maximum of
     precision is the monotone envelope at each recall level.
@@ -195,6 +198,7 @@ def bootstrap_ap(weights, det_frame, det_tp, det_fp, tp_total, fp_total, npos, k
             for k in range(nk):
                 out[b, k] = np.nan
             continue
+        wrow = weights[b]
         tp_c = tp_total[b].copy()
         fp_c = fp_total[b].copy()
         env = np.zeros(nk)
@@ -207,28 +211,37 @@ def bootstrap_ap(weights, det_frame, det_tp, det_fp, tp_total, fp_total, npos, k
             while q[k] >= 0 and q[k] * pos > tp_c[k] * scale:
                 q[k] -= 1
         for i in range(n - 1, -1, -1):
-            w = weights[b, det_frame[i]]
+            w = wrow[det_frame[i]]
             if w == 0:
                 continue
-            for k in range(nk):
-                if det_tp[i, k]:
+            if kind != 2:
+                # branch-free over thresholds (vectorises): one step per copy of the row
+                lo, hi = tp_lo[i], tp_hi[i]
+                if hi > lo:
                     for _ in range(w):
-                        c = tp_c[k]
-                        prec = c / (c + fp_c[k])
-                        if kind == 1:
-                            acc[k] += prec / pos
-                        else:
+                        for k in range(lo, hi):
+                            t = det_tp[i, k]
+                            c = tp_c[k]
+                            prec = c / max(c + fp_c[k], 1.0)
+                            e = max(env[k], prec)
+                            env[k] = t * e + (1.0 - t) * env[k]
+                            acc[k] += t * (prec if kind == 1 else e)
+                            tp_c[k] = c - t
+            elif tp_hi[i] > tp_lo[i]:
+                for k in range(tp_lo[i], tp_hi[i]):
+                    if det_tp[i, k] > 0.0:
+                        for _ in range(w):
+                            c = tp_c[k]
+                            prec = c / (c + fp_c[k])
                             if prec > env[k]:
                                 env[k] = prec
-                            if kind == 0:
-                                acc[k] += env[k] / pos
-                            else:
-                                while q[k] >= 0 and (q[k] * pos > (c - 1.0) * scale or c == 1.0):
-                                    acc[k] += env[k]
-                                    q[k] -= 1
-                        tp_c[k] -= 1.0
-                elif det_fp[i, k]:
-                    fp_c[k] -= w
+                            while q[k] >= 0 and (q[k] * pos > (c - 1.0) * scale or c == 1.0):
+                                acc[k] += env[k]
+                                q[k] -= 1
+                            tp_c[k] -= 1.0
+            wf = float(w)
+            for k in range(nk):  # branch-free: vectorises
+                fp_c[k] -= wf * det_fp[i, k]
         for k in range(nk):
-            out[b, k] = acc[k] / npoints if kind == 2 else acc[k]
+            out[b, k] = acc[k] / npoints if kind == 2 else acc[k] / pos
     return out

@@ -73,18 +73,26 @@ def resampled_ap(ranking: LabelRanking, weights: np.ndarray, kind: int, npoints:
     nk = r.tp.shape[1]
     wf = weights.astype(np.float64)
     nframes = weights.shape[1]
+    frame = r.det_frame.astype(np.int64)
     per_frame_tp = np.zeros((nframes, nk))
     per_frame_fp = np.zeros((nframes, nk))
-    np.add.at(per_frame_tp, r.det_frame, r.tp)
-    np.add.at(per_frame_fp, r.det_frame, r.fp)
+    for k in range(nk):
+        per_frame_tp[:, k] = np.bincount(frame, weights=r.tp[:, k], minlength=nframes)
+        per_frame_fp[:, k] = np.bincount(frame, weights=r.fp[:, k], minlength=nframes)
     tp_total = np.ascontiguousarray(wf @ per_frame_tp)
     fp_total = np.ascontiguousarray(wf @ per_frame_fp)
     npos = wf @ ranking.positives.astype(np.float64)
+    # the span of threshold columns where each row is a TP (the kernel walks only that span)
+    any_tp = r.tp.any(axis=1)
+    lo = np.where(any_tp, np.argmax(r.tp, axis=1), 0).astype(np.int64)
+    hi = np.where(any_tp, nk - np.argmax(r.tp[:, ::-1], axis=1), 0).astype(np.int64)
     return bootstrap_ap(
         np.ascontiguousarray(weights),
-        r.det_frame.astype(np.int64),
-        r.tp,
-        r.fp,
+        frame,
+        np.ascontiguousarray(r.tp, dtype=np.float64),
+        np.ascontiguousarray(r.fp, dtype=np.float64),
+        lo,
+        hi,
         tp_total,
         fp_total,
         npos,

@@ -124,8 +124,12 @@ class Evaluation:
         self.frames, codes = np.unique(np.concatenate(frames), return_inverse=True)
         self._dcode = codes[: r.n_detections].astype(np.int64)
         self._tcode = codes[r.n_detections :].astype(np.int64)
-        labels = np.concatenate([r.det_label, r.truth_label]).astype(str)
-        self.labels: tuple[str, ...] = tuple(str(v) for v in np.unique(labels))
+        names, lcodes = np.unique(
+            np.concatenate([r.det_label, r.truth_label]).astype(str), return_inverse=True
+        )
+        self.labels: tuple[str, ...] = tuple(str(v) for v in names)
+        self._dlabel = lcodes[: r.n_detections]
+        self._tlabel = lcodes[r.n_detections :]
         self.thresholds: tuple[float, ...] = tuple(spec.values)
         self._column = {}
         for t in spec.values:
@@ -142,11 +146,10 @@ class Evaluation:
         self._truth_ptr = np.r_[0, np.cumsum(np.bincount(self._tcode, minlength=len(self.frames)))]
         self._prepare_slice()
         self._order = np.lexsort((r.det_rank, self._dcode, -r.det_score))
-        self._by_label = {
-            lab: self._order[r.det_label[self._order].astype(str) == lab] for lab in self.labels
-        }
+        ranked = self._dlabel[self._order]
+        self._by_label = {lab: self._order[ranked == i] for i, lab in enumerate(self.labels)}
         self._truths_of = {
-            lab: np.flatnonzero(r.truth_label.astype(str) == lab) for lab in self.labels
+            lab: np.flatnonzero(self._tlabel == i) for i, lab in enumerate(self.labels)
         }
         self._cells: dict[tuple[str, float], tuple[float | None, Counts]] = {}
         for lab in self.labels:
@@ -424,7 +427,7 @@ class Evaluation:
         r = self.records
         sel = self._outcome[:, k] == TP
         if label is not None:
-            sel &= r.det_label.astype(str) == self._label(label)
+            sel &= self._dlabel == self.labels.index(self._label(label))
         ti = self._matched_index[sel, k]
         return _bd.orientation_error(r.det_angle[sel], r.truth_angle[ti], r.shape)
 

@@ -249,11 +249,28 @@ def _numeric(values: np.ndarray, column: str, where: _Where) -> np.ndarray:
     return out
 
 
+def _first_empty(values: np.ndarray) -> int | None:
+    """Index of the first empty cell (None, NaN, blank text), or None."""
+    import pandas as pd
+
+    if values.dtype.kind in "iub":
+        return None
+    if values.dtype.kind == "f":
+        bad = np.isnan(values)
+    else:
+        series = pd.Series(values, dtype=object)
+        bad = series.isna().to_numpy().copy()
+        text = series.map(lambda v: isinstance(v, str)).to_numpy().astype(bool)
+        if text.any():
+            bad |= text & (series.where(text, "x").str.strip() == "").to_numpy().astype(bool)
+    return int(np.argmax(bad)) if bad.any() else None
+
+
 def _ids(values: np.ndarray, column: str, where: _Where, *, text: bool) -> np.ndarray:
     """Frame ids (int64 when all integral, else str) or labels (``text=True``: always str)."""
-    for i, v in enumerate(values):
-        if _is_empty(v):
-            raise ValueError(f"{where(i, column)}: empty value")
+    i = _first_empty(values)
+    if i is not None:
+        raise ValueError(f"{where(i, column)}: empty value")
     if values.dtype.kind in "iub" or (
         values.dtype.kind == "f" and np.all(np.floor(values) == values)
     ):
@@ -264,6 +281,8 @@ def _ids(values: np.ndarray, column: str, where: _Where, *, text: bool) -> np.nd
     ):
         ints = values.astype(np.int64)
         return ints.astype(str).astype(object) if text else ints
+    if values.dtype.kind in "OU" and all(isinstance(v, str) for v in values):
+        return values.astype(object)
     out = np.empty(len(values), dtype=object)
     for i, v in enumerate(values):
         out[i] = str(int(v)) if isinstance(v, float) and v == int(v) else str(v)
