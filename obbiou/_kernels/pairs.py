@@ -519,7 +519,8 @@ def poly_pair(VA, A, i, VB, B, j, measure, buf):
 
 
 # --------------------------------------------------------------------------------------
-# parallel drivers: all pairs (prange over rows) and pair lists (prange over chunks)
+# drivers: all pairs (prange over rows) and pair lists (prange over chunks); every driver
+# has a serial twin ``*_serial`` at the end of the module
 
 
 @njit(cache=True, parallel=True)
@@ -608,6 +609,100 @@ def poly_pairs(VA, A, VB, B, first, second, measure, chunks):
     width = 2 * (VA.shape[1] + VB.shape[1]) + 4
     step = (n + chunks - 1) // chunks
     for c in prange(chunks):
+        buf = np.empty((6, width))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            out[k] = poly_pair(VA, A, first[k], VB, B, second[k], measure, buf)
+    return out
+
+
+# Serial twins of the drivers above, for small inputs: starting threads costs more than
+# the work (and a first call then loads no threading layer). Same per-pair code.
+
+
+@njit(cache=True)
+def axis_matrix_serial(A, B, measure, is3d):
+    n = A.shape[0]
+    m = B.shape[0]
+    out = np.empty((n, m))
+    for i in range(n):
+        buf = np.empty((4, RECT_SCRATCH))
+        for j in range(m):
+            out[i, j] = axis_pair(A, i, B, j, measure, is3d, buf)
+    return out
+
+
+@njit(cache=True)
+def axis_pairs_serial(A, B, first, second, measure, is3d, chunks):
+    n = first.shape[0]
+    out = np.empty(n)
+    step = (n + chunks - 1) // chunks
+    for c in range(chunks):
+        buf = np.empty((4, RECT_SCRATCH))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            out[k] = axis_pair(A, first[k], B, second[k], measure, is3d, buf)
+    return out
+
+
+@njit(cache=True)
+def rect_matrix_serial(A, B, measure, is3d):
+    n = A.shape[0]
+    m = B.shape[0]
+    out = np.empty((n, m))
+    for i in range(n):
+        buf = np.empty((4, RECT_SCRATCH))
+        for j in range(m):
+            out[i, j] = rect_pair(A, i, B, j, measure, is3d, buf)
+    return out
+
+
+@njit(cache=True)
+def rect_pairs_serial(A, B, first, second, measure, is3d, chunks):
+    n = first.shape[0]
+    out = np.empty(n)
+    step = (n + chunks - 1) // chunks
+    for c in range(chunks):
+        buf = np.empty((4, RECT_SCRATCH))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            out[k] = rect_pair(A, first[k], B, second[k], measure, is3d, buf)
+    return out
+
+
+@njit(cache=True)
+def rect_elementwise_serial(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
+    n = Da.shape[0]
+    out = np.empty(n)
+    step = (n + chunks - 1) // chunks
+    for c in range(chunks):
+        buf = np.empty((4, RECT_SCRATCH))
+        ra = np.empty((1, RECT_COLUMNS))
+        rb = np.empty((1, RECT_COLUMNS))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            rect_row(Da, k, la, ca, sa, ra[0])
+            rect_row(Db, k, lb, cb, sb, rb[0])
+            out[k] = rect_pair(ra, 0, rb, 0, measure, is3d, buf)
+    return out
+
+
+@njit(cache=True)
+def poly_matrix_serial(VA, A, VB, B, measure):
+    n = A.shape[0]
+    m = B.shape[0]
+    out = np.empty((n, m))
+    width = 2 * (VA.shape[1] + VB.shape[1]) + 4
+    for i in range(n):
+        buf = np.empty((6, width))
+        for j in range(m):
+            out[i, j] = poly_pair(VA, A, i, VB, B, j, measure, buf)
+    return out
+
+
+@njit(cache=True)
+def poly_pairs_serial(VA, A, VB, B, first, second, measure, chunks):
+    n = first.shape[0]
+    out = np.empty(n)
+    width = 2 * (VA.shape[1] + VB.shape[1]) + 4
+    step = (n + chunks - 1) // chunks
+    for c in range(chunks):
         buf = np.empty((6, width))
         for k in range(c * step, min(n, (c + 1) * step)):
             out[k] = poly_pair(VA, A, first[k], VB, B, second[k], measure, buf)
