@@ -16,7 +16,7 @@ AXIS3 = 2
 UPRIGHT = 3
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def axis_rows(data, layout):
     """Rows ``x0, y0, x1, y1, z0, z1, size`` of axis / axis3 boxes."""
     n = data.shape[0]
@@ -40,7 +40,7 @@ def axis_rows(data, layout):
     return rows
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def rect_row(data, i, layout, cos, sin, row):
     """Fill ``row`` with ``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1,
     size, 1/hw, 1/hh`` of box ``data[i]`` (rotated, axis, or the footprint of an upright /
@@ -106,7 +106,7 @@ def rect_row(data, i, layout, cos, sin, row):
     row[15] = 1.0 / hh if hh > 0.0 else np.inf
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def rect_rows(data, layout, cos, sin):
     """Rows of :func:`rect_row` for every box."""
     n = data.shape[0]
