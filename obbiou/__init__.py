@@ -6,8 +6,22 @@ Public names only; the numba kernels live in ``obbiou._kernels`` and compile on 
 
 from obbiou import boxes
 from obbiou.measures import coverage, diou, giou, intersection, iou
+from obbiou.scene import Kept, Pairs, overlapping_pairs, suppress
 from obbiou.shapes import SHAPES
 
 __version__ = "0.1.0"
 
-__all__ = ["SHAPES", "__version__", "boxes", "iou", "giou", "diou", "intersection", "coverage"]
+__all__ = [
+    "SHAPES",
+    "__version__",
+    "boxes",
+    "iou",
+    "giou",
+    "diou",
+    "intersection",
+    "coverage",
+    "overlapping_pairs",
+    "suppress",
+    "Pairs",
+    "Kept",
+]

@@ -117,12 +117,6 @@ def test_inverted_axis(row, message):
         check([[0, 0, 1, 1], row, [5, 0, 6, 1]], name="b")
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="shapes._validate runs one check at a time over all rows (non-finite, then sizes, "
-    "then each extent pair), so it reports the first row failing the first check that fails, "
-    "not the first offending row",
-)
 @pytest.mark.parametrize(
     ("rows", "message"),
     [
@@ -173,11 +167,6 @@ def test_self_intersecting_asymmetric_bow_tie():
         check([[[0, 0], [2, 2], [2, 0], [0, 1]]])
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="shapes._validate_polygons takes the orientation from the signed area; a symmetric "
-    "bow-tie has area exactly 0, so its wrong-way turns are exempted and it passes",
-)
 def test_self_intersecting_symmetric_bow_tie():
     # A rectangle's corners in the order 0, 2, 1, 3: a common annotation mistake. The two
     # lobes cancel, so the signed area is exactly 0.
