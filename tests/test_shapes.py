@@ -32,6 +32,7 @@ from tests.strategies import (
     coordinate,
     hull_polygon,
     length,
+    pair_batch,
     polygon_pair,
     rotated_box,
     rotated_boxes,
@@ -121,6 +122,13 @@ def test_inverted_axis(row, message):
     [
         ([[0, 0, 1, 1], [0, 3, 1, 1], [5, 0, 1, 1]], "b[1]: y_max 1.0 < y_min 3.0"),
         ([[0, 0, -1, 1, 0], [0, math.nan, 1, 1, 0]], "b[0]: negative width -1.0"),
+        (
+            [
+                [[math.cos(t), math.sin(t)] for t in np.arange(5) * 4 * math.pi / 5],
+                [[0, 0], [2, 0], [1, 1], [2, 2], [0, 2]],
+            ],
+            "b[0]: polygon crosses itself (it winds around 2 times)",
+        ),
     ],
 )
 def test_the_first_offending_row_is_reported(rows, message):
@@ -479,3 +487,12 @@ def test_pair_families_hold_against_shapely(pair):
 def test_upright_pairs_validate(pair):
     check(pair.a)
     check(pair.b)
+
+
+@settings(max_examples=25, deadline=None)
+@given(pair_batch(rotated_pair(centre=FAR, sizes=FAR_SIZES)), pair_batch(upright_pair()))
+def test_pair_batches_validate_row_by_row(rot, up):
+    for a, b, kinds in (rot, up):
+        assert a.shape == b.shape and len(kinds) == len(a)
+        np.testing.assert_array_equal(check(a, "rotated" if a.shape[-1] == 5 else "upright"), a)
+        check(b, "rotated" if b.shape[-1] == 5 else "upright")
