@@ -247,3 +247,19 @@ def test_large_scene_against_shapely_strtree():
     # anything else found has an IoU within rounding of 0
     assert all(v <= BAND for k, v in got.items() if k not in sure)
     np.testing.assert_allclose([got[k] for k in sure], [ref[k] for k in sure], rtol=0, atol=1e-9)
+
+
+def test_extreme_coordinates_and_sizes_do_not_hang():
+    # extents near the float64 limit and sizes over 300 orders of magnitude
+    a = np.array(
+        [
+            [0, 0, 1e150, 1e150, 0.0],
+            [1e149, 0, 1e150, 1e150, 0.0],
+            [0, 0, 1e-300, 1e-300, 0.0],
+            [-1e307, 1e307, 1.0, 1.0, 0.3],
+        ]
+    )
+    p = overlapping_pairs(a)
+    dense = obbiou.iou(a, a)
+    want = {(i, j) for i in range(4) for j in range(i + 1, 4) if dense[i, j] > 0}
+    assert set(zip(p.first.tolist(), p.second.tolist(), strict=True)) == want
