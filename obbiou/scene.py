@@ -107,10 +107,9 @@ class Kept:
 _SERIAL_BELOW = 20_000
 
 
-def _extents(b: Boxes) -> tuple[np.ndarray, np.ndarray]:
+def _extents(b: Boxes, serial: bool) -> tuple[np.ndarray, np.ndarray]:
     from obbiou._kernels import sweep
 
-    serial = len(b) < _SERIAL_BELOW
     if b.shape == "polygon":
         return (sweep.polygon_extents_serial if serial else sweep.polygon_extents)(b.data)
     kernel = sweep.flat_extents_serial if serial else sweep.flat_extents
@@ -159,19 +158,25 @@ def _label_codes(labels: Any, n: int) -> np.ndarray:
 
 
 def _pairs(
-    a: Boxes, b: Boxes | None, threshold: float, codes: np.ndarray | None = None
+    a: Boxes,
+    b: Boxes | None,
+    threshold: float,
+    codes: np.ndarray | None = None,
+    serial: bool | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """(first, second, iou) of the pairs with IoU > threshold, sorted; b=None: i < j."""
+    """(first, second, iou) of the pairs with IoU > threshold, sorted; b=None: i < j.
+    ``serial``: one-thread kernels; None chooses by the number of boxes."""
     from obbiou._kernels import sweep
 
     other = a if b is None else b
     if len(a) == 0 or len(other) == 0:
         return np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0)
-    ea, sa = _extents(a)
-    eb, sb = (ea, sa) if b is None else _extents(b)
+    if serial is None:
+        serial = len(a) + (0 if b is None else len(b)) < _SERIAL_BELOW
+    ea, sa = _extents(a, serial)
+    eb, sb = (ea, sa) if b is None else _extents(b, serial)
     if codes is None:
         codes = np.zeros(0, np.int64)
-    serial = len(a) + (0 if b is None else len(b)) < _SERIAL_BELOW
     kernel = sweep.candidates_serial if serial else sweep.candidates
     first, second = kernel(
         ea, sa, eb, sb, _base_cell(eb), b is None, codes, codes, float(threshold), a.is_3d
@@ -455,8 +460,11 @@ def warmup() -> None:
         "axis3": [[0, 0, 0, 2, 2, 2], [1, 1, 1, 3, 3, 3]],
         "upright": [[0, 0, 0, 2, 1, 1, 0.1], [0.5, 0, 0, 2, 1, 1, 0.2]],
     }
+    codes = np.zeros(2, np.int64)
     for name, boxes in tiny.items():
-        overlapping_pairs(boxes, shape=name)
-        overlapping_pairs(boxes, boxes, shape=name, min_iou=0.1)
+        bx = read_boxes(boxes, name)
+        for serial in (True, False):  # small inputs take the serial kernels: compile both
+            _pairs(bx, None, 0.0, serial=serial)
+            _pairs(bx, bx, 0.1, codes, serial=serial)
         for decay in _DECAYS:
             suppress(boxes, [0.9, 0.8], shape=name, decay=decay, labels=[1, 1], limit=5)
