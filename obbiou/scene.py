@@ -117,12 +117,13 @@ def _extents(b: Boxes, serial: bool) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _base_cell(ext: np.ndarray) -> float:
-    """Level-0 cell size: the median extent of the indexed boxes (a box then spans about
-    2 x 2 cells and a cell holds a few boxes at the usual densities), bounded below so that
-    the size levels stay few whatever the spread of sizes."""
+    """Level-0 cell size: twice the median extent of the indexed boxes, bounded below so
+    that the size levels stay few whatever the spread of sizes. Measured on self-pairs of
+    1e5 rotated boxes 8-40 px long (one thread, CPU time): 0.7x the median 60 ms, 1x 68 ms,
+    1.5x 49 ms, 2x 43 ms, 3x 51 ms, the largest extent 45 ms."""
     d = np.maximum(ext[:, 2] - ext[:, 0], ext[:, 3] - ext[:, 1])
     top = float(d.max())
-    return max(float(np.median(d)), top * 2.0**-40, 1e-300)
+    return max(2.0 * float(np.median(d)), top * 2.0**-40, 1e-300)
 
 
 def _pair_iou(a: Boxes, b: Boxes | None, first: np.ndarray, second: np.ndarray) -> np.ndarray:
