@@ -86,11 +86,25 @@ def resampled_ap(ranking: LabelRanking, weights: np.ndarray, kind: int, npoints:
     any_tp = r.tp.any(axis=1)
     lo = np.where(any_tp, np.argmax(r.tp, axis=1), 0).astype(np.int64)
     hi = np.where(any_tp, nk - np.argmax(r.tp[:, ::-1], axis=1), 0).astype(np.int64)
+    # rows FP at every threshold only add to one running sum: group them into the runs that
+    # follow each other row (detections ranked above the first other row change no AP)
+    pure = r.fp.all(axis=1)
+    mixed = np.flatnonzero(~pure).astype(np.int64)
+    pure_rows = np.flatnonzero(pure)
+    keep = pure_rows > (mixed[0] if len(mixed) else len(pure))
+    pure_rows = pure_rows[keep]
+    # run m holds the pure rows between mixed[m] and mixed[m + 1]
+    run_of = np.searchsorted(mixed, pure_rows, side="left") - 1
+    run_ptr = np.r_[0, np.cumsum(np.bincount(run_of, minlength=len(mixed)))].astype(np.int64)
+    run_frame = frame[pure_rows]
     return bootstrap_ap(
         np.ascontiguousarray(weights),
         frame,
         np.ascontiguousarray(r.tp, dtype=np.float64),
         np.ascontiguousarray(r.fp, dtype=np.float64),
+        mixed,
+        run_ptr,
+        run_frame,
         lo,
         hi,
         tp_total,
