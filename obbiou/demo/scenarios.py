@@ -140,6 +140,8 @@ class Scenario:
         dict of str to Path
             ``{"truth": path, "<version>": path, ...}``.
         """
+        from obbiou.cli import write_table
+
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
         paths = {}
@@ -148,21 +150,6 @@ class Scenario:
             write_table(table, path)
             paths[key] = path
         return paths
-
-
-def write_table(table: pd.DataFrame, path: Any) -> Path:
-    """Write a table as CSV, Parquet or JSON Lines, chosen by the file suffix."""
-    path = Path(path)
-    suffix = path.suffix.lower()
-    if suffix == ".csv":
-        table.to_csv(path, index=False, float_format="%.10g")
-    elif suffix in (".parquet", ".pq"):
-        table.to_parquet(path, index=False)
-    elif suffix in (".jsonl", ".ndjson"):
-        table.to_json(path, orient="records", lines=True, double_precision=15)
-    else:
-        raise ValueError(f"{path}: unknown table format {suffix!r}; use .csv, .parquet or .jsonl")
-    return path
 
 
 # --------------------------------------------------------------------------------------------
