@@ -114,6 +114,60 @@ def _numbers(text: str | None, option: str) -> list[float] | None:
     return edges
 
 
+def details_text(evaluation: Any, iou: float | None = None) -> str:
+    """Causes of false positives and misses per label, and the orientation error, as text.
+
+    ``iou`` defaults to the evaluation's lowest threshold.
+    """
+    import math
+
+    t = min(evaluation.thresholds) if iou is None else float(iou)
+    fps = evaluation.false_positives(t)
+    misses = evaluation.misses(t)
+    width = max([len(str(lab)) for lab in fps] + [5])
+    lines = [f"False positives at IoU {t:g} by cause:"]
+    row = f"  {{:<{width}}}  {{:>9}}  {{:>11}}  {{:>11}}  {{:>10}}  {{:>6}}"
+    lines.append(
+        row.format("label", "duplicate", "wrong label", "poor boxes", "background", "total")
+    )
+    for lab, c in fps.items():
+        lines.append(
+            row.format(lab, c.duplicate, c.wrong_label, c.poor_localisation, c.background, c.total)
+        )
+    lines.append(f"Missed truths at IoU {t:g} by cause:")
+    lines.append(row.format("label", "crowded", "wrong label", "poor boxes", "not found", "total"))
+    for lab, c in misses.items():
+        lines.append(
+            row.format(lab, c.crowded, c.wrong_label, c.poor_localisation, c.not_detected, c.total)
+        )
+    if evaluation.records.shape not in ("axis", "axis3"):
+        period = (
+            "heading modulo 360°"
+            if evaluation.records.shape == "upright"
+            else ("angle modulo 180°")
+        )
+        lines.append(f"Orientation error of matched pairs at IoU {t:g} ({period}, degrees):")
+        lines.append(row.format("label", "pairs", "mean", "median", "90th pct", "flipped"))
+        for lab in [*evaluation.labels, None]:
+            e = evaluation.orientation_error(t, label=lab)
+
+            def deg(v: float | None) -> str:
+                return "n/a" if v is None or math.isnan(v) else f"{math.degrees(v):.2f}"
+
+            flipped = "n/a" if e.flipped is None else f"{e.flipped:.1%}"
+            lines.append(
+                row.format(
+                    "all" if lab is None else lab,
+                    e.pairs,
+                    deg(e.mean),
+                    deg(e.median),
+                    deg(e.p90),
+                    flipped,
+                )
+            )
+    return "\n".join(lines)
+
+
 def write_table(table: Any, path: Any) -> Path:
     """Write a pandas DataFrame as CSV, Parquet or JSON Lines, chosen by the file suffix.
 
@@ -236,11 +290,19 @@ def _cmd_evaluate(args: argparse.Namespace) -> int:
     result = evaluate(args.truth, args.detections, progress=not args.quiet, **opts)
     print(result.summary())
     if args.interval:
-        ci = result.interval(resamples=args.resamples, level=args.level, seed=args.seed)
+        lo, hi = result.interval(resamples=args.resamples, level=args.level, seed=args.seed)
         print(
-            f"\nmAP {_interval_text(ci, args.level)} (bootstrap over frames, "
-            f"{args.resamples} resamples, seed {args.seed})"
+            f"\nmean AP {result.mean_ap():.4f}, {args.level:.0%} interval [{lo:.4f}, {hi:.4f}]"
+            f" (bootstrap over frames, {args.resamples} resamples, seed {args.seed})"
         )
+    if args.details:
+        print()
+        print(details_text(result))
+    for by, group in result.buckets.items():
+        print(f"\nmean AP by {by}:")
+        for name, sub in group.items():
+            m = sub.mean_ap()
+            print(f"  {name:>14}: " + ("n/a" if m is None else f"{m:.4f}"))
     if args.json:
         result.to_json(args.json)
         print(f"wrote {args.json}", file=sys.stderr)
@@ -250,30 +312,14 @@ def _cmd_evaluate(args: argparse.Namespace) -> int:
     return 0
 
 
-def _interval_text(ci: Any, level: float) -> str:
-    """``0.712 [0.690, 0.735] (95 %)`` from an interval result (tuple-like or with fields)."""
-    lo = getattr(ci, "low", None)
-    hi = getattr(ci, "high", None)
-    est = getattr(ci, "estimate", None)
-    if lo is None or hi is None:
-        try:
-            vals = list(ci)
-        except TypeError:
-            return str(ci)
-        if len(vals) == 3:
-            est, lo, hi = vals
-        elif len(vals) == 2:
-            lo, hi = vals
-        else:
-            return str(ci)
-    head = "" if est is None else f"{float(est):.4f} "
-    return f"{head}[{float(lo):.4f}, {float(hi):.4f}] ({level:.0%} interval)"
-
-
 def _cmd_compare(args: argparse.Namespace) -> int:
     from obbiou.evaluation import compare
 
     opts = _evaluate_options(args)
+    if args.recall_points is not None:
+        opts["recall_points"] = args.recall_points
+    if args.top is not None:
+        opts["max_detections"] = args.top
     result = compare(
         args.truth,
         args.first,
@@ -281,6 +327,7 @@ def _cmd_compare(args: argparse.Namespace) -> int:
         resamples=args.resamples,
         level=args.level,
         seed=args.seed,
+        progress=not args.quiet,
         **opts,
     )
     print(result.summary())
@@ -496,6 +543,20 @@ def _add_matching(p: argparse.ArgumentParser) -> None:
         help="how AP is computed: area under the precision envelope (all-points), "
         "the envelope sampled at 11 or 101 recall levels, or the plain step sum",
     )
+    p.add_argument(
+        "--recall-points",
+        type=int,
+        default=None,
+        metavar="N",
+        help="sample the precision envelope at N recall levels (overrides --ap)",
+    )
+    p.add_argument(
+        "--top",
+        type=int,
+        default=None,
+        metavar="N",
+        help="score only the N highest-scored detections of each frame",
+    )
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -552,20 +613,6 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("detections", metavar="DETECTIONS", help="detections table")
     _add_matching(p)
     p.add_argument(
-        "--recall-points",
-        type=int,
-        default=None,
-        metavar="N",
-        help="sample the precision envelope at N recall levels (overrides --ap)",
-    )
-    p.add_argument(
-        "--top",
-        type=int,
-        default=None,
-        metavar="N",
-        help="score only the N highest-scored detections of each frame",
-    )
-    p.add_argument(
         "--size-buckets",
         metavar="EDGES",
         default=None,
@@ -590,6 +637,11 @@ def build_parser() -> argparse.ArgumentParser:
         help="bootstrap resamples for --interval",
     )
     p.add_argument("--level", type=float, default=0.95, help="confidence level for --interval")
+    p.add_argument(
+        "--details",
+        action="store_true",
+        help="also print the causes of false positives and misses and the orientation error",
+    )
     p.add_argument("--seed", type=int, default=0, help="seed of the bootstrap")
     p.add_argument("--json", metavar="PATH", default=None, help="write the full result as JSON")
     p.add_argument(

@@ -52,6 +52,7 @@ def draw_scene(
     detection_status: Any,
     *,
     iou: float = 0.5,
+    iou_text: str | None = None,
     title: str | None = None,
     window: tuple[float, float, float, float] | None = None,
 ) -> Path:
@@ -73,6 +74,8 @@ def draw_scene(
         Per detection: ``"matched"``, ``"false positive"`` or ``"ignored"``.
     iou : float
         The IoU threshold the statuses come from (for the legend).
+    iou_text : str, optional
+        The legend's title instead of ``"matching at IoU ≥ <iou>"``.
     title : str, optional
         Title; a default names the scenario and frame.
     window : tuple of float, optional
@@ -113,14 +116,17 @@ def draw_scene(
         for r, text in ((24.0, "24 m: beyond, truths are ignore"), (30.0, "30 m sweep range")):
             ring = plt.Circle((0, 0), r, fill=False, color="#c8c8c8", lw=0.8, ls="-")
             ax.add_patch(ring)
+            at = np.deg2rad(17.0)
             ax.annotate(
                 text,
-                (0, r),
-                xytext=(4, -12),
+                (r * np.cos(at), r * np.sin(at)),
+                xytext=(-4, 0),
                 textcoords="offset points",
                 fontsize=7.5,
                 color="#8a8a8a",
+                ha="right",
             )
+        _draw_racks(ax, scenario, frame, Polygon)
         ax.plot([0], [0], marker=(3, 0, -90), ms=11, color="#555555", ls="none")
         ax.annotate(
             "robot (sensor origin), heading +x",
@@ -188,7 +194,7 @@ def draw_scene(
         ncol=3,
         fontsize=8.5,
         frameon=False,
-        title=f"matching at IoU ≥ {iou:g}",
+        title=iou_text or f"matching at IoU ≥ {iou:g}",
         title_fontsize=8.5,
     )
     if shape == "upright":
@@ -198,18 +204,30 @@ def draw_scene(
         ax.set_xlabel("x (pixels, 0.15 m per pixel)")
         ax.set_ylabel("y (pixels, pointing down)")
     view = "bird's-eye view, " if shape == "upright" else ""
-    fig.suptitle(title or f"{scenario.title}: {frame}", fontsize=12.5, x=0.06, ha="left")
+    note = ""
+    if shape == "upright":
+        note = "; boxes on different rack levels overlap when seen from above"
     ax.set_title(
-        f"{view}{scenario.units}\nINVENTED DATA from a seeded simulation, "
+        f"{view}{scenario.units}{note}\nINVENTED DATA from a seeded simulation, "
         "not a real scene or detector",
         fontsize=8.5,
         color="#555555",
         loc="left",
+        pad=5,
+    )
+    ax.annotate(
+        title or f"{scenario.title}: {frame}",
+        (0, 1),
+        xycoords="axes fraction",
+        xytext=(0, 32),
+        textcoords="offset points",
+        fontsize=12.5,
+        va="bottom",
     )
     ax.tick_params(labelsize=8)
     fig.tight_layout()
     path.parent.mkdir(parents=True, exist_ok=True)
-    fig.savefig(path)
+    fig.savefig(path, bbox_inches="tight", pad_inches=0.25)
     plt.close(fig)
     return path
 
@@ -237,3 +255,34 @@ def _draw_quay(ax: Any, scenario: Any, frame: str, polygon: Any) -> None:
     label_at = centre + across * 40 / HARBOUR_METRES_PER_PIXEL
     if 0 <= label_at[0] <= HARBOUR_TILE and 0 <= label_at[1] <= HARBOUR_TILE:
         ax.annotate("water", label_at, fontsize=8, color="#8fa3b8", ha="center")
+
+
+def _draw_racks(ax: Any, scenario: Any, frame: str, polygon: Any) -> None:
+    """Shade the two rack rows beside the robot's aisle (sensor frame)."""
+    from obbiou.demo import scenarios as sc
+
+    pose = scenario.layout.get("poses", {}).get(frame)
+    if pose is None:
+        return
+    rx, ry, ryaw = pose
+    c, s = np.cos(ryaw), np.sin(ryaw)
+    for side in (-1, 1):
+        y0 = ry + side * sc._AISLE / 2
+        y1 = ry + side * (sc._AISLE / 2 + sc._RACK_DEPTH)
+        world = np.array([[0, y0], [sc._RACK_LENGTH, y0], [sc._RACK_LENGTH, y1], [0, y1]])
+        d = world - [rx, ry]
+        local = np.stack([c * d[:, 0] + s * d[:, 1], -s * d[:, 0] + c * d[:, 1]], axis=1)
+        ax.add_patch(
+            polygon(local, closed=True, facecolor="#f1f1f1", edgecolor="#d5d5d5", lw=0.6, zorder=0)
+        )
+        mid = local[:, 1].mean()
+        ax.annotate(
+            "rack",
+            (local[:, 0].min(), mid),
+            xytext=(-3, 0),
+            textcoords="offset points",
+            fontsize=7.5,
+            color="#9a9a9a",
+            ha="right",
+            va="center",
+        )

@@ -124,21 +124,22 @@ class Scenario:
         return COLUMNS[self.shape]
 
     def write(self, out_dir: Any, tables: dict[str, pd.DataFrame], *, fmt: str = "csv") -> dict:
-        """Write ``truth`` and the given detection tables as ``<name>_<key>.<fmt>`` files.
+        """Write ``truth`` and the given detection tables as ``<key>.<fmt>`` files.
 
         Parameters
         ----------
         out_dir : path-like
             Folder to write into (created if missing).
         tables : dict of str to DataFrame
-            Detection tables by version name, e.g. ``{"baseline": df}``.
+            Detection tables by name, e.g. ``{"baseline": df}`` (written as
+            ``baseline.csv``).
         fmt : {"csv", "parquet", "jsonl"}
             File format.
 
         Returns
         -------
         dict of str to Path
-            ``{"truth": path, "<version>": path, ...}``.
+            ``{"truth": path, "<name>": path, ...}``.
         """
         from obbiou.cli import write_table
 
@@ -146,9 +147,7 @@ class Scenario:
         out.mkdir(parents=True, exist_ok=True)
         paths = {}
         for key, table in {"truth": self.truth, **tables}.items():
-            path = out / f"{self.name}_{key}.{fmt}"
-            write_table(table, path)
-            paths[key] = path
+            paths[key] = write_table(table, out / f"{key}.{fmt}")
         return paths
 
 
