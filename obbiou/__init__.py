@@ -4,8 +4,9 @@ Public names only; the numba kernels live in ``obbiou._kernels`` and compile on 
 (``obbiou warmup`` compiles them all once and caches them on disk).
 """
 
+from obbiou.measures import coverage, diou, giou, intersection, iou
 from obbiou.shapes import SHAPES
 
 __version__ = "0.1.0"
 
-__all__ = ["SHAPES", "__version__"]
+__all__ = ["SHAPES", "__version__", "iou", "giou", "diou", "intersection", "coverage"]

@@ -1,0 +1,519 @@
+"""Overlap measures of box pairs: all-pairs matrices and indexed pair lists (numba only).
+
+Boxes arrive *prepared* (see ``obbiou.measures.prepare``), one row per box, in one of three
+kinds:
+
+* ``axis``  rows ``x0, y0, x1, y1, z0, z1, size`` (2D boxes ignore the z columns);
+* ``rect``  rows ``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1, size``
+  (rotated rectangles; upright 3D boxes add a z interval);
+* ``poly``  counter-clockwise vertices ``(N, K, 2)`` plus rows
+  ``area, xmin, ymin, xmax, ymax, gx, gy`` (``g`` the centroid).
+
+Exactness (DESIGN section 4): each pair is computed in a canonical order decided by the
+boxes' data, never by argument position, so ``f(a, b) == f(b, a)`` bit for bit; geometry is
+done relative to one box of the pair; identical and nested boxes short-cut to exact sizes;
+results are clamped to their ranges; zero-size boxes overlap nothing and no 0/0 happens.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, prange
+
+from obbiou._kernels.clip import clip_axis, clip_line, hull_area, shoelace
+
+# Measure codes (the public layer maps names to these).
+INTERSECTION = 0
+IOU = 1
+GIOU = 2
+DIOU = 3
+COVERAGE = 4
+
+# Column indices of prepared rows.
+AX_X0, AX_Y0, AX_X1, AX_Y1, AX_Z0, AX_Z1, AX_SIZE = 0, 1, 2, 3, 4, 5, 6
+AXIS_COLUMNS = 7
+R_CX, R_CY, R_HW, R_HH, R_C, R_S, R_AREA = 0, 1, 2, 3, 4, 5, 6
+R_XMIN, R_YMIN, R_XMAX, R_YMAX, R_Z0, R_Z1, R_SIZE = 7, 8, 9, 10, 11, 12, 13
+RECT_COLUMNS = 14
+P_AREA, P_XMIN, P_YMIN, P_XMAX, P_YMAX, P_GX, P_GY = 0, 1, 2, 3, 4, 5, 6
+POLY_COLUMNS = 7
+
+RECT_SCRATCH = 24
+
+
+@njit(cache=True)
+def finish(measure, inter, sa, sb, hull, d2, c2):
+    """Turn an intersection (and, for GIoU/DIoU, hull size or distances) into a measure."""
+    if measure == INTERSECTION:
+        return inter
+    if measure == COVERAGE:
+        if sa <= 0.0:
+            return 0.0
+        return min(max(inter / sa, 0.0), 1.0)
+    union = sa + sb - inter
+    iou = 0.0
+    if union > 0.0 and inter > 0.0:
+        iou = min(max(inter / union, 0.0), 1.0)
+    if measure == IOU:
+        return iou
+    if measure == GIOU:
+        penalty = 0.0
+        if hull > union:
+            penalty = (hull - union) / hull
+        return min(max(iou - penalty, -1.0), 1.0)
+    # DIOU
+    penalty = 0.0
+    if c2 > 0.0:
+        penalty = min(d2 / c2, 1.0)
+    return min(max(iou - penalty, -1.0), 1.0)
+
+
+# --------------------------------------------------------------------------------------
+# axis-aligned boxes (axis, axis3)
+
+
+@njit(cache=True)
+def axis_less(A, i, B, j):
+    """True when row B[j] sorts before row A[i] (lexicographic on the data)."""
+    for k in range(6):
+        if B[j, k] != A[i, k]:
+            return B[j, k] < A[i, k]
+    return False
+
+
+@njit(cache=True)
+def axis_pair(A, i, B, j, measure, is3d, buf):
+    sa = A[i, AX_SIZE]
+    sb = B[j, AX_SIZE]
+    ix = min(A[i, AX_X1], B[j, AX_X1]) - max(A[i, AX_X0], B[j, AX_X0])
+    iy = min(A[i, AX_Y1], B[j, AX_Y1]) - max(A[i, AX_Y0], B[j, AX_Y0])
+    iz = 1.0
+    if is3d:
+        iz = min(A[i, AX_Z1], B[j, AX_Z1]) - max(A[i, AX_Z0], B[j, AX_Z0])
+    inter = 0.0
+    if ix > 0.0 and iy > 0.0 and iz > 0.0 and sa > 0.0 and sb > 0.0:
+        inter = min(ix * iy * iz, sa, sb)
+    if measure == INTERSECTION or measure == IOU or measure == COVERAGE:
+        return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
+    if measure == DIOU:
+        # Centre offsets from differences of like coordinates: antisymmetric exactly.
+        dx = 0.5 * ((B[j, AX_X0] - A[i, AX_X0]) + (B[j, AX_X1] - A[i, AX_X1]))
+        dy = 0.5 * ((B[j, AX_Y0] - A[i, AX_Y0]) + (B[j, AX_Y1] - A[i, AX_Y1]))
+        cw = max(A[i, AX_X1], B[j, AX_X1]) - min(A[i, AX_X0], B[j, AX_X0])
+        ch = max(A[i, AX_Y1], B[j, AX_Y1]) - min(A[i, AX_Y0], B[j, AX_Y0])
+        d2 = dx * dx + dy * dy
+        c2 = cw * cw + ch * ch
+        if is3d:
+            dz = 0.5 * ((B[j, AX_Z0] - A[i, AX_Z0]) + (B[j, AX_Z1] - A[i, AX_Z1]))
+            cd = max(A[i, AX_Z1], B[j, AX_Z1]) - min(A[i, AX_Z0], B[j, AX_Z0])
+            d2 += dz * dz
+            c2 += cd * cd
+        return finish(measure, inter, sa, sb, 0.0, d2, c2)
+    # GIOU: convex hull of both footprints (x span of the joint z interval in 3D).
+    if inter > 0.0 and inter >= min(sa, sb):
+        return finish(measure, inter, sa, sb, max(sa, sb), 0.0, 0.0)
+    if axis_less(A, i, B, j):
+        hull = axis_hull(B, j, A, i, is3d, buf)
+    else:
+        hull = axis_hull(A, i, B, j, is3d, buf)
+    return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
+
+
+@njit(cache=True)
+def axis_corners(R, r, ox, oy, xs, ys, at):
+    x0 = R[r, AX_X0] - ox
+    x1 = R[r, AX_X1] - ox
+    y0 = R[r, AX_Y0] - oy
+    y1 = R[r, AX_Y1] - oy
+    xs[at] = x0
+    ys[at] = y0
+    xs[at + 1] = x1
+    ys[at + 1] = y0
+    xs[at + 2] = x1
+    ys[at + 2] = y1
+    xs[at + 3] = x0
+    ys[at + 3] = y1
+
+
+@njit(cache=True)
+def axis_hull(P, p, Q, q, is3d, buf):
+    """Convex hull area of two axis-aligned boxes (times the joint z span in 3D)."""
+    ox = P[p, AX_X0]
+    oy = P[p, AX_Y0]
+    xs = buf[0]
+    ys = buf[1]
+    axis_corners(P, p, ox, oy, xs, ys, 0)
+    axis_corners(Q, q, ox, oy, xs, ys, 4)
+    hull = hull_area(xs, ys, 8, buf[2], buf[3])
+    if is3d:
+        hull *= max(P[p, AX_Z1], Q[q, AX_Z1]) - min(P[p, AX_Z0], Q[q, AX_Z0])
+    return hull
+
+
+# --------------------------------------------------------------------------------------
+# rotated rectangles (rotated, upright footprints)
+
+
+@njit(cache=True)
+def rect_less(A, i, B, j, is3d):
+    """True when row B[j] sorts before row A[i] (lexicographic on centre, size, direction)."""
+    for k in range(6):
+        if B[j, k] != A[i, k]:
+            return B[j, k] < A[i, k]
+    if is3d:
+        for k in (R_Z0, R_Z1):
+            if B[j, k] != A[i, k]:
+                return B[j, k] < A[i, k]
+    return False
+
+
+@njit(cache=True)
+def relative(P, p, Q, q):
+    """Q's centre and direction in P's own frame: (px, py, cos, sin) of the angle difference.
+
+    Per-box cos/sin and the angle-difference identities: no trigonometry per pair.
+    """
+    pc = P[p, R_C]
+    ps = P[p, R_S]
+    qc = Q[q, R_C]
+    qs = Q[q, R_S]
+    dx = Q[q, R_CX] - P[p, R_CX]
+    dy = Q[q, R_CY] - P[p, R_CY]
+    px = pc * dx + ps * dy
+    py = pc * dy - ps * dx
+    if pc == qc and ps == qs:
+        c = 1.0
+        s = 0.0
+    else:
+        c = qc * pc + qs * ps
+        s = qs * pc - qc * ps
+    return px, py, c, s
+
+
+@njit(cache=True)
+def rect_inter(P, p, Q, q, buf):
+    """Intersection area of rectangles P[p] and Q[q], computed in P's own frame.
+
+    There P is the axis-aligned rectangle [-hw, hw] x [-hh, hh], so each clip step compares
+    with a constant. Separating-axis tests on both boxes' axes give exact 0 for disjoint
+    pairs and exact sizes for nested ones before any clipping.
+    """
+    phw = P[p, R_HW]
+    phh = P[p, R_HH]
+    qhw = Q[q, R_HW]
+    qhh = Q[q, R_HH]
+    px, py, c, s = relative(P, p, Q, q)
+    ux = c * qhw
+    uy = s * qhw
+    vx = -s * qhh
+    vy = c * qhh
+    ex = abs(ux) + abs(vx)  # half extents of Q along P's axes
+    ey = abs(uy) + abs(vy)
+    apx = abs(px)
+    apy = abs(py)
+    if apx - ex >= phw or apy - ey >= phh:
+        return 0.0
+    if apx + ex <= phw and apy + ey <= phh:
+        return Q[q, R_AREA]
+    # P's centre in Q's frame, and P's half extents along Q's axes.
+    qx = abs(c * px + s * py)
+    qy = abs(c * py - s * px)
+    fx = abs(c) * phw + abs(s) * phh
+    fy = abs(s) * phw + abs(c) * phh
+    if qx - fx >= qhw or qy - fy >= qhh:
+        return 0.0
+    if qx + fx <= qhw and qy + fy <= qhh:
+        return P[p, R_AREA]
+    x1 = buf[0]
+    y1 = buf[1]
+    x2 = buf[2]
+    y2 = buf[3]
+    # Q's corners, counter-clockwise.
+    x1[0] = px - ux - vx
+    y1[0] = py - uy - vy
+    x1[1] = px + ux - vx
+    y1[1] = py + uy - vy
+    x1[2] = px + ux + vx
+    y1[2] = py + uy + vy
+    x1[3] = px - ux + vx
+    y1[3] = py - uy + vy
+    n = clip_axis(x1, y1, 4, x2, y2, 1.0, phw)
+    n = clip_axis(x2, y2, n, x1, y1, -1.0, phw)
+    n = clip_axis(y1, x1, n, y2, x2, 1.0, phh)
+    n = clip_axis(y2, x2, n, y1, x1, -1.0, phh)
+    area = shoelace(x1, y1, n)
+    return min(max(area, 0.0), P[p, R_AREA], Q[q, R_AREA])
+
+
+@njit(cache=True)
+def rect_hull(P, p, Q, q, buf):
+    """Area of the convex hull of rectangles P[p] and Q[q] (in P's frame)."""
+    phw = P[p, R_HW]
+    phh = P[p, R_HH]
+    qhw = Q[q, R_HW]
+    qhh = Q[q, R_HH]
+    px, py, c, s = relative(P, p, Q, q)
+    ux = c * qhw
+    uy = s * qhw
+    vx = -s * qhh
+    vy = c * qhh
+    xs = buf[0]
+    ys = buf[1]
+    xs[0] = -phw
+    ys[0] = -phh
+    xs[1] = phw
+    ys[1] = -phh
+    xs[2] = phw
+    ys[2] = phh
+    xs[3] = -phw
+    ys[3] = phh
+    xs[4] = px - ux - vx
+    ys[4] = py - uy - vy
+    xs[5] = px + ux - vx
+    ys[5] = py + uy - vy
+    xs[6] = px + ux + vx
+    ys[6] = py + uy + vy
+    xs[7] = px - ux + vx
+    ys[7] = py - uy + vy
+    return hull_area(xs, ys, 8, buf[2], buf[3])
+
+
+@njit(cache=True)
+def rect_pair(A, i, B, j, measure, is3d, buf):
+    sa = A[i, R_SIZE]
+    sb = B[j, R_SIZE]
+    separate = (
+        A[i, R_XMAX] <= B[j, R_XMIN]
+        or B[j, R_XMAX] <= A[i, R_XMIN]
+        or A[i, R_YMAX] <= B[j, R_YMIN]
+        or B[j, R_YMAX] <= A[i, R_YMIN]
+    )
+    dz = 1.0
+    if is3d:
+        dz = min(A[i, R_Z1], B[j, R_Z1]) - max(A[i, R_Z0], B[j, R_Z0])
+        if dz <= 0.0:
+            separate = True
+    inter = 0.0
+    swap = False
+    if not separate and sa > 0.0 and sb > 0.0:
+        swap = rect_less(A, i, B, j, is3d)
+        if swap:
+            area = rect_inter(B, j, A, i, buf)
+        else:
+            area = rect_inter(A, i, B, j, buf)
+        inter = min(area * dz, sa, sb) if is3d else area
+    if measure == INTERSECTION or measure == IOU or measure == COVERAGE:
+        return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
+    if measure == DIOU:
+        dx = B[j, R_CX] - A[i, R_CX]
+        dy = B[j, R_CY] - A[i, R_CY]
+        cw = max(A[i, R_XMAX], B[j, R_XMAX]) - min(A[i, R_XMIN], B[j, R_XMIN])
+        ch = max(A[i, R_YMAX], B[j, R_YMAX]) - min(A[i, R_YMIN], B[j, R_YMIN])
+        d2 = dx * dx + dy * dy
+        c2 = cw * cw + ch * ch
+        if is3d:
+            ddz = 0.5 * ((B[j, R_Z0] - A[i, R_Z0]) + (B[j, R_Z1] - A[i, R_Z1]))
+            cd = max(A[i, R_Z1], B[j, R_Z1]) - min(A[i, R_Z0], B[j, R_Z0])
+            d2 += ddz * ddz
+            c2 += cd * cd
+        return finish(measure, inter, sa, sb, 0.0, d2, c2)
+    # GIOU
+    if inter > 0.0 and inter >= min(sa, sb):
+        return finish(measure, inter, sa, sb, max(sa, sb), 0.0, 0.0)
+    if rect_less(A, i, B, j, is3d):
+        hull = rect_hull(B, j, A, i, buf)
+    else:
+        hull = rect_hull(A, i, B, j, buf)
+    if is3d:
+        hull *= max(A[i, R_Z1], B[j, R_Z1]) - min(A[i, R_Z0], B[j, R_Z0])
+    return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
+
+
+# --------------------------------------------------------------------------------------
+# convex polygons
+
+
+@njit(cache=True)
+def poly_less(VA, i, VB, j):
+    """True when polygon VB[j] sorts before VA[i] (vertex count, then vertices)."""
+    ka = VA.shape[1]
+    kb = VB.shape[1]
+    if ka != kb:
+        return kb < ka
+    for k in range(ka):
+        for d in range(2):
+            if VB[j, k, d] != VA[i, k, d]:
+                return VB[j, k, d] < VA[i, k, d]
+    return False
+
+
+@njit(cache=True)
+def poly_same(VA, i, VB, j):
+    if VA.shape[1] != VB.shape[1]:
+        return False
+    for k in range(VA.shape[1]):
+        if VA[i, k, 0] != VB[j, k, 0] or VA[i, k, 1] != VB[j, k, 1]:
+            return False
+    return True
+
+
+@njit(cache=True)
+def poly_inter(VP, p, VQ, q, buf):
+    """Intersection area of convex polygons VP[p] and VQ[q], relative to VP[p]'s vertex 0."""
+    kp = VP.shape[1]
+    kq = VQ.shape[1]
+    ox = VP[p, 0, 0]
+    oy = VP[p, 0, 1]
+    cx = buf[0]
+    cy = buf[1]
+    for k in range(kp):
+        cx[k] = VP[p, k, 0] - ox
+        cy[k] = VP[p, k, 1] - oy
+    x1 = buf[2]
+    y1 = buf[3]
+    x2 = buf[4]
+    y2 = buf[5]
+    for k in range(kq):
+        x1[k] = VQ[q, k, 0] - ox
+        y1[k] = VQ[q, k, 1] - oy
+    n = kq
+    for k in range(kp):
+        kn = k + 1 if k + 1 < kp else 0
+        n = clip_line(x1, y1, n, x2, y2, cx[k], cy[k], cx[kn], cy[kn])
+        x1, x2 = x2, x1
+        y1, y2 = y2, y1
+        if n == 0:
+            return 0.0
+    return max(shoelace(x1, y1, n), 0.0)
+
+
+@njit(cache=True)
+def poly_hull(VP, p, VQ, q, buf):
+    kp = VP.shape[1]
+    kq = VQ.shape[1]
+    ox = VP[p, 0, 0]
+    oy = VP[p, 0, 1]
+    xs = buf[0]
+    ys = buf[1]
+    for k in range(kp):
+        xs[k] = VP[p, k, 0] - ox
+        ys[k] = VP[p, k, 1] - oy
+    for k in range(kq):
+        xs[kp + k] = VQ[q, k, 0] - ox
+        ys[kp + k] = VQ[q, k, 1] - oy
+    return hull_area(xs, ys, kp + kq, buf[2], buf[3])
+
+
+@njit(cache=True)
+def poly_pair(VA, A, i, VB, B, j, measure, buf):
+    sa = A[i, P_AREA]
+    sb = B[j, P_AREA]
+    separate = (
+        A[i, P_XMAX] <= B[j, P_XMIN]
+        or B[j, P_XMAX] <= A[i, P_XMIN]
+        or A[i, P_YMAX] <= B[j, P_YMIN]
+        or B[j, P_YMAX] <= A[i, P_YMIN]
+    )
+    inter = 0.0
+    same = False
+    if not separate and sa > 0.0 and sb > 0.0:
+        if poly_same(VA, i, VB, j):
+            same = True
+            inter = sa
+        elif poly_less(VA, i, VB, j):
+            inter = min(poly_inter(VB, j, VA, i, buf), sa, sb)
+        else:
+            inter = min(poly_inter(VA, i, VB, j, buf), sa, sb)
+    if measure == INTERSECTION or measure == IOU or measure == COVERAGE:
+        return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
+    if measure == DIOU:
+        dx = B[j, P_GX] - A[i, P_GX]
+        dy = B[j, P_GY] - A[i, P_GY]
+        cw = max(A[i, P_XMAX], B[j, P_XMAX]) - min(A[i, P_XMIN], B[j, P_XMIN])
+        ch = max(A[i, P_YMAX], B[j, P_YMAX]) - min(A[i, P_YMIN], B[j, P_YMIN])
+        return finish(measure, inter, sa, sb, 0.0, dx * dx + dy * dy, cw * cw + ch * ch)
+    if same or (inter > 0.0 and inter >= min(sa, sb)):
+        return finish(measure, inter, sa, sb, max(sa, sb), 0.0, 0.0)
+    if poly_less(VA, i, VB, j):
+        hull = poly_hull(VB, j, VA, i, buf)
+    else:
+        hull = poly_hull(VA, i, VB, j, buf)
+    return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
+
+
+# --------------------------------------------------------------------------------------
+# parallel drivers: all pairs (prange over rows) and pair lists (prange over chunks)
+
+
+@njit(cache=True, parallel=True)
+def axis_matrix(A, B, measure, is3d):
+    n = A.shape[0]
+    m = B.shape[0]
+    out = np.empty((n, m))
+    for i in prange(n):
+        buf = np.empty((4, RECT_SCRATCH))
+        for j in range(m):
+            out[i, j] = axis_pair(A, i, B, j, measure, is3d, buf)
+    return out
+
+
+@njit(cache=True, parallel=True)
+def axis_pairs(A, B, first, second, measure, is3d, chunks):
+    n = first.shape[0]
+    out = np.empty(n)
+    step = (n + chunks - 1) // chunks
+    for c in prange(chunks):
+        buf = np.empty((4, RECT_SCRATCH))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            out[k] = axis_pair(A, first[k], B, second[k], measure, is3d, buf)
+    return out
+
+
+@njit(cache=True, parallel=True)
+def rect_matrix(A, B, measure, is3d):
+    n = A.shape[0]
+    m = B.shape[0]
+    out = np.empty((n, m))
+    for i in prange(n):
+        buf = np.empty((4, RECT_SCRATCH))
+        for j in range(m):
+            out[i, j] = rect_pair(A, i, B, j, measure, is3d, buf)
+    return out
+
+
+@njit(cache=True, parallel=True)
+def rect_pairs(A, B, first, second, measure, is3d, chunks):
+    n = first.shape[0]
+    out = np.empty(n)
+    step = (n + chunks - 1) // chunks
+    for c in prange(chunks):
+        buf = np.empty((4, RECT_SCRATCH))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            out[k] = rect_pair(A, first[k], B, second[k], measure, is3d, buf)
+    return out
+
+
+@njit(cache=True, parallel=True)
+def poly_matrix(VA, A, VB, B, measure):
+    n = A.shape[0]
+    m = B.shape[0]
+    out = np.empty((n, m))
+    width = 2 * (VA.shape[1] + VB.shape[1]) + 4
+    for i in prange(n):
+        buf = np.empty((6, width))
+        for j in range(m):
+            out[i, j] = poly_pair(VA, A, i, VB, B, j, measure, buf)
+    return out
+
+
+@njit(cache=True, parallel=True)
+def poly_pairs(VA, A, VB, B, first, second, measure, chunks):
+    n = first.shape[0]
+    out = np.empty(n)
+    width = 2 * (VA.shape[1] + VB.shape[1]) + 4
+    step = (n + chunks - 1) // chunks
+    for c in prange(chunks):
+        buf = np.empty((6, width))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            out[k] = poly_pair(VA, A, first[k], VB, B, second[k], measure, buf)
+    return out

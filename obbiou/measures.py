@@ -1,0 +1,504 @@
+"""Overlap measures: IoU, GIoU, DIoU, intersection and coverage, exact in float64.
+
+Every measure takes two sets of boxes ``a`` and ``b`` in any layout of
+:mod:`obbiou.shapes` (``axis``, ``rotated``, ``polygon``, ``axis3``, ``upright``) and gives
+either the all-pairs ``(N, M)`` matrix or, with ``elementwise=True``, the ``(N,)`` values of
+row ``i`` of ``a`` with row ``i`` of ``b``.
+
+Conventions: angles (``angle``, ``yaw``) in radians, counter-clockwise from +x towards +y
+(in an image frame with y pointing down the same number turns the box clockwise on screen);
+``width`` along the box's own x axis, ``height`` along its own y axis; for ``upright`` boxes
+``length`` along the heading, ``width`` across it, ``height`` along +z and ``cz`` the centre.
+A single box (1-D array, or one ``(K, 2)`` polygon with ``shape="polygon"``) drops its axis
+from the result.
+
+Mixing layouts: ``axis`` and ``rotated`` boxes mix (axis boxes are rotated boxes at angle
+0); either mixes with ``polygon`` (rectangles are then taken by their corners); ``axis3``
+mixes with ``upright``. 2D boxes never mix with 3D boxes (take
+:func:`obbiou.boxes.footprint` of the 3D ones for bird's-eye-view measures).
+
+Exactness: each pair is computed relative to one of its boxes (coordinates near 1e6 lose
+nothing), in an order fixed by the boxes' data, so ``iou(a, b) == iou(b, a).T`` bit for bit;
+``iou(x, x) == 1.0`` for every box of positive size; disjoint boxes give exactly 0.0; a box
+of zero size overlaps nothing; results are clamped to their ranges; no NaN for valid input.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from obbiou.shapes import Boxes, read_boxes, same_length
+
+__all__ = [
+    "iou",
+    "giou",
+    "diou",
+    "intersection",
+    "coverage",
+    "pair_values",
+    "prepare",
+    "Prepared",
+    "MEASURES",
+    "warmup",
+]
+
+#: Measure names accepted by :func:`pair_values`, with their kernel codes.
+MEASURES: dict[str, int] = {"intersection": 0, "iou": 1, "giou": 2, "diou": 3, "coverage": 4}
+
+_2D = ("axis", "rotated", "polygon")
+
+
+@dataclass(frozen=True)
+class Prepared:
+    """Boxes precomputed for the pair kernels (per box: frame, size, extent).
+
+    ``kind`` is ``"axis"``, ``"rect"`` or ``"poly"``; ``rows`` holds one row per box,
+    ``vertices`` the counter-clockwise vertices for ``"poly"`` (else an empty array);
+    ``boxes`` the validated input it came from.
+    """
+
+    kind: str
+    is_3d: bool
+    rows: np.ndarray
+    vertices: np.ndarray
+    boxes: Boxes
+
+    def __len__(self) -> int:
+        return int(self.rows.shape[0])
+
+
+def _kind_for(a: str, b: str) -> str:
+    """The common kernel kind of layouts ``a`` and ``b``, or a ValueError."""
+    if (a in _2D) != (b in _2D):
+        two, three = (a, b) if a in _2D else (b, a)
+        raise ValueError(
+            f"cannot compare 2D boxes ({two!r}) with 3D boxes ({three!r}); for bird's-eye "
+            "view take obbiou.boxes.footprint of the 3D boxes"
+        )
+    if a in _2D:
+        if "polygon" in (a, b):
+            return "poly"
+        return "axis" if a == b == "axis" else "rect"
+    return "axis" if a == b == "axis3" else "rect"
+
+
+def _natural_kind(shape: str) -> str:
+    return {"axis": "axis", "axis3": "axis", "rotated": "rect", "upright": "rect"}.get(
+        shape, "poly"
+    )
+
+
+def _rect_rows(cx, cy, w, h, c, s, z0, z1, env=None) -> np.ndarray:
+    n = cx.shape[0]
+    rows = np.zeros((n, 14))
+    hw, hh = 0.5 * w, 0.5 * h
+    rows[:, 0], rows[:, 1], rows[:, 2], rows[:, 3] = cx, cy, hw, hh
+    rows[:, 4], rows[:, 5] = c, s
+    area = w * h
+    rows[:, 6] = area
+    if env is None:
+        ex = np.abs(c) * hw + np.abs(s) * hh
+        ey = np.abs(s) * hw + np.abs(c) * hh
+        env = (cx - ex, cy - ey, cx + ex, cy + ey)
+    rows[:, 7], rows[:, 8], rows[:, 9], rows[:, 10] = env
+    rows[:, 11], rows[:, 12] = z0, z1
+    rows[:, 13] = area * (z1 - z0) if z0 is not None and np.ndim(z0) else area
+    return rows
+
+
+def _polygon_rows(vertices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Counter-clockwise vertices and rows (area, extent, centroid) of convex polygons."""
+    origin = vertices[:, :1, :]
+    local = vertices - origin  # shoelace relative to a vertex: no loss far from the origin
+    x, y = local[..., 0], local[..., 1]
+    xn, yn = np.roll(x, -1, axis=1), np.roll(y, -1, axis=1)
+    cross = x * yn - xn * y
+    area2 = cross.sum(axis=1)
+    flip = area2 < 0
+    if flip.any():
+        vertices = vertices.copy()
+        vertices[flip] = vertices[flip, ::-1]
+    area = 0.5 * np.abs(area2)
+    rows = np.zeros((vertices.shape[0], 7))
+    rows[:, 0] = area
+    rows[:, 1:3] = vertices.min(axis=1)
+    rows[:, 3:5] = vertices.max(axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        gx = ((x + xn) * cross).sum(axis=1) / (3.0 * area2)
+        gy = ((y + yn) * cross).sum(axis=1) / (3.0 * area2)
+    flat = area2 == 0
+    gx[flat] = x[flat].mean(axis=1) if flat.any() else gx[flat]
+    gy[flat] = y[flat].mean(axis=1) if flat.any() else gy[flat]
+    rows[:, 5] = origin[:, 0, 0] + gx
+    rows[:, 6] = origin[:, 0, 1] + gy
+    return np.ascontiguousarray(vertices), rows
+
+
+def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
+    """Precompute per-box data (frame, cos/sin, size, extent) for :func:`pair_values`.
+
+    Parameters
+    ----------
+    boxes : Boxes
+        Validated boxes from :func:`obbiou.shapes.read_boxes`.
+    kind : str, optional
+        ``"axis"``, ``"rect"`` or ``"poly"``; the layout's own kind when ``None``. Pass it to
+        prepare boxes for a mix of layouts (see :func:`pair_values`).
+
+    Returns
+    -------
+    Prepared
+
+    Examples
+    --------
+    >>> p = prepare(read_boxes([[0, 0, 4, 2, 0.0]]))
+    >>> p.kind, len(p), float(p.rows[0, 6])  # kind, number of boxes, area
+    ('rect', 1, 8.0)
+    """
+    kind = kind or _natural_kind(boxes.shape)
+    d = boxes.data
+    shp = boxes.shape
+    empty = np.zeros((0, 0, 2))
+    if kind == "axis":
+        rows = np.zeros((d.shape[0], 7))
+        if shp == "axis":
+            rows[:, :4] = d
+            rows[:, 6] = (d[:, 2] - d[:, 0]) * (d[:, 3] - d[:, 1])
+        elif shp == "axis3":
+            rows[:, :2], rows[:, 2:4], rows[:, 4], rows[:, 5] = (
+                d[:, :2],
+                d[:, 3:5],
+                d[:, 2],
+                d[:, 5],
+            )
+            rows[:, 6] = (d[:, 3] - d[:, 0]) * (d[:, 4] - d[:, 1]) * (d[:, 5] - d[:, 2])
+        else:
+            raise ValueError(f"{shp!r} boxes cannot be prepared as axis-aligned boxes")
+        return Prepared("axis", shp == "axis3", rows, empty, boxes)
+    if kind == "rect":
+        n = d.shape[0]
+        one, zero = np.ones(n), np.zeros(n)
+        if shp == "rotated":
+            rows = _rect_rows(
+                d[:, 0], d[:, 1], d[:, 2], d[:, 3], np.cos(d[:, 4]), np.sin(d[:, 4]), 0.0, 0.0
+            )
+        elif shp == "axis":
+            rows = _rect_rows(
+                0.5 * (d[:, 0] + d[:, 2]),
+                0.5 * (d[:, 1] + d[:, 3]),
+                d[:, 2] - d[:, 0],
+                d[:, 3] - d[:, 1],
+                one,
+                zero,
+                0.0,
+                0.0,
+                env=(d[:, 0], d[:, 1], d[:, 2], d[:, 3]),
+            )
+        elif shp == "upright":
+            rows = _rect_rows(
+                d[:, 0],
+                d[:, 1],
+                d[:, 3],
+                d[:, 4],
+                np.cos(d[:, 6]),
+                np.sin(d[:, 6]),
+                d[:, 2] - 0.5 * d[:, 5],
+                d[:, 2] + 0.5 * d[:, 5],
+            )
+        elif shp == "axis3":
+            rows = _rect_rows(
+                0.5 * (d[:, 0] + d[:, 3]),
+                0.5 * (d[:, 1] + d[:, 4]),
+                d[:, 3] - d[:, 0],
+                d[:, 4] - d[:, 1],
+                one,
+                zero,
+                d[:, 2],
+                d[:, 5],
+                env=(d[:, 0], d[:, 1], d[:, 3], d[:, 4]),
+            )
+        else:
+            raise ValueError("polygons cannot be prepared as rectangles")
+        return Prepared("rect", shp in ("upright", "axis3"), rows, empty, boxes)
+    if kind == "poly":
+        if shp == "polygon":
+            verts = d
+        elif shp in ("axis", "rotated"):
+            from obbiou.boxes import corners
+
+            verts = corners(d, shape=shp)
+        else:
+            raise ValueError(f"{shp!r} boxes are 3D and cannot be prepared as polygons")
+        verts, rows = _polygon_rows(np.ascontiguousarray(verts, dtype=np.float64))
+        return Prepared("poly", False, rows, verts, boxes)
+    raise ValueError(f"unknown kind {kind!r}; expected 'axis', 'rect' or 'poly'")
+
+
+def _prepared_pair(a: Boxes | Prepared, b: Boxes | Prepared) -> tuple[Prepared, Prepared]:
+    """Bring ``a`` and ``b`` to one common kind, reusing preparations that already fit."""
+    ba = a.boxes if isinstance(a, Prepared) else a
+    bb = b.boxes if isinstance(b, Prepared) else b
+    kind = _kind_for(ba.shape, bb.shape)
+    pa = a if isinstance(a, Prepared) and a.kind == kind else prepare(ba, kind)
+    pb = b if isinstance(b, Prepared) and b.kind == kind else prepare(bb, kind)
+    return pa, pb
+
+
+def _chunks(n: int) -> int:
+    from numba import get_num_threads
+
+    return int(max(1, min(n, 16 * get_num_threads())))
+
+
+def _matrix(pa: Prepared, pb: Prepared, code: int) -> np.ndarray:
+    n, m = len(pa), len(pb)
+    if n == 0 or m == 0:
+        return np.zeros((n, m))
+    from obbiou._kernels import pairs
+
+    if pa.kind == "axis":
+        return pairs.axis_matrix(pa.rows, pb.rows, code, pa.is_3d)
+    if pa.kind == "rect":
+        return pairs.rect_matrix(pa.rows, pb.rows, code, pa.is_3d)
+    return pairs.poly_matrix(pa.vertices, pa.rows, pb.vertices, pb.rows, code)
+
+
+def _pairs(pa: Prepared, pb: Prepared, first: np.ndarray, second: np.ndarray, code: int):
+    n = first.shape[0]
+    if n == 0:
+        return np.zeros(0)
+    from obbiou._kernels import pairs
+
+    chunks = _chunks(n)
+    if pa.kind == "axis":
+        return pairs.axis_pairs(pa.rows, pb.rows, first, second, code, pa.is_3d, chunks)
+    if pa.kind == "rect":
+        return pairs.rect_pairs(pa.rows, pb.rows, first, second, code, pa.is_3d, chunks)
+    return pairs.poly_pairs(pa.vertices, pa.rows, pb.vertices, pb.rows, first, second, code, chunks)
+
+
+def _index(idx: Any, name: str, limit: int) -> np.ndarray:
+    arr = np.asarray(idx)
+    if arr.ndim != 1 or (arr.size and arr.dtype.kind not in "iu"):
+        raise ValueError(f"{name}: expected a 1-D array of integer indices")
+    arr = np.ascontiguousarray(arr, dtype=np.int64)
+    if arr.size and (arr.min() < 0 or arr.max() >= limit):
+        bad = int(np.argmax((arr < 0) | (arr >= limit)))
+        raise ValueError(f"{name}[{bad}]: index {int(arr[bad])} out of range for {limit} boxes")
+    return arr
+
+
+def pair_values(
+    a: Boxes | Prepared,
+    b: Boxes | Prepared,
+    first: np.ndarray,
+    second: np.ndarray,
+    *,
+    measure: str = "iou",
+) -> np.ndarray:
+    """A measure for listed pairs ``(a[first[k]], b[second[k]])``, in a parallel kernel.
+
+    The building block of scene-scale overlap, suppression and evaluation: the values are
+    bit-for-bit those of the all-pairs matrix entries (same kernel code per pair, same
+    exactness rules).
+
+    Parameters
+    ----------
+    a, b : Boxes or Prepared
+        Boxes already validated by :func:`obbiou.shapes.read_boxes` (or prepared once by
+        :func:`prepare` and reused). Layout mixes as for :func:`iou`.
+    first, second : numpy.ndarray
+        Integer index arrays of equal length into ``a`` and ``b``.
+    measure : str
+        One of ``"iou"``, ``"giou"``, ``"diou"``, ``"intersection"``, ``"coverage"``.
+
+    Returns
+    -------
+    numpy.ndarray
+        float64 values, one per listed pair.
+
+    Raises
+    ------
+    ValueError
+        For an unknown measure, index arrays of unequal length or with indices out of
+        range, or layouts that do not mix (2D with 3D).
+
+    Examples
+    --------
+    >>> a = read_boxes([[0, 0, 2, 2, 0.0], [10, 0, 2, 2, 0.0]])
+    >>> b = read_boxes([[1, 0, 2, 2, 0.0]])
+    >>> pair_values(a, b, np.array([0, 1]), np.array([0, 0]))
+    array([0.33333333, 0.        ])
+    >>> pair_values(a, a, np.array([1]), np.array([1]), measure="giou")  # identical
+    array([1.])
+    >>> pair_values(a, b, np.array([], dtype=np.int64), np.array([], dtype=np.int64))
+    array([], dtype=float64)
+    """
+    if measure not in MEASURES:
+        raise ValueError(f"measure: unknown {measure!r}; expected one of {', '.join(MEASURES)}")
+    pa, pb = _prepared_pair(a, b)
+    first = _index(first, "first", len(pa))
+    second = _index(second, "second", len(pb))
+    if first.shape[0] != second.shape[0]:
+        raise ValueError(
+            f"first and second must have equal lengths: {first.shape[0]} and {second.shape[0]}"
+        )
+    return _pairs(pa, pb, first, second, MEASURES[measure])
+
+
+def _measure(name: str, a: Any, b: Any, shape: str | None, elementwise: bool) -> Any:
+    ba = read_boxes(a, shape, name="a")
+    bb = read_boxes(b, shape, name="b")
+    pa, pb = _prepared_pair(ba, bb)
+    code = MEASURES[name]
+    if elementwise:
+        same_length(ba, bb)
+        idx = np.arange(len(ba), dtype=np.int64)
+        out = _pairs(pa, pb, idx, idx, code)
+        return out[0] if ba.single and bb.single else out
+    out = _matrix(pa, pb, code)
+    if bb.single:
+        out = out[:, 0]
+    if ba.single:
+        out = out[0]
+    return out
+
+
+_PARAMS = """
+    Parameters
+    ----------
+    a, b : array_like
+        Boxes in any layout of :mod:`obbiou.shapes` (lists, numpy arrays of any real dtype,
+        objects with ``__array__``). Angles in radians, counter-clockwise from +x towards +y;
+        ``width`` along the box's own x axis. Layout mixes: see :mod:`obbiou.measures`.
+    shape : str, optional
+        The layout of both ``a`` and ``b``; inferred from the trailing dimensions if None.
+    elementwise : bool
+        False: all pairs, an ``(N, M)`` matrix. True: row ``i`` of ``a`` with row ``i`` of
+        ``b``, ``(N,)`` (``a`` and ``b`` need equal lengths).
+
+    Returns
+    -------
+    numpy.ndarray
+        float64, ``(N, M)`` or ``(N,)``; a single box drops its axis.
+
+    Raises
+    ------
+    ValueError
+        For invalid boxes (argument, row and reason), 2D mixed with 3D boxes, or unequal
+        lengths with ``elementwise=True``.
+"""
+
+
+def iou(a: Any, b: Any, *, shape: str | None = None, elementwise: bool = False) -> Any:
+    """Intersection over union: overlap area (volume in 3D) / area of the union, in [0, 1].
+
+    Zero-size boxes overlap nothing (IoU 0).
+    {params}
+    Examples
+    --------
+    >>> iou([0, 0, 2, 2, 0.0], [1, 0, 2, 2, 0.0])  # shifted by half a side: 2 / 6
+    np.float64(0.3333333333333333)
+    >>> iou([[0, 0, 2, 2], [0, 0, 1, 1]], [[0, 0, 2, 2], [5, 5, 6, 6]])
+    array([[1.  , 0.  ],
+           [0.25, 0.  ]])
+    >>> iou([[0, 0, 2, 2], [5, 5, 6, 6]], [[0, 0, 1, 1], [5, 5, 6, 6]], elementwise=True)
+    array([0.25, 1.  ])
+    >>> iou([0, 0, 0, 4, 2, 1.5, 0.3], [0, 0, 0, 4, 2, 1.5, 0.3])  # identical upright boxes
+    np.float64(1.0)
+    >>> iou(np.zeros((0, 5)), [[0, 0, 1, 1, 0.0]]).shape  # empty input
+    (0, 1)
+    """
+    return _measure("iou", a, b, shape, elementwise)
+
+
+def giou(a: Any, b: Any, *, shape: str | None = None, elementwise: bool = False) -> Any:
+    """Generalized IoU (Rezatofighi et al., CVPR 2019), in [-1, 1].
+
+    ``IoU - (C - U) / C`` with ``U`` the union and ``C`` the enclosing region: the convex
+    hull of both boxes in 2D (also for ``axis`` boxes), the hull of both footprints times
+    the joint z span in 3D. When ``C`` has zero size (degenerate boxes) the penalty is 0.
+    {params}
+    Examples
+    --------
+    >>> giou([0, 0, 1, 1], [2, 0, 3, 1])  # disjoint: hull 3, union 2
+    np.float64(-0.3333333333333333)
+    >>> giou([0, 0, 2, 2, 0.3], [0, 0, 2, 2, 0.3])  # identical
+    np.float64(1.0)
+    """
+    return _measure("giou", a, b, shape, elementwise)
+
+
+def diou(a: Any, b: Any, *, shape: str | None = None, elementwise: bool = False) -> Any:
+    """Distance IoU (Zheng et al., AAAI 2020): ``IoU - d^2 / c^2``, in [-1, 1].
+
+    ``d`` is the distance of the centres (polygon centroids), ``c`` the diagonal of the
+    smallest axis-aligned box enclosing both; in 3D both are taken in 3D.
+    {params}
+    Examples
+    --------
+    >>> diou([0, 0, 1, 1], [2, 0, 3, 1])  # d = 2, c^2 = 3^2 + 1^2
+    np.float64(-0.4)
+    >>> diou([0, 0, 1, 1], [0, 0, 1, 1])
+    np.float64(1.0)
+    """
+    return _measure("diou", a, b, shape, elementwise)
+
+
+def intersection(a: Any, b: Any, *, shape: str | None = None, elementwise: bool = False) -> Any:
+    """Area (volume in 3D) of the overlap of each pair, >= 0.
+    {params}
+    Examples
+    --------
+    >>> intersection([0, 0, 2, 2, 0.0], [0, 0, 2, 2, np.pi / 4]).round(12)  # an octagon
+    np.float64(3.313708498985)
+    >>> intersection([0, 0, 0, 2, 2, 2], [[1, 1, 1, 3, 3, 3], [5, 5, 5, 6, 6, 6]])
+    array([1., 0.])
+    """
+    return _measure("intersection", a, b, shape, elementwise)
+
+
+def coverage(a: Any, b: Any, *, shape: str | None = None, elementwise: bool = False) -> Any:
+    """Share of each box of ``a`` that lies inside the box of ``b``, in [0, 1].
+
+    ``intersection / size(a)``; 0 when ``a`` has zero size. Not symmetric.
+    {params}
+    Examples
+    --------
+    >>> coverage([0, 0, 1, 1], [0, 0, 4, 4])  # a lies inside b
+    np.float64(1.0)
+    >>> coverage([0, 0, 4, 4], [0, 0, 1, 1])
+    np.float64(0.0625)
+    """
+    return _measure("coverage", a, b, shape, elementwise)
+
+
+for _f in (iou, giou, diou, intersection, coverage):
+    _f.__doc__ = _f.__doc__.replace("{params}", _PARAMS)
+del _f
+
+
+def warmup() -> None:
+    """Compile every overlap kernel once (cached on disk for later processes).
+
+    Examples
+    --------
+    >>> warmup()
+    """
+    rect2 = np.array([[0.0, 0.0, 2.0, 1.0, 0.3], [0.5, 0.2, 1.0, 1.0, 0.0]])
+    cases = [
+        np.array([[0.0, 0.0, 1.0, 1.0], [0.5, 0.5, 2.0, 2.0]]),
+        np.array([[0.0, 0.0, 0.0, 1.0, 1.0, 1.0], [0.5, 0.5, 0.5, 2.0, 2.0, 2.0]]),
+        rect2,
+        np.array([[0.0, 0.0, 0.0, 2.0, 1.0, 1.0, 0.3], [0.5, 0.2, 0.1, 1.0, 1.0, 1.0, 0.0]]),
+        np.array([[[0.0, 0.0], [2.0, 0.0], [0.0, 2.0]], [[0.5, 0.5], [3.0, 0.5], [0.5, 3.0]]]),
+    ]
+    idx = np.array([0, 1], dtype=np.int64)
+    for data in cases:
+        boxes = read_boxes(data)
+        p = prepare(boxes)
+        _matrix(p, p, MEASURES["iou"])
+        _pairs(p, p, idx, idx, MEASURES["iou"])
