@@ -29,6 +29,7 @@ BAD_INPUT = 2
 
 _SHAPES = ("axis", "rotated", "polygon", "axis3", "upright")
 _AP_KINDS = ("all-points", "11-point", "101-point", "step")
+_TABLE_SUFFIXES = (".csv", ".parquet", ".pq", ".jsonl", ".ndjson")
 _EXTRAS = {
     "pandas": "eval",
     "pyarrow": "eval",
@@ -185,7 +186,7 @@ def write_table(table: Any, path: Any) -> Path:
     """
     path = Path(path)
     suffix = path.suffix.lower()
-    if suffix not in (".csv", ".parquet", ".pq", ".jsonl", ".ndjson"):
+    if suffix not in _TABLE_SUFFIXES:
         raise ValueError(f"{path}: unknown table format {suffix!r}; use .csv, .parquet or .jsonl")
     if path.parent and not path.parent.exists():
         path.parent.mkdir(parents=True, exist_ok=True)
@@ -198,13 +199,23 @@ def write_table(table: Any, path: Any) -> Path:
     return path
 
 
-def _emit(table: Any, out: str | None) -> None:
-    """Write to ``out`` or, without it, CSV on stdout."""
+def _check_out(out: str | None) -> None:
+    """Reject an output name of unknown format before any work is done."""
+    if out is not None and out != "-" and Path(out).suffix.lower() not in _TABLE_SUFFIXES:
+        raise _Failure(
+            f"--out {out}: unknown table format {Path(out).suffix or '(no suffix)'!r}; "
+            "use .csv, .parquet or .jsonl"
+        )
+
+
+def _emit(table: Any, out: str | None, note: str) -> None:
+    """Write to ``out`` or, without it, CSV on stdout; then say what was done on stderr."""
     if out is None or out == "-":
         table.to_csv(sys.stdout, index=False, float_format="%.17g")
+        print(note, file=sys.stderr)
     else:
         write_table(table, out)
-        print(f"wrote {len(table)} rows to {out}", file=sys.stderr)
+        print(f"{note}; wrote {out}", file=sys.stderr)
 
 
 def _table_frame(table: Any) -> Any:
@@ -345,6 +356,7 @@ def _cmd_suppress(args: argparse.Namespace) -> int:
     import obbiou
     from obbiou.evaluation.tables import read_table
 
+    _check_out(args.out)
     table = read_table(args.boxes, role="detections", shape=args.shape, degrees=args.degrees)
     if not 0.0 <= args.max_iou <= 1.0:
         raise _Failure(f"--max-iou: expected a number in [0, 1], got {args.max_iou}")
@@ -370,8 +382,7 @@ def _cmd_suppress(args: argparse.Namespace) -> int:
     out["score"] = np.concatenate(scores) if scores else np.zeros(0)
     if args.degrees:
         _to_degrees(out, table.shape)
-    print(f"kept {len(out)} of {len(table)} boxes in {len(keep)} frames", file=sys.stderr)
-    _emit(out, args.out)
+    _emit(out, args.out, f"kept {len(out)} of {len(table)} boxes in {len(keep)} frames")
     return 0
 
 
@@ -390,6 +401,7 @@ def _cmd_overlap(args: argparse.Namespace) -> int:
     import obbiou
     from obbiou.evaluation.tables import read_table
 
+    _check_out(args.out)
     role = "truth"  # frame, label and boxes; a score column, if any, passes through
     a = read_table(args.first, role=role, shape=args.shape, degrees=args.degrees)
     b = (
@@ -434,8 +446,7 @@ def _cmd_overlap(args: argparse.Namespace) -> int:
         )
     columns = ["frame", "first", "second", "first_label", "second_label", "iou"]
     out = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=columns)
-    print(f"found {len(out)} overlapping pairs", file=sys.stderr)
-    _emit(out, args.out)
+    _emit(out, args.out, f"found {len(out)} overlapping pairs")
     return 0
 
 
