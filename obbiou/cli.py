@@ -411,10 +411,10 @@ def _cmd_overlap(args: argparse.Namespace) -> int:
     )
     if not 0.0 <= args.min_iou < 1.0:
         raise _Failure(f"--min-iou: expected a number in [0, 1), got {args.min_iou}")
-    b_rows = {}
+    b_rows = {}  # frames matched by their text, so 7 in one table meets "7" in the other
     if b is not a:
         for rows in _groups(b.frame):
-            b_rows[b.frame[rows[0]]] = rows
+            b_rows[str(b.frame[rows[0]])] = rows
     parts = []
     for rows in _progress(_groups(a.frame), args, "overlap"):
         frame = a.frame[rows[0]]
@@ -424,7 +424,7 @@ def _cmd_overlap(args: argparse.Namespace) -> int:
             )
             other = rows
         else:
-            other = b_rows.get(frame)
+            other = b_rows.get(str(frame))
             if other is None:
                 continue
             pairs = obbiou.overlapping_pairs(

@@ -166,6 +166,25 @@ def draw_scene(
         lines(d_tick, d_status == "matched", colors=amber, linewidths=thin)
         lines(d_tick, d_status == "false positive", colors=magenta, linewidths=thin)
 
+    # Name the less common objects (vessels, cranes; forklifts, people) beside their truth.
+    if len(truth):
+        labels = truth["label"].astype(str).to_numpy()
+        values, freq = np.unique(labels, return_counts=True)
+        common = values[np.argmax(freq)]
+        x0, y0, x1, y1 = window or scenario.extent
+        for poly, lab, st in zip(t_out, labels, t_status, strict=True):
+            cx, cy = poly[:4].mean(axis=0)
+            if lab == common or st == "ignore" or not (x0 <= cx <= x1 and y0 <= cy <= y1):
+                continue
+            ax.annotate(
+                lab,
+                (cx, cy),
+                fontsize=7,
+                color=navy,
+                ha="center",
+                va="center",
+                bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.7},
+            )
     counts = {k: int((t_status == k).sum()) for k in ("matched", "missed", "ignore")}
     dcounts = {k: int((d_status == k).sum()) for k in ("matched", "false positive", "ignored")}
     handles = [
