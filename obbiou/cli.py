@@ -191,7 +191,7 @@ def write_table(table: Any, path: Any) -> Path:
     if path.parent and not path.parent.exists():
         path.parent.mkdir(parents=True, exist_ok=True)
     if suffix == ".csv":
-        table.to_csv(path, index=False, float_format="%.17g")
+        table.to_csv(path, index=False)  # shortest text that reads back to the same float
     elif suffix in (".parquet", ".pq"):
         table.to_parquet(path, index=False)
     else:
@@ -211,7 +211,7 @@ def _check_out(out: str | None) -> None:
 def _emit(table: Any, out: str | None, note: str) -> None:
     """Write to ``out`` or, without it, CSV on stdout; then say what was done on stderr."""
     if out is None or out == "-":
-        table.to_csv(sys.stdout, index=False, float_format="%.17g")
+        table.to_csv(sys.stdout, index=False)
         print(note, file=sys.stderr)
     else:
         write_table(table, out)
@@ -228,7 +228,7 @@ def _table_frame(table: Any) -> Any:
     data = table.boxes.data
     k = data.shape[1] if table.shape == "polygon" else 0
     cols = box_columns(table.shape, k) if table.shape == "polygon" else box_columns(table.shape)
-    flat = data.reshape(len(data), -1)
+    flat = data.reshape(data.shape[0], int(np.prod(data.shape[1:])))
     out = {"frame": table.frame, "label": table.label}
     if table.score is not None:
         out["score"] = table.score
@@ -357,7 +357,10 @@ def _cmd_suppress(args: argparse.Namespace) -> int:
     from obbiou.evaluation.tables import read_table
 
     _check_out(args.out)
-    table = read_table(args.boxes, role="detections", shape=args.shape, degrees=args.degrees)
+    # Read the numbers as written (the kept rows are written back unchanged) and turn degrees
+    # into radians only for the computation.
+    table = read_table(args.boxes, role="detections", shape=args.shape)
+    boxes = _radians(table, args.degrees)
     if not 0.0 <= args.max_iou <= 1.0:
         raise _Failure(f"--max-iou: expected a number in [0, 1], got {args.max_iou}")
     keep: list[np.ndarray] = []
@@ -365,7 +368,7 @@ def _cmd_suppress(args: argparse.Namespace) -> int:
     for rows in _progress(_groups(table.frame), args, "suppress"):
         labels = None if args.across_labels else table.label[rows]
         kept = obbiou.suppress(
-            table.boxes.data[rows],
+            boxes[rows],
             table.score[rows],
             shape=table.shape,
             max_iou=args.max_iou,
@@ -380,18 +383,21 @@ def _cmd_suppress(args: argparse.Namespace) -> int:
     idx = np.concatenate(keep) if keep else np.zeros(0, dtype=np.int64)
     out = _table_frame(table.take(idx))
     out["score"] = np.concatenate(scores) if scores else np.zeros(0)
-    if args.degrees:
-        _to_degrees(out, table.shape)
     _emit(out, args.out, f"kept {len(out)} of {len(table)} boxes in {len(keep)} frames")
     return 0
 
 
-def _to_degrees(table: Any, shape: str) -> None:
+def _radians(table: Any, degrees: bool) -> Any:
+    """The table's boxes with the angle / yaw column in radians."""
     import numpy as np
 
-    col = {"rotated": "angle", "upright": "yaw"}.get(shape)
-    if col:
-        table[col] = np.rad2deg(table[col].to_numpy())
+    col = {"rotated": 4, "upright": 6}.get(table.shape)
+    data = table.boxes.data
+    if not degrees or col is None:
+        return data
+    data = data.copy()
+    data[:, col] = np.deg2rad(data[:, col])
+    return data
 
 
 def _cmd_overlap(args: argparse.Namespace) -> int:
@@ -411,6 +417,7 @@ def _cmd_overlap(args: argparse.Namespace) -> int:
     )
     if not 0.0 <= args.min_iou < 1.0:
         raise _Failure(f"--min-iou: expected a number in [0, 1), got {args.min_iou}")
+    shape = a.shape if a.shape == b.shape else None  # mixed layouts: each inferred
     b_rows = {}  # frames matched by their text, so 7 in one table meets "7" in the other
     if b is not a:
         for rows in _groups(b.frame):
@@ -428,7 +435,7 @@ def _cmd_overlap(args: argparse.Namespace) -> int:
             if other is None:
                 continue
             pairs = obbiou.overlapping_pairs(
-                a.boxes.data[rows], b.boxes.data[other], shape=a.shape, min_iou=args.min_iou
+                a.boxes.data[rows], b.boxes.data[other], shape=shape, min_iou=args.min_iou
             )
         first = rows[np.asarray(pairs.first, dtype=np.int64)]
         second = other[np.asarray(pairs.second, dtype=np.int64)]

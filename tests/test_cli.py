@@ -319,6 +319,31 @@ def test_suppress_equals_library_and_the_rule_holds_by_shapely(tmp_path):
 
 
 @needs_library
+@needs_library
+def test_suppress_degrees_and_empty(tmp_path):
+    # Angles in degrees: suppression sees radians, the kept rows are written as they came.
+    raw = random_detections(11, frames=1, n=12)
+    in_degrees = raw.assign(angle=np.rad2deg(raw.angle).round(3))
+    src, out = tmp_path / "deg.csv", tmp_path / "kept.csv"
+    in_degrees.to_csv(src, index=False)
+    proc = run("suppress", str(src), "--degrees", "--out", str(out), "-q")
+    assert proc.returncode == 0, proc.stderr
+    kept = pd.read_csv(out)
+    # The same boxes given in radians keep the same rows.
+    rad, kept_rad = tmp_path / "rad.csv", tmp_path / "kept_rad.csv"
+    in_degrees.assign(angle=np.deg2rad(in_degrees.angle)).to_csv(rad, index=False)
+    proc = run("suppress", str(rad), "--out", str(kept_rad), "-q")
+    assert proc.returncode == 0, proc.stderr
+    assert list(pd.read_csv(kept_rad).note) == list(kept.note)
+    # And the degrees are written back exactly as they were read.
+    as_read = in_degrees.set_index("note").loc[kept.note, "angle"].to_numpy()
+    np.testing.assert_array_equal(kept.angle, as_read)
+    empty = tmp_path / "empty.csv"
+    raw.iloc[:0].to_csv(empty, index=False)
+    proc = run("suppress", str(empty), "-q")
+    assert proc.returncode == 0 and proc.stdout.strip() == ",".join(raw.columns)
+
+
 def test_suppress_soft_to_parquet(tmp_path):
     import obbiou
 
@@ -403,7 +428,7 @@ def test_overlap_to_stdout(hand_files):
     lines = proc.stdout.strip().splitlines()
     assert lines[0] == "frame,first,second,first_label,second_label,iou"
     assert len(lines) == 4  # each of the three truths with itself, IoU 1
-    assert all(line.endswith(",1") for line in lines[1:])
+    assert all(float(line.rsplit(",", 1)[1]) == 1.0 for line in lines[1:])
 
 
 # -- bad input ---------------------------------------------------------------------------------
