@@ -20,6 +20,7 @@ All data is invented. Detection metrics do not establish that a vehicle or robot
 from __future__ import annotations
 
 import json
+import textwrap
 import time
 from collections.abc import Callable
 from pathlib import Path
@@ -339,7 +340,7 @@ def _header(seed: int) -> list[str]:
         f"from seed {seed} by obbiou.demo.scenarios. No real port, warehouse or detector was",
         "measured; the numbers show what the tools report, not how good any real system is.",
         "",
-        "CAUTION: " + CAUTION,
+        textwrap.fill("CAUTION: " + CAUTION, 88),
         rule,
     ]
 
@@ -375,8 +376,8 @@ def _section(
         f"frames: {len(scenario.frames)}; coordinates: {scenario.units}",
         f"truths: {counts} ({int(t.ignore.sum())} marked ignore)",
         "simulated detector, raw -> after suppression "
-        f"(IoU > {cfg['max_iou']:g}, per frame and label): "
-        + "; ".join(f"{v} {raw_n[v]} -> {kept_n[v]}" for v in VERSIONS),
+        f"(IoU > {cfg['max_iou']:g}, per frame and label):",
+        "  " + "; ".join(f"{v} {raw_n[v]} -> {kept_n[v]}" for v in VERSIONS),
         "",
         "Evaluation of the improved detector:",
         ev.summary(),
@@ -419,6 +420,6 @@ def _footer(out: Path, files: dict[str, Path]) -> list[str]:
         f"{out}/warehouse/improved.csv --iou 0.5",
         f"  obbiou suppress {out}/harbour/raw_improved.csv --max-iou 0.5 --out kept.csv",
         "",
-        "Reminder: the data is invented. " + CAUTION,
+        textwrap.fill("Reminder: the data is invented. " + CAUTION, 88),
     ]
     return lines
