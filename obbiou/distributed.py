@@ -32,6 +32,7 @@ function runs.
 from __future__ import annotations
 
 import os
+import warnings
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, replace
@@ -125,17 +126,17 @@ def connect(
             yield made
         return
     if workers:
-        with (
-            distributed.LocalCluster(
+        with warnings.catch_warnings():  # another local cluster's HTTP port is not news
+            warnings.filterwarnings("ignore", message="Port .* is already in use")
+            cluster = distributed.LocalCluster(
                 n_workers=int(workers),
                 threads_per_worker=1,
                 processes=True,
                 host="127.0.0.1",
                 dashboard_address=None,
                 env=_ONE_THREAD,
-            ) as cluster,
-            distributed.Client(cluster) as made,
-        ):
+            )
+        with cluster, distributed.Client(cluster) as made:
             yield made
         return
     try:
@@ -327,9 +328,6 @@ def _wait(
 # --------------------------------------------------------------------------------------------
 # Distributed evaluation: frames to buckets, match on the workers, reduce here
 
-#: Options of ``evaluate`` that belong to the map step (matching); the others go to the reduce.
-_MATCH_OPTIONS = ("max_detections",)
-
 
 def _frame_buckets(frame: np.ndarray, n_buckets: int) -> np.ndarray:
     """Bucket of each frame id, the same in every process and for either table.
@@ -411,16 +409,21 @@ def evaluate_distributed(
     truth: Any,
     detections: Any,
     *,
+    shape: str | None = None,
+    iou: Any = 0.5,
+    ap: str = "all-points",
+    recall_points: int | None = None,
+    max_detections: int | None = None,
+    size_buckets: Any = None,
+    range_buckets: Any = None,
+    degrees: bool = False,
+    progress: bool = False,
+    localisation_floor: float = 0.1,
     client: Any = None,
     scheduler: str | None = None,
     workers: int | None = None,
     buckets: int | None = None,
-    progress: bool = False,
     timeout: float | None = None,
-    shape: str | None = None,
-    degrees: bool = False,
-    iou: Any = 0.5,
-    **evaluate_options: Any,
 ) -> Any:
     """Evaluate detections against ground truth with the matching on a Dask cluster.
 
@@ -445,16 +448,18 @@ def evaluate_distributed(
         ``label``, ``score`` for detections, optional ``ignore`` for truth, and the box
         columns of one layout). A folder is read as a Parquet dataset (every worker must see
         the same path); a single file or an in-memory table is cut into pieces here.
+    shape, iou, ap, recall_points, max_detections, size_buckets, range_buckets : optional
+        As for :func:`obbiou.evaluation.evaluate` (the protocol is written out there).
+    degrees, localisation_floor : optional
+        As for :func:`obbiou.evaluation.evaluate` (the protocol is written out there).
+    progress : bool
+        Show a progress bar (tqdm, on stderr) per stage: reading, matching.
     client, scheduler, workers
         Where the work runs; see :func:`connect`.
     buckets : int, optional
-        Number of frame buckets (map tasks); default four per worker thread.
-    progress : bool
-        Show a progress bar (tqdm, on stderr) per stage.
+        Number of frame buckets (matching tasks); default four per worker thread.
     timeout : float, optional
         Give up (``TimeoutError``) when a stage takes longer than this many seconds.
-    shape, degrees, iou, **evaluate_options
-        As for :func:`obbiou.evaluation.evaluate`.
 
     Returns
     -------
@@ -470,12 +475,33 @@ def evaluate_distributed(
         naming the partition or bucket.
     TimeoutError
         A stage that did not finish within ``timeout`` seconds.
+
+    Examples
+    --------
+    Two frames of an invented harbour survey: one vessel matched, one missed. With no
+    cluster given, an in-process one is started for the call; the numbers equal the
+    in-process evaluation's.
+
+    >>> from obbiou.evaluation import evaluate  # doctest: +SKIP
+    >>> truth = {"frame": [1, 2], "label": ["vessel"] * 2, "cx": [10.0, 40.0],
+    ...          "cy": [5.0, 8.0], "width": [12.0, 9.0], "height": [4.0, 3.0],
+    ...          "angle": [0.3, -1.2]}
+    >>> dets = {"frame": [1, 2], "label": ["vessel"] * 2, "score": [0.9, 0.6],
+    ...         "cx": [10.4, 70.0], "cy": [5.2, 8.0], "width": [11.0, 9.0],
+    ...         "height": [4.0, 3.0], "angle": [0.32, -1.2]}
+    >>> ev = evaluate_distributed(truth, dets, iou=0.5)  # doctest: +SKIP
+    >>> ev.counts("vessel", 0.5)[:4], ev.ap("vessel", 0.5)  # doctest: +SKIP
+    ((1, 1, 0, 1), 0.5)
+    >>> ev.to_dict() == evaluate(truth, dets, iou=0.5).to_dict()  # doctest: +SKIP
+    True
     """
     from obbiou.evaluation import reduce_records
-    from obbiou.evaluation.matching import MatchRecords, parse_thresholds
+    from obbiou.evaluation.matching import parse_thresholds
 
-    thresholds = parse_thresholds(iou)  # bad thresholds fail here, before any work
-    match_options = {k: evaluate_options.pop(k) for k in _MATCH_OPTIONS if k in evaluate_options}
+    if iou is None:
+        raise ValueError("iou: give a threshold, e.g. 0.5")
+    thresholds = parse_thresholds(iou)  # bad options fail here, before any work is sent
+    match_options = {"max_detections": max_detections}
     with connect(client=client, scheduler=scheduler, workers=workers) as cl:
         threads = _threads(cl)
         n_buckets = int(buckets) if buckets is not None else 4 * threads
@@ -528,7 +554,17 @@ def evaluate_distributed(
             )
         finally:
             _release(held)
-    return reduce_records(MatchRecords.concat(records), **evaluate_options)
+    # The same reduce call as obbiou.evaluation.evaluate makes, on the same records.
+    return reduce_records(
+        records,
+        iou=thresholds,
+        ap=ap,
+        recall_points=recall_points,
+        size_buckets=size_buckets,
+        range_buckets=range_buckets,
+        localisation_floor=localisation_floor,
+        options={"max_detections": max_detections, "degrees": degrees},
+    )
 
 
 # --------------------------------------------------------------------------------------------

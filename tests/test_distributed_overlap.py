@@ -29,6 +29,9 @@ COLUMNS = ["cx", "cy", "width", "height", "angle"]
 def client():
     from distributed import Client, LocalCluster
 
+    # Compile the kernels once here (numba caches them on disk) so that the worker processes
+    # load them instead of each compiling the same code at the same time.
+    overlapping_pairs(synthetic_scene(50, seed=0))
     with (
         LocalCluster(
             n_workers=2,
