@@ -276,7 +276,9 @@ def _submit_parts(client: Any, source: _Source) -> list[Any]:
     delayed = [p for p in source.parts if isinstance(p, Delayed)]
     computed = iter(client.compute(delayed)) if delayed else iter(())
     for part in source.parts:
-        futures.append(next(computed) if isinstance(part, Delayed) else client.scatter(part))
+        futures.append(
+            next(computed) if isinstance(part, Delayed) else client.scatter(part, hash=False)
+        )
     return futures
 
 
@@ -457,7 +459,7 @@ def evaluate_distributed(
     client, scheduler, workers
         Where the work runs; see :func:`connect`.
     buckets : int, optional
-        Number of frame buckets (matching tasks); default four per worker thread.
+        Number of frame buckets (matching tasks); default two per worker thread.
     timeout : float, optional
         Give up (``TimeoutError``) when a stage takes longer than this many seconds.
 
@@ -504,7 +506,7 @@ def evaluate_distributed(
     match_options = {"max_detections": max_detections}
     with connect(client=client, scheduler=scheduler, workers=workers) as cl:
         threads = _threads(cl)
-        n_buckets = int(buckets) if buckets is not None else 4 * threads
+        n_buckets = int(buckets) if buckets is not None else 2 * threads
         if n_buckets < 1:
             raise ValueError(f"buckets: expected a positive integer, got {buckets!r}")
         roles = {"truth": truth, "detections": detections}
