@@ -4,8 +4,8 @@ Boxes arrive *prepared* (see ``obbiou.measures.prepare``), one row per box, in o
 kinds:
 
 * ``axis``  rows ``x0, y0, x1, y1, z0, z1, size`` (2D boxes ignore the z columns);
-* ``rect``  rows ``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1, size``
-  (rotated rectangles; upright 3D boxes add a z interval);
+* ``rect``  rows ``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1, size,
+  1/hw, 1/hh`` (rotated rectangles; upright 3D boxes add a z interval);
 * ``poly``  counter-clockwise vertices ``(N, K, 2)`` plus rows
   ``area, xmin, ymin, xmax, ymax, gx, gy`` (``g`` the centroid).
 
@@ -21,6 +21,7 @@ import numpy as np
 from numba import njit, prange
 
 from obbiou._kernels.clip import clip_axis, clip_line, hull_area, shoelace
+from obbiou._kernels.geometry import rect_row
 
 # Measure codes (the public layer maps names to these).
 INTERSECTION = 0
@@ -34,7 +35,8 @@ AX_X0, AX_Y0, AX_X1, AX_Y1, AX_Z0, AX_Z1, AX_SIZE = 0, 1, 2, 3, 4, 5, 6
 AXIS_COLUMNS = 7
 R_CX, R_CY, R_HW, R_HH, R_C, R_S, R_AREA = 0, 1, 2, 3, 4, 5, 6
 R_XMIN, R_YMIN, R_XMAX, R_YMAX, R_Z0, R_Z1, R_SIZE = 7, 8, 9, 10, 11, 12, 13
-RECT_COLUMNS = 14
+R_IHW, R_IHH = 14, 15  # reciprocals of the half sizes (inf for zero sizes)
+RECT_COLUMNS = 16
 P_AREA, P_XMIN, P_YMIN, P_XMAX, P_YMAX, P_GX, P_GY = 0, 1, 2, 3, 4, 5, 6
 POLY_COLUMNS = 7
 
@@ -191,12 +193,37 @@ def relative(P, p, Q, q):
 
 
 @njit(cache=True)
+def span_inside(x0, y0, rx, ry, hx, hy):
+    """Length share of segment (x0, y0) + t d, t in [0, 1], inside |x| <= hx, |y| <= hy.
+
+    ``rx, ry`` are 1/dx, 1/dy (both finite and non-zero). Liang & Barsky's parametric
+    clipping (1984), branch-free.
+    """
+    ta = (-hx - x0) * rx
+    tb = (hx - x0) * rx
+    tc = (-hy - y0) * ry
+    td = (hy - y0) * ry
+    lo = max(0.0, max(min(ta, tb), min(tc, td)))
+    hi = min(1.0, min(max(ta, tb), max(tc, td)))
+    return max(hi - lo, 0.0)
+
+
+# Below this |cos| or |sin| of the angle between two rectangles, edges are near parallel:
+# where an edge of one crosses the other is then ill-conditioned, and the boundary sum below
+# could count a stretch of a shared edge twice, so such pairs are clipped polygon-wise.
+NEAR_PARALLEL = 1.0 / 64.0
+
+
+@njit(cache=True)
 def rect_inter(P, p, Q, q, buf):
     """Intersection area of rectangles P[p] and Q[q], computed in P's own frame.
 
-    There P is the axis-aligned rectangle [-hw, hw] x [-hh, hh], so each clip step compares
-    with a constant. Separating-axis tests on both boxes' axes give exact 0 for disjoint
-    pairs and exact sizes for nested ones before any clipping.
+    There P is the axis-aligned rectangle [-hw, hw] x [-hh, hh]. Separating-axis tests on
+    both boxes' axes give exact 0 for disjoint pairs and exact sizes for nested ones. Other
+    pairs: the area is the boundary integral (1/2) * closed integral of (x dy - y dx) over
+    the boundary of the intersection, made of the parts of Q's edges inside P and of P's
+    edges inside Q, each found by parametric clipping against the other box in that box's
+    own frame. Near-parallel pairs are clipped polygon-wise (Sutherland-Hodgman) instead.
     """
     phw = P[p, R_HW]
     phh = P[p, R_HH]
@@ -216,14 +243,64 @@ def rect_inter(P, p, Q, q, buf):
     if apx + ex <= phw and apy + ey <= phh:
         return Q[q, R_AREA]
     # P's centre in Q's frame, and P's half extents along Q's axes.
-    qx = abs(c * px + s * py)
-    qy = abs(c * py - s * px)
+    mx = -(c * px + s * py)
+    my = s * px - c * py
     fx = abs(c) * phw + abs(s) * phh
     fy = abs(s) * phw + abs(c) * phh
-    if qx - fx >= qhw or qy - fy >= qhh:
+    if abs(mx) - fx >= qhw or abs(my) - fy >= qhh:
         return 0.0
-    if qx + fx <= qhw and qy + fy <= qhh:
+    if abs(mx) + fx <= qhw and abs(my) + fy <= qhh:
         return P[p, R_AREA]
+    if abs(c) < NEAR_PARALLEL or abs(s) < NEAR_PARALLEL:
+        return rect_clip(phw, phh, px, py, ux, uy, vx, vy, P[p, R_AREA], Q[q, R_AREA], buf)
+    ic = 0.5 / c
+    is_ = 0.5 / s
+    # Q's corners in P's frame; its edges run along 2u, 2v, -2u, -2v.
+    x0 = px - ux - vx
+    y0 = py - uy - vy
+    x1 = px + ux - vx
+    y1 = py + uy - vy
+    x2 = px + ux + vx
+    y2 = py + uy + vy
+    x3 = px - ux + vx
+    y3 = py - uy + vy
+    rux = ic * Q[q, R_IHW]
+    ruy = is_ * Q[q, R_IHW]
+    rvx = -is_ * Q[q, R_IHH]
+    rvy = ic * Q[q, R_IHH]
+    # Each edge k -> k + d adds t_inside * cross(k, d); d = 2u etc., the 2 cancels the 1/2.
+    sq = span_inside(x0, y0, rux, ruy, phw, phh) * (x0 * uy - y0 * ux)
+    sq += span_inside(x1, y1, rvx, rvy, phw, phh) * (x1 * vy - y1 * vx)
+    sq -= span_inside(x2, y2, -rux, -ruy, phw, phh) * (x2 * uy - y2 * ux)
+    sq -= span_inside(x3, y3, -rvx, -rvy, phw, phh) * (x3 * vy - y3 * vx)
+    # P's corners in Q's frame; in P's frame every edge of P adds t_inside * 2 hw hh.
+    ax = c * phw
+    ay = -s * phw
+    bx = s * phh
+    by = c * phh
+    rax = ic * P[p, R_IHW]
+    ray = -is_ * P[p, R_IHW]
+    rbx = is_ * P[p, R_IHH]
+    rby = ic * P[p, R_IHH]
+    x0 = mx - ax - bx
+    y0 = my - ay - by
+    x1 = mx + ax - bx
+    y1 = my + ay - by
+    x2 = mx + ax + bx
+    y2 = my + ay + by
+    x3 = mx - ax + bx
+    y3 = my - ay + by
+    sp = span_inside(x0, y0, rax, ray, qhw, qhh)
+    sp += span_inside(x1, y1, rbx, rby, qhw, qhh)
+    sp += span_inside(x2, y2, -rax, -ray, qhw, qhh)
+    sp += span_inside(x3, y3, -rbx, -rby, qhw, qhh)
+    area = sq + phw * phh * sp
+    return min(max(area, 0.0), P[p, R_AREA], Q[q, R_AREA])
+
+
+@njit(cache=True)
+def rect_clip(phw, phh, px, py, ux, uy, vx, vy, parea, qarea, buf):
+    """Clip rectangle Q (centre p, half axes u, v, in P's frame) to P = [-phw, phw] x ..."""
     x1 = buf[0]
     y1 = buf[1]
     x2 = buf[2]
@@ -242,7 +319,7 @@ def rect_inter(P, p, Q, q, buf):
     n = clip_axis(y1, x1, n, y2, x2, 1.0, phh)
     n = clip_axis(y2, x2, n, y1, x1, -1.0, phh)
     area = shoelace(x1, y1, n)
-    return min(max(area, 0.0), P[p, R_AREA], Q[q, R_AREA])
+    return min(max(area, 0.0), parea, qarea)
 
 
 @njit(cache=True)
@@ -490,6 +567,24 @@ def rect_pairs(A, B, first, second, measure, is3d, chunks):
         buf = np.empty((4, RECT_SCRATCH))
         for k in range(c * step, min(n, (c + 1) * step)):
             out[k] = rect_pair(A, first[k], B, second[k], measure, is3d, buf)
+    return out
+
+
+@njit(cache=True, parallel=True)
+def rect_elementwise(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
+    """Row k of a with row k of b, straight from the box data: the per-box rows are built
+    in scratch (the same code as ``rect_rows``), so no (N, 16) arrays are materialised."""
+    n = Da.shape[0]
+    out = np.empty(n)
+    step = (n + chunks - 1) // chunks
+    for c in prange(chunks):
+        buf = np.empty((4, RECT_SCRATCH))
+        ra = np.empty((1, RECT_COLUMNS))
+        rb = np.empty((1, RECT_COLUMNS))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            rect_row(Da, k, la, ca, sa, ra[0])
+            rect_row(Db, k, lb, cb, sb, rb[0])
+            out[k] = rect_pair(ra, 0, rb, 0, measure, is3d, buf)
     return out
 
 
