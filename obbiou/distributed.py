@@ -484,17 +484,17 @@ def evaluate_distributed(
     cluster given, an in-process one is started for the call; the numbers equal the
     in-process evaluation's.
 
-    >>> from obbiou.evaluation import evaluate  # doctest: +SKIP
+    >>> from obbiou.evaluation import evaluate
     >>> truth = {"frame": [1, 2], "label": ["vessel"] * 2, "cx": [10.0, 40.0],
     ...          "cy": [5.0, 8.0], "width": [12.0, 9.0], "height": [4.0, 3.0],
     ...          "angle": [0.3, -1.2]}
     >>> dets = {"frame": [1, 2], "label": ["vessel"] * 2, "score": [0.9, 0.6],
     ...         "cx": [10.4, 70.0], "cy": [5.2, 8.0], "width": [11.0, 9.0],
     ...         "height": [4.0, 3.0], "angle": [0.32, -1.2]}
-    >>> ev = evaluate_distributed(truth, dets, iou=0.5)  # doctest: +SKIP
-    >>> ev.counts("vessel", 0.5)[:4], ev.ap("vessel", 0.5)  # doctest: +SKIP
+    >>> ev = evaluate_distributed(truth, dets, iou=0.5)
+    >>> ev.counts("vessel", 0.5)[:4], ev.ap("vessel", 0.5)
     ((1, 1, 0, 1), 0.5)
-    >>> ev.to_dict() == evaluate(truth, dets, iou=0.5).to_dict()  # doctest: +SKIP
+    >>> ev.to_dict() == evaluate(truth, dets, iou=0.5).to_dict()
     True
     """
     from obbiou.evaluation import reduce_records
@@ -841,13 +841,13 @@ def overlapping_pairs_distributed(
 
     >>> import numpy as np
     >>> boxes = np.array([[0, 0, 2, 2, 0.0], [1, 0, 2, 2, 0.0], [50, 50, 1, 1, 0.3]])
-    >>> pairs = overlapping_pairs_distributed(boxes, tiles=(2, 2))  # doctest: +SKIP
-    >>> pairs.first, pairs.second, pairs.iou.round(4)  # doctest: +SKIP
+    >>> pairs = overlapping_pairs_distributed(boxes, tiles=(2, 2))
+    >>> pairs.first, pairs.second, pairs.iou.round(4)
     (array([0]), array([1]), array([0.3333]))
 
     Empty input gives empty pairs:
 
-    >>> len(overlapping_pairs_distributed(np.zeros((0, 5))).first)  # doctest: +SKIP
+    >>> len(overlapping_pairs_distributed(np.zeros((0, 5))).first)
     0
     """
     from obbiou.scene import Pairs
