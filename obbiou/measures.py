@@ -49,6 +49,7 @@ __all__ = [
 MEASURES: dict[str, int] = {"intersection": 0, "iou": 1, "giou": 2, "diou": 3, "coverage": 4}
 
 _2D = ("axis", "rotated", "polygon")
+_LAYOUT_CODES = {"axis": 0, "rotated": 1, "axis3": 2, "upright": 3}
 
 
 @dataclass(frozen=True)
@@ -91,24 +92,6 @@ def _natural_kind(shape: str) -> str:
     )
 
 
-def _rect_rows(cx, cy, w, h, c, s, z0, z1, env=None) -> np.ndarray:
-    n = cx.shape[0]
-    rows = np.zeros((n, 14))
-    hw, hh = 0.5 * w, 0.5 * h
-    rows[:, 0], rows[:, 1], rows[:, 2], rows[:, 3] = cx, cy, hw, hh
-    rows[:, 4], rows[:, 5] = c, s
-    area = w * h
-    rows[:, 6] = area
-    if env is None:
-        ex = np.abs(c) * hw + np.abs(s) * hh
-        ey = np.abs(s) * hw + np.abs(c) * hh
-        env = (cx - ex, cy - ey, cx + ex, cy + ey)
-    rows[:, 7], rows[:, 8], rows[:, 9], rows[:, 10] = env
-    rows[:, 11], rows[:, 12] = z0, z1
-    rows[:, 13] = area * (z1 - z0) if z0 is not None and np.ndim(z0) else area
-    return rows
-
-
 def _polygon_rows(vertices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Counter-clockwise vertices and rows (area, extent, centroid) of convex polygons."""
     origin = vertices[:, :1, :]
@@ -137,6 +120,14 @@ def _polygon_rows(vertices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return np.ascontiguousarray(vertices), rows
 
 
+def _directions(boxes: Boxes) -> tuple[np.ndarray, np.ndarray]:
+    """cos and sin of each box's angle (one place, so every path sees the same bits)."""
+    if boxes.shape in ("axis", "axis3"):
+        return np.ones(len(boxes)), np.zeros(len(boxes))
+    angle = boxes.data[:, 4 if boxes.shape == "rotated" else 6]
+    return np.cos(angle), np.sin(angle)
+
+
 def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
     """Precompute per-box data (frame, cos/sin, size, extent) for :func:`pair_values`.
 
@@ -162,67 +153,21 @@ def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
     d = boxes.data
     shp = boxes.shape
     empty = np.zeros((0, 0, 2))
-    if kind == "axis":
-        rows = np.zeros((d.shape[0], 7))
-        if shp == "axis":
-            rows[:, :4] = d
-            rows[:, 6] = (d[:, 2] - d[:, 0]) * (d[:, 3] - d[:, 1])
-        elif shp == "axis3":
-            rows[:, :2], rows[:, 2:4], rows[:, 4], rows[:, 5] = (
-                d[:, :2],
-                d[:, 3:5],
-                d[:, 2],
-                d[:, 5],
+    if kind in ("axis", "rect"):
+        layout = _LAYOUT_CODES.get(shp)
+        if layout is None or (kind == "axis" and shp not in ("axis", "axis3")):
+            raise ValueError(f"{shp!r} boxes cannot be prepared as {kind!r}")
+        if len(d) == 0:
+            return Prepared(
+                kind, boxes.is_3d, np.zeros((0, 7 if kind == "axis" else 16)), empty, boxes
             )
-            rows[:, 6] = (d[:, 3] - d[:, 0]) * (d[:, 4] - d[:, 1]) * (d[:, 5] - d[:, 2])
-        else:
-            raise ValueError(f"{shp!r} boxes cannot be prepared as axis-aligned boxes")
-        return Prepared("axis", shp == "axis3", rows, empty, boxes)
-    if kind == "rect":
-        n = d.shape[0]
-        one, zero = np.ones(n), np.zeros(n)
-        if shp == "rotated":
-            rows = _rect_rows(
-                d[:, 0], d[:, 1], d[:, 2], d[:, 3], np.cos(d[:, 4]), np.sin(d[:, 4]), 0.0, 0.0
-            )
-        elif shp == "axis":
-            rows = _rect_rows(
-                0.5 * (d[:, 0] + d[:, 2]),
-                0.5 * (d[:, 1] + d[:, 3]),
-                d[:, 2] - d[:, 0],
-                d[:, 3] - d[:, 1],
-                one,
-                zero,
-                0.0,
-                0.0,
-                env=(d[:, 0], d[:, 1], d[:, 2], d[:, 3]),
-            )
-        elif shp == "upright":
-            rows = _rect_rows(
-                d[:, 0],
-                d[:, 1],
-                d[:, 3],
-                d[:, 4],
-                np.cos(d[:, 6]),
-                np.sin(d[:, 6]),
-                d[:, 2] - 0.5 * d[:, 5],
-                d[:, 2] + 0.5 * d[:, 5],
-            )
-        elif shp == "axis3":
-            rows = _rect_rows(
-                0.5 * (d[:, 0] + d[:, 3]),
-                0.5 * (d[:, 1] + d[:, 4]),
-                d[:, 3] - d[:, 0],
-                d[:, 4] - d[:, 1],
-                one,
-                zero,
-                d[:, 2],
-                d[:, 5],
-                env=(d[:, 0], d[:, 1], d[:, 3], d[:, 4]),
-            )
-        else:
-            raise ValueError("polygons cannot be prepared as rectangles")
-        return Prepared("rect", shp in ("upright", "axis3"), rows, empty, boxes)
+        from obbiou._kernels import geometry
+
+        if kind == "axis":
+            return Prepared(kind, boxes.is_3d, geometry.axis_rows(d, layout), empty, boxes)
+        cos, sin = _directions(boxes)
+        rows = geometry.rect_rows(d, layout, cos, sin)
+        return Prepared(kind, boxes.is_3d, rows, empty, boxes)
     if kind == "poly":
         if shp == "polygon":
             verts = d
@@ -247,7 +192,20 @@ def _prepared_pair(a: Boxes | Prepared, b: Boxes | Prepared) -> tuple[Prepared, 
     return pa, pb
 
 
+#: Below this many pairs the serial kernels run: starting threads would cost more.
+PARALLEL_MIN = 4096
+
+
+def _driver(name: str, work: int):
+    """The kernel ``name`` (parallel) or its serial twin for small ``work``."""
+    from obbiou._kernels import pairs
+
+    return getattr(pairs, name if work >= PARALLEL_MIN else name + "_serial")
+
+
 def _chunks(n: int) -> int:
+    if n < PARALLEL_MIN:
+        return 1
     from numba import get_num_threads
 
     return int(max(1, min(n, 16 * get_num_threads())))
@@ -257,27 +215,32 @@ def _matrix(pa: Prepared, pb: Prepared, code: int) -> np.ndarray:
     n, m = len(pa), len(pb)
     if n == 0 or m == 0:
         return np.zeros((n, m))
-    from obbiou._kernels import pairs
-
-    if pa.kind == "axis":
-        return pairs.axis_matrix(pa.rows, pb.rows, code, pa.is_3d)
-    if pa.kind == "rect":
-        return pairs.rect_matrix(pa.rows, pb.rows, code, pa.is_3d)
-    return pairs.poly_matrix(pa.vertices, pa.rows, pb.vertices, pb.rows, code)
+    if pa.kind == "poly":
+        run = _driver("poly_matrix", n * m)
+        return run(pa.vertices, pa.rows, pb.vertices, pb.rows, code)
+    run = _driver(f"{pa.kind}_matrix", n * m)
+    return run(pa.rows, pb.rows, code, pa.is_3d)
 
 
 def _pairs(pa: Prepared, pb: Prepared, first: np.ndarray, second: np.ndarray, code: int):
     n = first.shape[0]
     if n == 0:
         return np.zeros(0)
-    from obbiou._kernels import pairs
-
     chunks = _chunks(n)
-    if pa.kind == "axis":
-        return pairs.axis_pairs(pa.rows, pb.rows, first, second, code, pa.is_3d, chunks)
-    if pa.kind == "rect":
-        return pairs.rect_pairs(pa.rows, pb.rows, first, second, code, pa.is_3d, chunks)
-    return pairs.poly_pairs(pa.vertices, pa.rows, pb.vertices, pb.rows, first, second, code, chunks)
+    if pa.kind == "poly":
+        run = _driver("poly_pairs", n)
+        return run(pa.vertices, pa.rows, pb.vertices, pb.rows, first, second, code, chunks)
+    run = _driver(f"{pa.kind}_pairs", n)
+    return run(pa.rows, pb.rows, first, second, code, pa.is_3d, chunks)
+
+
+def _rect_elementwise(a: Boxes, b: Boxes, code: int) -> np.ndarray:
+    ca, sa = _directions(a)
+    cb, sb = _directions(b)
+    la, lb = _LAYOUT_CODES[a.shape], _LAYOUT_CODES[b.shape]
+    return _driver("rect_elementwise", len(a))(
+        a.data, la, ca, sa, b.data, lb, cb, sb, code, a.is_3d, _chunks(len(a))
+    )
 
 
 def _index(idx: Any, name: str, limit: int) -> np.ndarray:
@@ -352,13 +315,17 @@ def pair_values(
 def _measure(name: str, a: Any, b: Any, shape: str | None, elementwise: bool) -> Any:
     ba = read_boxes(a, shape, name="a")
     bb = read_boxes(b, shape, name="b")
-    pa, pb = _prepared_pair(ba, bb)
     code = MEASURES[name]
     if elementwise:
         same_length(ba, bb)
-        idx = np.arange(len(ba), dtype=np.int64)
-        out = _pairs(pa, pb, idx, idx, code)
+        if _kind_for(ba.shape, bb.shape) == "rect" and len(ba):
+            out = _rect_elementwise(ba, bb, code)
+        else:
+            pa, pb = _prepared_pair(ba, bb)
+            idx = np.arange(len(ba), dtype=np.int64)
+            out = _pairs(pa, pb, idx, idx, code)
         return out[0] if ba.single and bb.single else out
+    pa, pb = _prepared_pair(ba, bb)
     out = _matrix(pa, pb, code)
     if bb.single:
         out = out[:, 0]
@@ -496,9 +463,24 @@ def warmup() -> None:
         np.array([[0.0, 0.0, 0.0, 2.0, 1.0, 1.0, 0.3], [0.5, 0.2, 0.1, 1.0, 1.0, 1.0, 0.0]]),
         np.array([[[0.0, 0.0], [2.0, 0.0], [0.0, 2.0]], [[0.5, 0.5], [3.0, 0.5], [0.5, 3.0]]]),
     ]
+    from obbiou._kernels import pairs
+
     idx = np.array([0, 1], dtype=np.int64)
+    code = MEASURES["iou"]
     for data in cases:
         boxes = read_boxes(data)
         p = prepare(boxes)
-        _matrix(p, p, MEASURES["iou"])
-        _pairs(p, p, idx, idx, MEASURES["iou"])
+        for suffix in ("", "_serial"):
+            if p.kind == "poly":
+                args = (p.vertices, p.rows, p.vertices, p.rows)
+                getattr(pairs, "poly_matrix" + suffix)(*args, code)
+                getattr(pairs, "poly_pairs" + suffix)(*args, idx, idx, code, 1)
+            else:
+                getattr(pairs, p.kind + "_matrix" + suffix)(p.rows, p.rows, code, p.is_3d)
+                run = getattr(pairs, p.kind + "_pairs" + suffix)
+                run(p.rows, p.rows, idx, idx, code, p.is_3d, 1)
+            if p.kind == "rect":
+                cos, sin = _directions(boxes)
+                lay = _LAYOUT_CODES[boxes.shape]
+                run = getattr(pairs, "rect_elementwise" + suffix)
+                run(boxes.data, lay, cos, sin, boxes.data, lay, cos, sin, code, p.is_3d, 1)

@@ -1,0 +1,116 @@
+"""Per-box precomputation for the pair kernels (numba only): frames, sizes, extents.
+
+One place computes every box's cos/sin, size and extent, so that all-pairs matrices, pair
+lists and elementwise values see bit-identical per-box data.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+# Source layout codes.
+AXIS = 0
+ROTATED = 1
+AXIS3 = 2
+UPRIGHT = 3
+
+
+@njit(error_model="numpy", cache=True)
+def axis_rows(data, layout):
+    """Rows ``x0, y0, x1, y1, z0, z1, size`` of axis / axis3 boxes."""
+    n = data.shape[0]
+    rows = np.zeros((n, 7))
+    for i in range(n):
+        if layout == AXIS:
+            x0, y0, x1, y1 = data[i, 0], data[i, 1], data[i, 2], data[i, 3]
+            z0, z1 = 0.0, 0.0
+            size = (x1 - x0) * (y1 - y0)
+        else:
+            x0, y0, z0 = data[i, 0], data[i, 1], data[i, 2]
+            x1, y1, z1 = data[i, 3], data[i, 4], data[i, 5]
+            size = (x1 - x0) * (y1 - y0) * (z1 - z0)
+        rows[i, 0] = x0
+        rows[i, 1] = y0
+        rows[i, 2] = x1
+        rows[i, 3] = y1
+        rows[i, 4] = z0
+        rows[i, 5] = z1
+        rows[i, 6] = size
+    return rows
+
+
+@njit(error_model="numpy", cache=True)
+def rect_row(data, i, layout, cos, sin, row):
+    """Fill ``row`` with ``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1,
+    size, 1/hw, 1/hh`` of box ``data[i]`` (rotated, axis, or the footprint of an upright /
+    axis3 box). ``cos``, ``sin`` hold the per-box direction, computed once by numpy."""
+    z0 = 0.0
+    z1 = 0.0
+    if layout == ROTATED or layout == UPRIGHT:
+        cx = data[i, 0]
+        cy = data[i, 1]
+        if layout == ROTATED:
+            w = data[i, 2]
+            h = data[i, 3]
+        else:
+            w = data[i, 3]
+            h = data[i, 4]
+            z0 = data[i, 2] - 0.5 * data[i, 5]
+            z1 = data[i, 2] + 0.5 * data[i, 5]
+        c = cos[i]
+        s = sin[i]
+        hw = 0.5 * w
+        hh = 0.5 * h
+        ex = abs(c) * hw + abs(s) * hh
+        ey = abs(s) * hw + abs(c) * hh
+        xmin = cx - ex
+        ymin = cy - ey
+        xmax = cx + ex
+        ymax = cy + ey
+    else:
+        xmin = data[i, 0]
+        ymin = data[i, 1]
+        if layout == AXIS:
+            xmax = data[i, 2]
+            ymax = data[i, 3]
+        else:
+            xmax = data[i, 3]
+            ymax = data[i, 4]
+            z0 = data[i, 2]
+            z1 = data[i, 5]
+        cx = 0.5 * (xmin + xmax)
+        cy = 0.5 * (ymin + ymax)
+        w = xmax - xmin
+        h = ymax - ymin
+        hw = 0.5 * w
+        hh = 0.5 * h
+        c = 1.0
+        s = 0.0
+    area = w * h
+    row[0] = cx
+    row[1] = cy
+    row[2] = hw
+    row[3] = hh
+    row[4] = c
+    row[5] = s
+    row[6] = area
+    row[7] = xmin
+    row[8] = ymin
+    row[9] = xmax
+    row[10] = ymax
+    row[11] = z0
+    row[12] = z1
+    row[13] = area * (z1 - z0) if layout == UPRIGHT or layout == AXIS3 else area
+    row[14] = 1.0 / hw if hw > 0.0 else np.inf
+    row[15] = 1.0 / hh if hh > 0.0 else np.inf
+
+
+@njit(error_model="numpy", cache=True)
+def rect_rows(data, layout, cos, sin):
+    """Rows of :func:`rect_row` for every box."""
+    n = data.shape[0]
+    rows = np.empty((n, 16))
+    for i in range(n):
+        rect_row(data, i, layout, cos, sin, rows[i])
+    return rows
