@@ -118,47 +118,83 @@ def _numbers(text: str | None, option: str) -> list[float] | None:
 def details_text(evaluation: Any, iou: float | None = None) -> str:
     """Causes of false positives and misses per label, and the orientation error, as text.
 
-    ``iou`` defaults to the evaluation's lowest threshold.
+    Each label is reported at ``iou`` or, by default, at its own lowest threshold (labels
+    may have thresholds of their own).
     """
     import math
 
-    t = min(evaluation.thresholds) if iou is None else float(iou)
-    fps = evaluation.false_positives(t)
-    misses = evaluation.misses(t)
-    width = max([len(str(lab)) for lab in fps] + [5])
-    lines = [f"False positives at IoU {t:g} by cause:"]
-    row = f"  {{:<{width}}}  {{:>9}}  {{:>11}}  {{:>11}}  {{:>10}}  {{:>6}}"
+    per_label = evaluation.to_dict(breakdowns=False)["labels"]
+    at: dict[str, float] = {}
+    for lab, entry in per_label.items():
+        own = sorted(float(k) for k in entry["ap"])
+        if iou is None:
+            at[lab] = own[0]
+        elif any(abs(float(iou) - v) < 1e-9 for v in own):
+            at[lab] = float(iou)
+    fps: dict[str, Any] = {}
+    misses: dict[str, Any] = {}
+    for t in sorted(set(at.values())):
+        for lab, c in evaluation.false_positives(t).items():
+            if at.get(lab) == t:
+                fps[lab] = c
+        for lab, c in evaluation.misses(t).items():
+            if at.get(lab) == t:
+                misses[lab] = c
+    width = max([len(str(lab)) for lab in at] + [5])
+    row = f"  {{:<{width}}}  {{:>5}}  {{:>9}}  {{:>11}}  {{:>11}}  {{:>10}}  {{:>6}}"
+    lines = ["False positives by cause:"]
     lines.append(
-        row.format("label", "duplicate", "wrong label", "poor boxes", "background", "total")
+        row.format(
+            "label", "IoU>=", "duplicate", "wrong label", "poor boxes", "background", "total"
+        )
     )
     for lab, c in fps.items():
         lines.append(
-            row.format(lab, c.duplicate, c.wrong_label, c.poor_localisation, c.background, c.total)
+            row.format(
+                lab,
+                f"{at[lab]:.2f}",
+                c.duplicate,
+                c.wrong_label,
+                c.poor_localisation,
+                c.background,
+                c.total,
+            )
         )
-    lines.append(f"Missed truths at IoU {t:g} by cause:")
-    lines.append(row.format("label", "crowded", "wrong label", "poor boxes", "not found", "total"))
+    lines.append("Missed truths by cause:")
+    lines.append(
+        row.format("label", "IoU>=", "crowded", "wrong label", "poor boxes", "not found", "total")
+    )
     for lab, c in misses.items():
         lines.append(
-            row.format(lab, c.crowded, c.wrong_label, c.poor_localisation, c.not_detected, c.total)
+            row.format(
+                lab,
+                f"{at[lab]:.2f}",
+                c.crowded,
+                c.wrong_label,
+                c.poor_localisation,
+                c.not_detected,
+                c.total,
+            )
         )
     if evaluation.records.shape not in ("axis", "axis3"):
-        period = (
-            "heading modulo 360°"
-            if evaluation.records.shape == "upright"
-            else ("angle modulo 180°")
-        )
-        lines.append(f"Orientation error of matched pairs at IoU {t:g} ({period}, degrees):")
-        lines.append(row.format("label", "pairs", "mean", "median", "90th pct", "flipped"))
-        for lab in [*evaluation.labels, None]:
+        upright = evaluation.records.shape == "upright"
+        period = "heading modulo 360°" if upright else "angle modulo 180°"
+        lines.append(f"Orientation error of matched pairs ({period}, degrees):")
+        lines.append(row.format("label", "IoU>=", "pairs", "mean", "median", "90th pct", "flipped"))
+
+        def deg(v: float | None) -> str:
+            return "n/a" if v is None or math.isnan(v) else f"{math.degrees(v):.2f}"
+
+        rows = [(lab, t) for lab, t in at.items()]
+        if len(set(at.values())) == 1 and len(at) > 1:
+            rows.append((None, next(iter(at.values()))))  # all labels at the one threshold
+        for lab, t in rows:
             e = evaluation.orientation_error(t, label=lab)
-
-            def deg(v: float | None) -> str:
-                return "n/a" if v is None or math.isnan(v) else f"{math.degrees(v):.2f}"
-
             flipped = "n/a" if e.flipped is None else f"{e.flipped:.1%}"
             lines.append(
                 row.format(
                     "all" if lab is None else lab,
+                    f"{t:.2f}",
                     e.pairs,
                     deg(e.mean),
                     deg(e.median),
