@@ -125,9 +125,18 @@ def _pick_frame(scenario: Scenario) -> str:
 
 
 def _window(scenario: Scenario, frame: str) -> tuple[float, float, float, float] | None:
-    if scenario.name == "warehouse":
-        return (-14.0, -12.0, 30.0, 12.0)  # the robot's aisle and the cross aisle behind it
-    return None
+    """What the scene picture shows: a harbour tile whole; around the robot what it saw."""
+    if scenario.name != "warehouse":
+        return None
+    t = scenario.truth[scenario.truth["frame"] == frame]
+    if len(t) == 0:
+        return (-14.0, -12.0, 30.0, 12.0)
+    reach = np.hypot(t["length"], t["width"]).to_numpy() / 2
+    x0 = min(float((t["cx"] - reach).min()), -2.0) - 2
+    x1 = max(float((t["cx"] + reach).max()), 2.0) + 2
+    y0 = min(float((t["cy"] - reach).min()), -8.0) - 2
+    y1 = max(float((t["cy"] + reach).max()), 8.0) + 2
+    return (x0, y0, x1, y1)
 
 
 def run_demo(
