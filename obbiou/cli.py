@@ -503,7 +503,7 @@ def _cmd_warmup(args: argparse.Namespace) -> int:
         t0 = time.perf_counter()
         fn()
         steps.append((name, time.perf_counter() - t0))
-        print(f"  {name:<58s} {steps[-1][1]:6.1f} s", flush=True)
+        print(f"  {name:<60s} {steps[-1][1]:6.1f} s", flush=True)
 
     print("compiling obbiou's kernels (cached on disk for later runs):")
 
@@ -519,25 +519,33 @@ def _cmd_warmup(args: argparse.Namespace) -> int:
 
     def evaluation() -> None:
         from obbiou.evaluation import evaluate
+        from obbiou.evaluation.tables import box_columns
 
-        for boxes in ([[5.0, 5.0, 4.0, 2.0, 0.1]], [[5.0, 5.0, 0.5, 4.0, 2.0, 1.0, 0.1]]):
-            cols = (
-                ["cx", "cy", "width", "height", "angle"]
-                if len(boxes[0]) == 5
-                else ["cx", "cy", "cz", "length", "width", "height", "yaw"]
-            )
-            box = np.array(boxes[0])
+        # One tiny table per layout: a match, an ignored detection, at ten thresholds.
+        tiny = {
+            "axis": [[0.0, 0.0, 4.0, 2.0], [3.0, 0.0, 7.0, 2.0]],
+            "rotated": [[5.0, 5.0, 4.0, 2.0, 0.1], [8.0, 5.0, 4.0, 2.0, 0.1]],
+            "polygon": [
+                [0.0, 0.0, 4.0, 0.0, 4.0, 2.0, 0.0, 2.0],
+                [3.0, 0.0, 7.0, 0.0, 7.0, 2.0, 3.0, 2.0],
+            ],
+            "axis3": [[0.0, 0.0, 0.0, 4.0, 2.0, 1.0], [3.0, 0.0, 0.0, 7.0, 2.0, 1.0]],
+            "upright": [[5.0, 5.0, 0.5, 4.0, 2.0, 1.0, 0.1], [8.0, 5.0, 0.5, 4.0, 2.0, 1.0, 0.1]],
+        }
+        for shape, rows in tiny.items():
+            cols = box_columns(shape)
+            values = np.array(rows)
             truth = {"frame": [0, 0], "label": ["a", "a"], "ignore": [False, True]}
             dets = {"frame": [0, 0], "label": ["a", "a"], "score": [0.9, 0.4]}
             for j, c in enumerate(cols):
-                truth[c] = [box[j], box[j] + (3.0 if j == 0 else 0.0)]
-                dets[c] = [box[j] + (0.1 if j == 0 else 0.0), box[j] + (3.0 if j == 0 else 0.0)]
-            result = evaluate(truth, dets, iou="0.5:0.95:0.05")
+                truth[c] = values[:, j]
+                dets[c] = values[:, j] + (0.1 if j == 0 else 0.0)
+            result = evaluate(truth, dets, shape=shape, iou="0.5:0.95:0.05")
             result.interval(resamples=20, seed=0)
 
     step("overlap measures (iou, giou, diou, intersection, coverage)", measures)
     step("scene (overlapping_pairs, suppress: hard, linear, gaussian)", scene)
-    step("evaluation (matching, AP, bootstrap; rotated and upright)", evaluation)
+    step("evaluation (matching, AP, bootstrap; every layout)", evaluation)
     print(f"done in {time.perf_counter() - start:.1f} s")
     return 0
 
