@@ -16,10 +16,13 @@ _LINE_COLOURS = ("#1f3b73", "#e0a100", "#b0207a", "#5a7bb5", "#8a6d00", "#d873b4
 _LINE_STYLES = ("-", "--", "-.", ":")
 
 
-def plot_curves(evaluation: Evaluation, path: str, *, iou: float | None = None) -> None:
+def plot_curves(
+    evaluation: Evaluation, path: str, *, iou: float | None = None, title: str | None = None
+) -> None:
     """Write precision-recall curves of every label with truths at ``iou`` to ``path``.
 
-    ``iou`` defaults to the lowest threshold. The step curve is drawn as evaluated
+    ``iou`` defaults to the lowest threshold; ``title``, when given, heads the figure above
+    the per-threshold caption. The step curve is drawn as evaluated
     (precision after each ranked detection) with its monotone envelope as a thin line.
     """
     import matplotlib
@@ -59,10 +62,12 @@ def plot_curves(evaluation: Evaluation, path: str, *, iou: float | None = None) 
     ax.set_xlabel("recall")
     ax.set_ylabel("precision")
     m = evaluation.mean_ap(t)
-    title = f"precision vs recall at IoU >= {t:g}"
+    heading, title = title, f"precision vs recall at IoU >= {t:g}"
     if m is not None:
         title += f"   (mean AP {m:.3f})"
     ax.set_title(title, fontsize=10, loc="left")
+    if heading:
+        fig.suptitle(heading, fontsize=11, x=0.02, ha="left")
     ax.grid(True, color="#d9d9d9", linewidth=0.6)
     if drawn:
         ax.legend(loc="lower left", fontsize=8, frameon=False)

@@ -539,11 +539,14 @@ class Evaluation:
             json.dump(self.to_dict(), fh, indent=2, allow_nan=False)
             fh.write("\n")
 
-    def plot(self, path: str, *, iou: float | None = None) -> None:
-        """Precision-recall curves per label at ``iou`` (default: the lowest), PNG at ``path``."""
+    def plot(self, path: str, *, iou: float | None = None, title: str | None = None) -> None:
+        """Precision-recall curves per label at ``iou`` (default: the lowest), PNG at ``path``.
+
+        ``title`` (optional) heads the figure, e.g. the data set and model name.
+        """
         from obbiou.evaluation.plots import plot_curves
 
-        plot_curves(self, path, iou=iou)
+        plot_curves(self, path, iou=iou, title=title)
 
     def __repr__(self) -> str:
         m = self.mean_ap()
