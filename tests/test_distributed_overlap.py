@@ -17,10 +17,9 @@ pytest.importorskip("obbiou.scene")
 pd = pytest.importorskip("pandas")
 dd = pytest.importorskip("dask.dataframe")
 
-from obbiou.scene import overlapping_pairs  # noqa: E402
-
 import obbiou.boxes  # noqa: E402
 from obbiou.distributed import overlapping_pairs_distributed  # noqa: E402
+from obbiou.scene import overlapping_pairs  # noqa: E402
 
 COLUMNS = ["cx", "cy", "width", "height", "angle"]
 
