@@ -312,7 +312,7 @@ def index_comparison() -> None:
             size,
             ext,
             size,
-            float(np.median(ext[:, 2] - ext[:, 0])),
+            obbiou.scene._base_cell(ext),
             True,
             np.zeros(0, np.int64),
             np.zeros(0, np.int64),
