@@ -16,8 +16,10 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import statistics
 import subprocess
 import sys
+import time
 
 import numpy as np
 
@@ -25,17 +27,35 @@ sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
-from _util import median_time, peak_rss_mb, report  # noqa: E402
+from _util import peak_rss_mb, report  # noqa: E402
 
 import obbiou  # noqa: E402
 from obbiou.boxes import corners  # noqa: E402
 
+CPU: dict[str, float] = {}  # CPU seconds of the last timed() call
+
 
 def timed(fn, repeat: int, warmup: int = 1) -> tuple[float, object]:
-    """Median time of ``fn()`` (bench/_util.median_time) and one result of it."""
-    out = fn() if warmup else None
-    t = median_time(fn, repeat=repeat, warmup=0)
-    return t, (out if warmup else fn())
+    """Median wall time of ``repeat`` calls of ``fn()`` after ``warmup`` calls, and the
+    last result; the median CPU time of the process (all threads) goes to ``CPU["last"]``.
+    CPU time is far less disturbed than wall time when other jobs share the machine."""
+    for _ in range(warmup):
+        fn()
+    walls, cpus, out = [], [], None
+    for _ in range(repeat):
+        c, t = time.process_time(), time.perf_counter()
+        out = fn()
+        walls.append(time.perf_counter() - t)
+        cpus.append(time.process_time() - c)
+    CPU["last"] = statistics.median(cpus)
+    return statistics.median(walls), out
+
+
+def cpu_line(ours_cpu: float, theirs_cpu: float) -> None:
+    print(
+        f"    CPU time: obbiou {ours_cpu * 1e3:.1f} ms (all threads), shapely "
+        f"{theirs_cpu * 1e3:.1f} ms, ratio {theirs_cpu / ours_cpu:.0f}x"
+    )
 
 
 # ---------------------------------------------------------------- scenes (invented)
@@ -160,11 +180,14 @@ def main_runs(quick: bool) -> None:
     b = jitter(a)
     print(
         f"obbiou scene benchmark ({'quick' if quick else 'full'}), numba threads: "
-        f"{__import__('numba').get_num_threads()}; medians of 5 runs (shapely: 1 run)\n"
+        f"{__import__('numba').get_num_threads()}; medians of 5 runs (shapely: 1 run); "
+        f"load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs\n"
     )
 
     t_ours, p = timed(lambda: obbiou.overlapping_pairs(a, b), 5)
+    c_ours = CPU["last"]
     t_shp, cnt = timed(lambda: shapely_pairs(a, b), 1, warmup=0)
+    c_shp = CPU["last"]
     note = f"{len(p)} pairs, shapely finds {cnt}"
     report(
         f"pairs: {n} rotated boxes vs a jittered copy, {side:.0f} px mosaic",
@@ -173,17 +196,23 @@ def main_runs(quick: bool) -> None:
         50,
         note,
     )
+    cpu_line(c_ours, c_shp)
 
     t_ours, p = timed(lambda: obbiou.overlapping_pairs(a), 5)
+    c_ours = CPU["last"]
     t_shp, cnt = timed(lambda: shapely_pairs(a, None), 1, warmup=0)
+    c_shp = CPU["last"]
     report(
         f"self-pairs: the same {n} boxes", t_ours, t_shp, 50, f"{len(p)} pairs, shapely finds {cnt}"
     )
+    cpu_line(c_ours, c_shp)
 
     nd = 2_000 if quick else 10_000
     dets, scores = detections(nd)
     t_ours, k = timed(lambda: obbiou.suppress(dets, scores, max_iou=0.5), 9)
+    c_ours = CPU["last"]
     t_shp, kk = timed(lambda: shapely_greedy(dets, scores, 0.5), 1, warmup=0)
+    c_shp = CPU["last"]
     same = "same kept boxes" if np.array_equal(k.indices, kk) else "kept boxes DIFFER"
     report(
         f"hard suppression: {nd} rotated detections, clusters of ~5",
@@ -192,6 +221,7 @@ def main_runs(quick: bool) -> None:
         60,
         f"kept {len(k)}, {same} as the shapely loop",
     )
+    cpu_line(c_ours, c_shp)
     t_soft, ks = timed(lambda: obbiou.suppress(dets, scores, decay="gaussian"), 5)
     print(
         f"soft (gaussian) suppression of the same: obbiou {t_soft * 1e3:.2f} ms "
@@ -201,7 +231,9 @@ def main_runs(quick: bool) -> None:
     nl = 4_000 if quick else 20_000
     lid, ls = lidar_proposals(nl)
     t_ours, k = timed(lambda: obbiou.suppress(lid, ls, max_iou=0.5), 5)
+    c_ours = CPU["last"]
     t_shp, kk = timed(lambda: shapely_greedy(lid, ls, 0.5, bev3d=True), 1, warmup=0)
+    c_shp = CPU["last"]
     same = "same kept boxes" if np.array_equal(k.indices, kk) else "kept boxes DIFFER"
     report(
         f"hard suppression: {nl} upright 3D proposals in a lidar-like frame (3D IoU)",
@@ -210,6 +242,7 @@ def main_runs(quick: bool) -> None:
         None,
         f"kept {len(k)}, {same} as the shapely loop",
     )
+    cpu_line(c_ours, c_shp)
 
 
 def scaling_one(n: int) -> dict:
@@ -279,7 +312,7 @@ def index_comparison() -> None:
             size,
             ext,
             size,
-            float(np.median(ext[:, 2] - ext[:, 0])),
+            obbiou.scene._base_cell(ext),
             True,
             np.zeros(0, np.int64),
             np.zeros(0, np.int64),

@@ -102,8 +102,9 @@ class Kept:
 
 
 # Below this many boxes the scene kernels run on one thread: waking the worker threads
-# costs more than the work (measured: self-pairs of 1 000 boxes take 1 ms on one thread and
-# 120 ms on two on a busy 2-core machine; on a quiet one parallel pays off from ~1e4 boxes).
+# costs more than the work (measured: self-pairs of 1 000 boxes took 1 ms on one thread and
+# 120 ms on two on the busy 2-core development machine). The threshold is a rule of thumb,
+# not tuned on a quiet machine.
 _SERIAL_BELOW = 20_000
 
 

@@ -8,7 +8,7 @@ N^1.5 (every row scans about sqrt(N) boxes of its strip). A grid touches only th
 cells a box covers: cost ~ N + candidates. Measured on this machine with
 ``python bench/scene.py --index`` (candidate search only, self-pairs of rotated boxes
 8-40 px long at the density of 50 000 on a 10 000 px mosaic, 2 threads, busy machine):
-sweep 0.74 s vs grid 0.22 s at N = 5e4, 74.5 s vs 3.7 s at N = 1e6.
+sweep 0.23 s vs grid 0.047 s at N = 5e4, 52.8 s vs 1.19 s at N = 1e6.
 
 One grid level per size class (cell size s0 * 2**L) keeps it robust when box sizes vary
 widely: every box is stored at the level whose cell is at least its own extent, so it
