@@ -17,12 +17,15 @@ pytest.importorskip("obbiou.scene")
 pd = pytest.importorskip("pandas")
 dd = pytest.importorskip("dask.dataframe")
 
-from obbiou.scene import overlapping_pairs  # noqa: E402
-
 import obbiou.boxes  # noqa: E402
 from obbiou.distributed import overlapping_pairs_distributed  # noqa: E402
+from obbiou.scene import overlapping_pairs  # noqa: E402
 
 COLUMNS = ["cx", "cy", "width", "height", "angle"]
+
+
+# Another local cluster on this machine may hold the default HTTP port: not a problem.
+pytestmark = pytest.mark.filterwarnings("ignore:Port .* is already in use")
 
 
 @pytest.fixture(scope="module")
