@@ -18,29 +18,24 @@ import json
 import os
 import subprocess
 import sys
-import time
 
 import numpy as np
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
 
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+
+from _util import median_time, peak_rss_mb, report  # noqa: E402
+
 import obbiou  # noqa: E402
 from obbiou.boxes import corners  # noqa: E402
 
 
-def best_of(fn, repeat: int) -> tuple[float, object]:
-    out, best = None, float("inf")
-    for _ in range(repeat):
-        t = time.perf_counter()
-        out = fn()
-        best = min(best, time.perf_counter() - t)
-    return best, out
-
-
-def peak_rss_mb() -> float:
-    import resource
-
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0  # Linux: kB
+def timed(fn, repeat: int, warmup: int = 1) -> tuple[float, object]:
+    """Median time of ``fn()`` (bench/_util.median_time) and one result of it."""
+    out = fn() if warmup else None
+    t = median_time(fn, repeat=repeat, warmup=0)
+    return t, (out if warmup else fn())
 
 
 # ---------------------------------------------------------------- scenes (invented)
@@ -157,67 +152,81 @@ def shapely_greedy(boxes: np.ndarray, scores: np.ndarray, max_iou: float, bev3d=
 # ---------------------------------------------------------------- runs
 
 
-def row(name: str, ours: float, theirs: float | None, extra: str = "") -> None:
-    if theirs is None:
-        print(f"{name:<52} obbiou {ours * 1e3:9.1f} ms {'':>28} {extra}")
-    else:
-        print(
-            f"{name:<52} obbiou {ours * 1e3:9.1f} ms   shapely {theirs * 1e3:9.1f} ms"
-            f"   x{theirs / ours:7.1f}  {extra}"
-        )
-
-
 def main_runs(quick: bool) -> None:
     n = 10_000 if quick else 50_000
     side = 10_000.0 * np.sqrt(n / 50_000)
-    repeat = 3
     obbiou.scene.warmup()
     a = mosaic(n, side)
     b = jitter(a)
-    print(f"obbiou scene benchmark ({'quick' if quick else 'full'}); 2D boxes on a mosaic")
-    print(f"threads: numba {__import__('numba').get_num_threads()}")
+    print(
+        f"obbiou scene benchmark ({'quick' if quick else 'full'}), numba threads: "
+        f"{__import__('numba').get_num_threads()}; medians of 5 runs (shapely: 1 run)\n"
+    )
 
-    t_ours, p = best_of(lambda: obbiou.overlapping_pairs(a, b), repeat)
-    t_shp, cnt = best_of(lambda: shapely_pairs(a, b), 1)
-    assert cnt == len(p), (cnt, len(p))
-    row(f"pairs: {n} rotated vs jittered copy ({side:.0f} px)", t_ours, t_shp, f"{len(p)} pairs")
+    t_ours, p = timed(lambda: obbiou.overlapping_pairs(a, b), 5)
+    t_shp, cnt = timed(lambda: shapely_pairs(a, b), 1, warmup=0)
+    note = f"{len(p)} pairs, shapely finds {cnt}"
+    report(
+        f"pairs: {n} rotated boxes vs a jittered copy, {side:.0f} px mosaic",
+        t_ours,
+        t_shp,
+        50,
+        note,
+    )
 
-    t_ours, p = best_of(lambda: obbiou.overlapping_pairs(a), repeat)
-    t_shp, cnt = best_of(lambda: shapely_pairs(a, None), 1)
-    assert cnt == len(p), (cnt, len(p))
-    row(f"self-pairs: {n} rotated", t_ours, t_shp, f"{len(p)} pairs")
+    t_ours, p = timed(lambda: obbiou.overlapping_pairs(a), 5)
+    t_shp, cnt = timed(lambda: shapely_pairs(a, None), 1, warmup=0)
+    report(
+        f"self-pairs: the same {n} boxes", t_ours, t_shp, 50, f"{len(p)} pairs, shapely finds {cnt}"
+    )
 
     nd = 2_000 if quick else 10_000
     dets, scores = detections(nd)
-    t_ours, k = best_of(lambda: obbiou.suppress(dets, scores, max_iou=0.5), repeat * 3)
-    t_shp, kk = best_of(lambda: shapely_greedy(dets, scores, 0.5), 1)
-    same = np.array_equal(k.indices, kk)
-    row(f"hard suppression: {nd} rotated, clusters of ~5", t_ours, t_shp, f"kept {len(k)}")
-    if not same:
-        print("   note: kept sets differ from shapely (IoU within rounding of the threshold)")
-    t_soft, ks = best_of(lambda: obbiou.suppress(dets, scores, decay="gaussian"), repeat)
-    row(f"soft (gaussian) suppression: {nd} rotated", t_soft, None, f"kept {len(ks)}")
+    t_ours, k = timed(lambda: obbiou.suppress(dets, scores, max_iou=0.5), 9)
+    t_shp, kk = timed(lambda: shapely_greedy(dets, scores, 0.5), 1, warmup=0)
+    same = "same kept boxes" if np.array_equal(k.indices, kk) else "kept boxes DIFFER"
+    report(
+        f"hard suppression: {nd} rotated detections, clusters of ~5",
+        t_ours,
+        t_shp,
+        60,
+        f"kept {len(k)}, {same} as the shapely loop",
+    )
+    t_soft, ks = timed(lambda: obbiou.suppress(dets, scores, decay="gaussian"), 5)
+    print(
+        f"soft (gaussian) suppression of the same: obbiou {t_soft * 1e3:.2f} ms "
+        f"({len(ks)} re-scored)"
+    )
 
     nl = 4_000 if quick else 20_000
     lid, ls = lidar_proposals(nl)
-    t_ours, k = best_of(lambda: obbiou.suppress(lid, ls, max_iou=0.5), repeat)
-    t_shp, kk = best_of(lambda: shapely_greedy(lid, ls, 0.5, bev3d=True), 1)
-    row(f"hard suppression: {nl} upright 3D proposals (3D IoU)", t_ours, t_shp, f"kept {len(k)}")
+    t_ours, k = timed(lambda: obbiou.suppress(lid, ls, max_iou=0.5), 5)
+    t_shp, kk = timed(lambda: shapely_greedy(lid, ls, 0.5, bev3d=True), 1, warmup=0)
+    same = "same kept boxes" if np.array_equal(k.indices, kk) else "kept boxes DIFFER"
+    report(
+        f"hard suppression: {nl} upright 3D proposals in a lidar-like frame (3D IoU)",
+        t_ours,
+        t_shp,
+        None,
+        f"kept {len(k)}, {same} as the shapely loop",
+    )
 
 
 def scaling_one(n: int) -> dict:
     side = 10_000.0 * np.sqrt(n / 50_000)  # constant density: that of the 50 000 mosaic
     a = mosaic(n, side, seed=7)
     obbiou.overlapping_pairs(a[:10])  # compiled and cached already; load it
-    rss0 = peak_rss_mb()
-    t, p = best_of(lambda: obbiou.overlapping_pairs(a), 1 if n >= 1_000_000 else 3)
-    return {"n": n, "seconds": t, "pairs": len(p), "peak_rss_mb": peak_rss_mb(), "rss0": rss0}
+    obbiou.overlapping_pairs(a[:30_000])  # and the parallel variants
+    before = peak_rss_mb()
+    t, p = timed(lambda: obbiou.overlapping_pairs(a), 1 if n >= 1_000_000 else 3, warmup=0)
+    return {"n": n, "seconds": t, "pairs": len(p), "peak_rss_mb": peak_rss_mb(), "rss0": before}
 
 
 def scaling(quick: bool) -> None:
     sizes = [1_000, 10_000, 100_000] + ([] if quick else [1_000_000])
     print("\nscaling: self-pairs of N rotated boxes at constant density (one process each)")
     print(f"{'N':>9} {'time s':>9} {'pairs':>10} {'us/box':>8} {'peak RSS MB':>12}")
+    print("(peak RSS of the whole process, numba and numpy included)")
     for n in sizes:
         out = subprocess.run(
             [sys.executable, os.path.abspath(__file__), "--scaling-one", str(n)],
@@ -285,8 +294,8 @@ def index_comparison() -> None:
         ext, size = sweep.flat_extents(a, 1)
         run_sweep(ext[:100])
         run_grid(ext[:100], size[:100])
-        t_s, c_s = best_of(lambda e=ext: run_sweep(e), 2)
-        t_g, c_g = best_of(lambda e=ext, s=size: run_grid(e, s), 2)
+        t_s, c_s = timed(lambda e=ext: run_sweep(e), 2, warmup=0)
+        t_g, c_g = timed(lambda e=ext, s=size: run_grid(e, s), 2, warmup=0)
         print(f"N={n:>8}: sweep {t_s:7.3f} s ({c_s} cand.)   grid {t_g:7.3f} s ({c_g} cand.)")
 
 

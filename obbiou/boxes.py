@@ -1,4 +1,4 @@
-"""Box tools: corners, footprint, envelope, size, fit_rotated, canonical, flip_y, check.
+r"""Box tools: corners, footprint, envelope, size, fit_rotated, canonical, flip_y, check.
 
 Conventions (all functions): angles in radians, counter-clockwise from +x towards +y in a
 y-up frame (in an image frame with y pointing down the same number turns the box clockwise
@@ -6,6 +6,20 @@ on screen; :func:`flip_y` converts between the two); ``width`` along the box's o
 ``height`` along its own y axis; for ``upright`` boxes ``length`` along the heading (yaw),
 ``width`` across it, ``height`` along +z, ``cz`` the centre. A single box gives a result
 without the batch axis. Computation is float64.
+
+::
+
+    y-up frame (maps, metres)              image frame (pixels, y down)
+
+     +y                                     (0,0) ------------> +x
+      ^      width                            |   angle > 0: turns
+      |     /                                 |   clockwise on screen
+      |    / angle > 0: turns                 |      \
+      |   /  counter-clockwise                |       \ width
+      |  /                                    |
+      +-----------> +x                        v +y
+
+    flip_y: cy -> -cy (or height - cy), angle -> -angle: the same picture in the other frame.
 """
 
 from __future__ import annotations
@@ -142,6 +156,8 @@ def footprint(boxes: Any, *, shape: str | None = None) -> np.ndarray:
     array([10. ,  2. ,  4.5,  1.8,  0.3])
     >>> footprint([[0, 0, 0, 2, 1, 3]])
     array([[0., 0., 2., 1.]])
+    >>> footprint(np.zeros((0, 7))).shape
+    (0, 5)
     """
     b = read_boxes(boxes, shape, name="boxes")
     if b.shape == "upright":
@@ -174,6 +190,10 @@ def envelope(boxes: Any, *, shape: str | None = None) -> np.ndarray:
     array([-1.414214, -1.414214,  1.414214,  1.414214])
     >>> envelope([[[0, 0], [3, 1], [1, 2]]])
     array([[0., 0., 3., 2.]])
+    >>> envelope([1, 2, 0, 0, 0.7])  # a zero-size box: its centre
+    array([1., 2., 1., 2.])
+    >>> envelope(np.zeros((0, 7))).shape
+    (0, 6)
     """
     b = read_boxes(boxes, shape, name="boxes")
     if b.shape in ("axis", "axis3"):
@@ -207,6 +227,8 @@ def size(boxes: Any, *, shape: str | None = None) -> np.ndarray:
     12.96
     >>> size([[[0, 0], [1, 0], [0, 1]]])
     array([0.5])
+    >>> size(np.zeros((0, 4)))
+    array([], dtype=float64)
     """
     b = read_boxes(boxes, shape, name="boxes")
     d = b.data

@@ -192,7 +192,20 @@ def _prepared_pair(a: Boxes | Prepared, b: Boxes | Prepared) -> tuple[Prepared, 
     return pa, pb
 
 
+#: Below this many pairs the serial kernels run: starting threads would cost more.
+PARALLEL_MIN = 4096
+
+
+def _driver(name: str, work: int):
+    """The kernel ``name`` (parallel) or its serial twin for small ``work``."""
+    from obbiou._kernels import pairs
+
+    return getattr(pairs, name if work >= PARALLEL_MIN else name + "_serial")
+
+
 def _chunks(n: int) -> int:
+    if n < PARALLEL_MIN:
+        return 1
     from numba import get_num_threads
 
     return int(max(1, min(n, 16 * get_num_threads())))
@@ -202,36 +215,30 @@ def _matrix(pa: Prepared, pb: Prepared, code: int) -> np.ndarray:
     n, m = len(pa), len(pb)
     if n == 0 or m == 0:
         return np.zeros((n, m))
-    from obbiou._kernels import pairs
-
-    if pa.kind == "axis":
-        return pairs.axis_matrix(pa.rows, pb.rows, code, pa.is_3d)
-    if pa.kind == "rect":
-        return pairs.rect_matrix(pa.rows, pb.rows, code, pa.is_3d)
-    return pairs.poly_matrix(pa.vertices, pa.rows, pb.vertices, pb.rows, code)
+    if pa.kind == "poly":
+        run = _driver("poly_matrix", n * m)
+        return run(pa.vertices, pa.rows, pb.vertices, pb.rows, code)
+    run = _driver(f"{pa.kind}_matrix", n * m)
+    return run(pa.rows, pb.rows, code, pa.is_3d)
 
 
 def _pairs(pa: Prepared, pb: Prepared, first: np.ndarray, second: np.ndarray, code: int):
     n = first.shape[0]
     if n == 0:
         return np.zeros(0)
-    from obbiou._kernels import pairs
-
     chunks = _chunks(n)
-    if pa.kind == "axis":
-        return pairs.axis_pairs(pa.rows, pb.rows, first, second, code, pa.is_3d, chunks)
-    if pa.kind == "rect":
-        return pairs.rect_pairs(pa.rows, pb.rows, first, second, code, pa.is_3d, chunks)
-    return pairs.poly_pairs(pa.vertices, pa.rows, pb.vertices, pb.rows, first, second, code, chunks)
+    if pa.kind == "poly":
+        run = _driver("poly_pairs", n)
+        return run(pa.vertices, pa.rows, pb.vertices, pb.rows, first, second, code, chunks)
+    run = _driver(f"{pa.kind}_pairs", n)
+    return run(pa.rows, pb.rows, first, second, code, pa.is_3d, chunks)
 
 
 def _rect_elementwise(a: Boxes, b: Boxes, code: int) -> np.ndarray:
-    from obbiou._kernels import pairs
-
     ca, sa = _directions(a)
     cb, sb = _directions(b)
     la, lb = _LAYOUT_CODES[a.shape], _LAYOUT_CODES[b.shape]
-    return pairs.rect_elementwise(
+    return _driver("rect_elementwise", len(a))(
         a.data, la, ca, sa, b.data, lb, cb, sb, code, a.is_3d, _chunks(len(a))
     )
 
@@ -456,9 +463,24 @@ def warmup() -> None:
         np.array([[0.0, 0.0, 0.0, 2.0, 1.0, 1.0, 0.3], [0.5, 0.2, 0.1, 1.0, 1.0, 1.0, 0.0]]),
         np.array([[[0.0, 0.0], [2.0, 0.0], [0.0, 2.0]], [[0.5, 0.5], [3.0, 0.5], [0.5, 3.0]]]),
     ]
+    from obbiou._kernels import pairs
+
     idx = np.array([0, 1], dtype=np.int64)
+    code = MEASURES["iou"]
     for data in cases:
         boxes = read_boxes(data)
         p = prepare(boxes)
-        _matrix(p, p, MEASURES["iou"])
-        _pairs(p, p, idx, idx, MEASURES["iou"])
+        for suffix in ("", "_serial"):
+            if p.kind == "poly":
+                args = (p.vertices, p.rows, p.vertices, p.rows)
+                getattr(pairs, "poly_matrix" + suffix)(*args, code)
+                getattr(pairs, "poly_pairs" + suffix)(*args, idx, idx, code, 1)
+            else:
+                getattr(pairs, p.kind + "_matrix" + suffix)(p.rows, p.rows, code, p.is_3d)
+                run = getattr(pairs, p.kind + "_pairs" + suffix)
+                run(p.rows, p.rows, idx, idx, code, p.is_3d, 1)
+            if p.kind == "rect":
+                cos, sin = _directions(boxes)
+                lay = _LAYOUT_CODES[boxes.shape]
+                run = getattr(pairs, "rect_elementwise" + suffix)
+                run(boxes.data, lay, cos, sin, boxes.data, lay, cos, sin, code, p.is_3d, 1)

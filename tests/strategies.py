@@ -73,6 +73,7 @@ __all__ = [
     "rotated_pair",
     "polygon_pair",
     "upright_pair",
+    "pair_batch",
 ]
 
 NEAR = (0.0, 100.0)
@@ -471,3 +472,22 @@ def upright_pair(draw, kind=None, centre=NEAR, sizes=SIZES) -> Pair:
     a = np.array([fa[0], fa[1], cz, fa[2], fa[3], ha, fa[4]])
     b = np.array([fb[0], fb[1], czb, fb[2], fb[3], hb, fb[4]])
     return Pair(a, b, kind)
+
+
+@st.composite
+def pair_batch(draw, pair_strategy, *, min_n=0, max_n=8):
+    """``(A, B, kinds)``: pairs from ``pair_strategy`` stacked row by row, for
+    ``elementwise=True`` tests. ``pair_strategy`` must give equal shapes for every pair
+    (rotated or upright pairs; polygon pairs only with a fixed kind keeping K, e.g.
+    ``polygon_pair("nested", k=4)``).
+
+    Example: ``pair_batch(rotated_pair(centre=FAR, sizes=FAR_SIZES), min_n=1)``.
+    """
+    n = draw(st.integers(min_n, max_n))
+    pairs = [draw(pair_strategy) for _ in range(n)]
+    if not pairs:  # empty batches still need the row shape: take it from one drawn pair
+        probe = draw(pair_strategy)
+        return np.zeros((0, *probe.a.shape)), np.zeros((0, *probe.b.shape)), []
+    a = np.stack([p.a for p in pairs])
+    b = np.stack([p.b for p in pairs])
+    return a, b, [p.kind for p in pairs]

@@ -302,6 +302,7 @@ def test_fit_known_cases():
 
 
 def test_fit_other_layouts_and_empty_input():
+    # A rectangle is its own minimum-area rectangle; the rows are in the documented normal form.
     np.testing.assert_array_equal(fit_rotated([0, 0, 4, 2]), [2, 1, 4, 2, 0])  # axis
     tall = fit_rotated([[0, 0, 2, 4]])  # axis, taller than wide
     np.testing.assert_allclose(tall, [[1, 2, 4, 2, -np.pi / 2]])
@@ -386,6 +387,7 @@ def test_canonical_same_row_from_any_description(box, how):
 
 
 def test_canonical_squares_points_and_segments():
+    # The documented normal form itself (obbiou's own rule; no outside reference).
     sq = canonical([[0, 0, 2, 2, 1.0], [0, 0, 2, 2, 1.0 - np.pi / 2], [0, 0, 2, 2, 1.0 + np.pi]])
     np.testing.assert_allclose(sq[:, 4], np.full(3, 1.0 - np.pi / 2), atol=1e-15)  # [-π/4, π/4)
     pts = canonical([[1, 2, 0, 0, 0.3], [1, 2, 0, 0, -2.0]])
@@ -410,6 +412,7 @@ def test_canonical_polygon_same_row_from_any_start_and_winding(poly, roll, rever
 
 
 def test_canonical_polygon_with_repeated_start_vertex():
+    # The documented tie rule for a repeated start vertex (own rule; no outside reference).
     p = np.array([[1, 0], [1, 1], [0, 1], [0, 0], [0, 0]], dtype=float)
     c = canonical(p, shape="polygon")
     np.testing.assert_array_equal(c, [[0, 0], [0, 0], [1, 0], [1, 1], [0, 1]])
@@ -419,6 +422,7 @@ def test_canonical_polygon_with_repeated_start_vertex():
 @MODERATE
 @given(upright_boxes(), axis_boxes(), axis3_boxes())
 def test_canonical_other_layouts(up, ax, ax3):
+    # Same heading by cos/sin (trigonometry); idempotence and no-op layouts: own rules.
     c = canonical(up)
     np.testing.assert_array_equal(c[:, :6], up[:, :6])  # heading kept: no swap
     assert np.all((-np.pi <= c[:, 6]) & (c[:, 6] < np.pi))
@@ -486,6 +490,7 @@ def test_flip_y_axis_swaps_roles(box, height):
 @MODERATE
 @given(upright_boxes(), axis3_boxes())
 def test_flip_y_3d(up, ax3):
+    # 3D flips are the 2D flips of the footprints (checked against shapely above), z kept.
     f = flip_y(up)
     np.testing.assert_array_equal(footprint(f), flip_y(footprint(up)))
     np.testing.assert_array_equal(f[:, [0, 2, 3, 4, 5]], up[:, [0, 2, 3, 4, 5]])

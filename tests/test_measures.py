@@ -217,3 +217,140 @@ def test_symmetry_and_identity(name):
 def test_public_names():
     assert obbiou.iou is iou
     assert {"iou", "giou", "diou", "intersection", "coverage"} <= set(obbiou.__all__)
+
+
+# ---------------------------------------------------------------------------------------
+# result shapes: single boxes, empty inputs, elementwise
+
+
+def test_result_shapes():
+    one = [0, 0, 2, 1, 0.3]
+    many = np.array([one, [1, 0, 2, 1, 0.0], [9, 9, 1, 1, 0.0]])
+    assert np.ndim(iou(one, one)) == 0
+    assert iou(one, many).shape == (3,)
+    assert iou(many, one).shape == (3,)
+    assert iou(many, many).shape == (3, 3)
+    assert iou(many, many[:2]).shape == (3, 2)
+    assert iou(many, many, elementwise=True).shape == (3,)
+    assert np.ndim(iou(one, one, elementwise=True)) == 0
+    for f in MEASURE_FUNCS.values():
+        assert f(np.zeros((0, 5)), many).shape == (0, 3)
+        assert f(many, np.zeros((0, 5))).shape == (3, 0)
+        assert f(np.zeros((0, 7)), np.zeros((0, 7)), elementwise=True).shape == (0,)
+        assert f(np.zeros((0, 4, 2)), np.zeros((2, 4, 2)) + corners(one)).shape == (0, 2)
+        assert f(np.zeros((0, 5)), one).shape == (0,)
+
+
+def test_zero_size_boxes_overlap_nothing():
+    boxes = [[0, 0, 0, 2, 0.0], [0, 0, 2, 0, 0.3], [0, 0, 2, 2, 0.0]]
+    m = iou(boxes, boxes)
+    assert m[0, 0] == 0.0 and m[1, 1] == 0.0 and m[0, 2] == 0.0 and m[2, 2] == 1.0
+    assert coverage(boxes, boxes)[0, 2] == 0.0
+    for f in (giou, diou):
+        assert not np.isnan(f(boxes, boxes)).any()
+    assert iou([1, 1, 1, 1], [1, 1, 1, 1]) == 0.0  # a point: 0/0 never happens
+    assert giou([1, 1, 1, 1], [1, 1, 1, 1]) == 0.0
+    assert diou([1, 1, 1, 1], [1, 1, 1, 1]) == 0.0
+    assert iou([0, 0, 0, 0, 0, 0, 0], [0, 0, 0, 1, 1, 1, 0]) == 0.0
+
+
+def test_large_inputs_use_parallel_kernels_with_same_values():
+    # Above the parallel threshold the parallel kernels run; they must agree bit for bit
+    # with the serial ones used for small inputs.
+    rng = np.random.default_rng(6)
+    a, b = random_rotated(rng, 100), random_rotated(rng, 80)
+    full = iou(a, b)
+    rows = np.vstack([iou(a[i], b) for i in range(100)])
+    assert np.array_equal(full, rows)
+    elem = iou(np.repeat(a, 80, axis=0), np.tile(b, (100, 1)), elementwise=True)
+    assert np.array_equal(elem, full.ravel())
+    first, second = np.divmod(np.arange(8000), 80)
+    got = pair_values(read_boxes(a), read_boxes(b), first, second)
+    assert np.array_equal(got, full.ravel())
+
+
+# ---------------------------------------------------------------------------------------
+# input forms
+
+
+class Tensorish:
+    """An object with ``__array__`` only, like a CPU tensor of a deep-learning framework."""
+
+    def __init__(self, data):
+        self._data = np.asarray(data)
+
+    def __array__(self, dtype=None, copy=None):
+        return self._data if dtype is None else self._data.astype(dtype)
+
+
+def test_input_forms_give_the_same_values():
+    rng = np.random.default_rng(7)
+    a = np.round(random_rotated(rng, 12), 2)
+    b = np.round(random_rotated(rng, 9), 2)
+    expected = iou(a, b)
+    assert np.array_equal(iou(a.tolist(), b.tolist()), expected)
+    assert np.array_equal(iou(Tensorish(a), Tensorish(b)), expected)
+    wide = np.zeros((12, 10))
+    wide[:, ::2] = a
+    assert np.array_equal(iou(wide[:, ::2], b), expected)  # non-contiguous
+    assert np.array_equal(iou(np.asfortranarray(a), b), expected)
+    f32 = a.astype(np.float32)
+    assert np.array_equal(iou(f32, b), iou(f32.astype(np.float64), b))
+    ints = np.array([[0, 0, 4, 4], [2, 2, 6, 6]], dtype=np.int32)
+    assert np.array_equal(iou(ints, ints[::-1]), iou(ints.astype(float), ints[::-1]))
+    assert iou(ints.astype(np.uint8), ints)[0, 1] == pytest.approx(4 / 28)
+
+
+# ---------------------------------------------------------------------------------------
+# bad input: ValueError naming the argument, the row and the reason (DESIGN section 4)
+
+
+@pytest.mark.parametrize(
+    "a, b, message",
+    [
+        ([[0, 0, 1, 1, 0.0], [0, 0, np.nan, 1, 0.0]], [0, 0, 1, 1, 0.0], r"^a\[1\]: width is NaN$"),
+        ([0, 0, 1, 1, 0.0], [[0, 0, 1, 1, 0.0], [0, np.inf, 1, 1, 0]], r"^b\[1\]: cy is \+inf$"),
+        ([[0, 0, 1, -2.0, 0.0]], [0, 0, 1, 1, 0.0], r"^a\[0\]: negative height -2\.0$"),
+        ([[0, 0, 0, 1, 1, -1.0, 0]], [0, 0, 0, 1, 1, 1, 0.0], r"^a\[0\]: negative height"),
+        ([0, 0, 1, 1], [[0, 0, 1, 1], [3, 0, 2, 1]], r"^b\[1\]: x_max 2\.0 < x_min 3\.0$"),
+        ([[0, 0, 0, 1, 1, -1]], [0, 0, 0, 1, 1, 1], r"^a\[0\]: z_max -1\.0 < z_min 0\.0$"),
+        (
+            [[[0, 0], [2, 0], [1, 1], [2, 2], [0, 2]]],
+            [[[0, 0], [1, 0], [0, 1]]],
+            r"^a\[0\]: polygon is not convex",
+        ),
+        (
+            [[[0, 0], [1, 0], [0, 1]]],
+            [[[np.cos(t), np.sin(t)] for t in np.arange(5) * 4 * np.pi / 5]],  # a pentagram
+            r"^b\[0\]: polygon crosses itself \(it winds around 2 times\)$",
+        ),
+        ([[0, 0, 1]], [0, 0, 1, 1], r"^a: array of shape \(1, 3\) matches no box layout"),
+        ([0, 0, 1, 1, 0.0], [0, 0, 0, 1, 1, 1, 0.0], r"cannot compare 2D boxes \('rotated'\)"),
+        ([[[0, 0], [1, 0], [0, 1]]], [0, 0, 1, 1, 1, 1], r"cannot compare 2D boxes \('polygon'\)"),
+        ([["a", 0, 1, 1, 0]], [0, 0, 1, 1, 0.0], r"^a: "),
+    ],
+)
+def test_invalid_input_messages(a, b, message):
+    for f in MEASURE_FUNCS.values():
+        with pytest.raises(ValueError, match=message):
+            f(a, b)
+
+
+def test_invalid_options():
+    with pytest.raises(ValueError, match=r"^a: unknown shape 'box'"):
+        iou([0, 0, 1, 1], [0, 0, 1, 1], shape="box")
+    with pytest.raises(ValueError, match=r"^a: shape='rotated' needs \(N, 5\)"):
+        iou([0, 0, 1, 1], [0, 0, 1, 1], shape="rotated")
+    with pytest.raises(ValueError, match=r"elementwise=True needs as many rows in a as in b"):
+        iou([[0, 0, 1, 1]] * 2, [[0, 0, 1, 1]] * 3, elementwise=True)
+    a = read_boxes([[0, 0, 1, 1, 0.0]] * 3)
+    with pytest.raises(ValueError, match=r"^measure: unknown 'area'"):
+        pair_values(a, a, np.array([0]), np.array([0]), measure="area")
+    with pytest.raises(ValueError, match=r"^second\[1\]: index 3 out of range for 3 boxes"):
+        pair_values(a, a, np.array([0, 1]), np.array([0, 3]))
+    with pytest.raises(ValueError, match=r"^first\[0\]: index -1 out of range"):
+        pair_values(a, a, np.array([-1]), np.array([0]))
+    with pytest.raises(ValueError, match=r"equal lengths: 2 and 1"):
+        pair_values(a, a, np.array([0, 1]), np.array([0]))
+    with pytest.raises(ValueError, match=r"^first: expected a 1-D array of integer indices"):
+        pair_values(a, a, np.array([0.5]), np.array([0]))

@@ -221,9 +221,11 @@ def test_bad_boxes_name_argument_and_row():
         overlapping_pairs([[0, 0, 1, 1]], [[2, 0, 1, 1]])
 
 
-def test_large_scene_against_shapely_strtree():
+@pytest.mark.parametrize("serial_below", [0, 10**9])  # parallel and serial kernels
+def test_large_scene_against_shapely_strtree(serial_below, monkeypatch):
     # a scene big enough to use several grid cells and size levels; reference: shapely
     # STRtree candidates + shapely intersection areas
+    monkeypatch.setattr(obbiou.scene, "_SERIAL_BELOW", serial_below)
     rng = np.random.default_rng(11)
     n = 3000
     c = rng.uniform(0, 2000, (n, 2))
@@ -247,3 +249,33 @@ def test_large_scene_against_shapely_strtree():
     # anything else found has an IoU within rounding of 0
     assert all(v <= BAND for k, v in got.items() if k not in sure)
     np.testing.assert_allclose([got[k] for k in sure], [ref[k] for k in sure], rtol=0, atol=1e-9)
+
+
+def test_extreme_coordinates_and_sizes_do_not_hang():
+    # extents near the float64 limit and sizes over 300 orders of magnitude
+    a = np.array(
+        [
+            [0, 0, 1e150, 1e150, 0.0],
+            [1e149, 0, 1e150, 1e150, 0.0],
+            [0, 0, 1e-300, 1e-300, 0.0],
+            [-1e307, 1e307, 1.0, 1.0, 0.3],
+        ]
+    )
+    p = overlapping_pairs(a)
+    dense = obbiou.iou(a, a)
+    want = {(i, j) for i in range(4) for j in range(i + 1, 4) if dense[i, j] > 0}
+    assert set(zip(p.first.tolist(), p.second.tolist(), strict=True)) == want
+
+
+def test_parallel_and_serial_kernels_agree(monkeypatch):
+    rng = np.random.default_rng(8)
+    a = make_scene(rng, "clusters", "upright", 400)
+    b = make_scene(rng, "mixed sizes", "upright", 300)
+    results = []
+    for serial_below in (0, 10**9):
+        monkeypatch.setattr(obbiou.scene, "_SERIAL_BELOW", serial_below)
+        results.append((overlapping_pairs(a, b, min_iou=0.1), overlapping_pairs(a)))
+    for x, y in zip(results[0], results[1], strict=True):
+        np.testing.assert_array_equal(x.first, y.first)
+        np.testing.assert_array_equal(x.second, y.second)
+        np.testing.assert_array_equal(x.iou, y.iou)

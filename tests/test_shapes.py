@@ -32,6 +32,7 @@ from tests.strategies import (
     coordinate,
     hull_polygon,
     length,
+    pair_batch,
     polygon_pair,
     rotated_box,
     rotated_boxes,
@@ -116,17 +117,18 @@ def test_inverted_axis(row, message):
         check([[0, 0, 1, 1], row, [5, 0, 6, 1]], name="b")
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="shapes._validate runs one check at a time over all rows (non-finite, then sizes, "
-    "then each extent pair), so it reports the first row failing the first check that fails, "
-    "not the first offending row",
-)
 @pytest.mark.parametrize(
     ("rows", "message"),
     [
         ([[0, 0, 1, 1], [0, 3, 1, 1], [5, 0, 1, 1]], "b[1]: y_max 1.0 < y_min 3.0"),
         ([[0, 0, -1, 1, 0], [0, math.nan, 1, 1, 0]], "b[0]: negative width -1.0"),
+        (
+            [
+                [[math.cos(t), math.sin(t)] for t in np.arange(5) * 4 * math.pi / 5],
+                [[0, 0], [2, 0], [1, 1], [2, 2], [0, 2]],
+            ],
+            "b[0]: polygon crosses itself (it winds around 2 times)",
+        ),
     ],
 )
 def test_the_first_offending_row_is_reported(rows, message):
@@ -165,11 +167,6 @@ def test_self_intersecting_asymmetric_bow_tie():
         check([[[0, 0], [2, 2], [2, 0], [0, 1]]])
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="shapes._validate_polygons takes the orientation from the signed area; a symmetric "
-    "bow-tie has area exactly 0, so its wrong-way turns are exempted and it passes",
-)
 def test_self_intersecting_symmetric_bow_tie():
     # A rectangle's corners in the order 0, 2, 1, 3: a common annotation mistake. The two
     # lobes cancel, so the signed area is exactly 0.
@@ -490,3 +487,12 @@ def test_pair_families_hold_against_shapely(pair):
 def test_upright_pairs_validate(pair):
     check(pair.a)
     check(pair.b)
+
+
+@settings(max_examples=25, deadline=None)
+@given(pair_batch(rotated_pair(centre=FAR, sizes=FAR_SIZES)), pair_batch(upright_pair()))
+def test_pair_batches_validate_row_by_row(rot, up):
+    for a, b, kinds in (rot, up):
+        assert a.shape == b.shape and len(kinds) == len(a)
+        np.testing.assert_array_equal(check(a, "rotated" if a.shape[-1] == 5 else "upright"), a)
+        check(b, "rotated" if b.shape[-1] == 5 else "upright")

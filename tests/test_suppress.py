@@ -308,3 +308,21 @@ def test_empty_and_single():
     assert len(suppress(np.zeros((0, 7)), np.zeros(0))) == 0
     k = suppress([1.0, 2.0, 3.0, 1.0, 0.2], 0.4)  # one box, scalar score
     assert k.indices.tolist() == [0] and k.scores.tolist() == [0.4]
+
+
+def test_parallel_and_serial_kernels_agree(monkeypatch):
+    import obbiou.scene
+
+    rng = np.random.default_rng(9)
+    boxes = make_scene(rng, "clusters", "rotated", 500)
+    scores = rng.random(500)
+    labels = rng.integers(0, 3, 500)
+    results = []
+    for serial_below in (0, 10**9):
+        monkeypatch.setattr(obbiou.scene, "_SERIAL_BELOW", serial_below)
+        results.append(
+            [suppress(boxes, scores, labels=labels, decay=d) for d in (None, "linear", "gaussian")]
+        )
+    for x, y in zip(results[0], results[1], strict=True):
+        np.testing.assert_array_equal(x.indices, y.indices)
+        np.testing.assert_array_equal(x.scores, y.scores)

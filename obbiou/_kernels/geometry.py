@@ -7,7 +7,7 @@ lists and elementwise values see bit-identical per-box data.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 # Source layout codes.
 AXIS = 0
@@ -16,12 +16,12 @@ AXIS3 = 2
 UPRIGHT = 3
 
 
-@njit(cache=True, parallel=True)
+@njit(error_model="numpy", cache=True)
 def axis_rows(data, layout):
     """Rows ``x0, y0, x1, y1, z0, z1, size`` of axis / axis3 boxes."""
     n = data.shape[0]
     rows = np.zeros((n, 7))
-    for i in prange(n):
+    for i in range(n):
         if layout == AXIS:
             x0, y0, x1, y1 = data[i, 0], data[i, 1], data[i, 2], data[i, 3]
             z0, z1 = 0.0, 0.0
@@ -40,7 +40,7 @@ def axis_rows(data, layout):
     return rows
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def rect_row(data, i, layout, cos, sin, row):
     """Fill ``row`` with ``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1,
     size, 1/hw, 1/hh`` of box ``data[i]`` (rotated, axis, or the footprint of an upright /
@@ -106,11 +106,11 @@ def rect_row(data, i, layout, cos, sin, row):
     row[15] = 1.0 / hh if hh > 0.0 else np.inf
 
 
-@njit(cache=True, parallel=True)
+@njit(error_model="numpy", cache=True)
 def rect_rows(data, layout, cos, sin):
     """Rows of :func:`rect_row` for every box."""
     n = data.shape[0]
     rows = np.empty((n, 16))
-    for i in prange(n):
+    for i in range(n):
         rect_row(data, i, layout, cos, sin, rows[i])
     return rows

@@ -173,25 +173,32 @@ def greedy_match(
 
 @njit(cache=True, parallel=True)
 def bootstrap_ap(
-    weights, det_frame, det_tp, det_fp, tp_lo, tp_hi, tp_total, fp_total, npos, kind, npoints
+    weights, mixed_frame, code, run_ptr, run_frame, tp_total, fp_total, npos, kind, npoints
 ):
     """AP of one label at every threshold for every row of frame ``weights``.
 
-    ``weights`` (B, F) int: how often each frame is drawn; ``det_frame`` (n,) the frame of
-    each detection in global ranking order; ``det_tp`` and ``det_fp`` (n, K) float64 0/1;
-    ``tp_lo`` / ``tp_hi`` (n,) the first and one past the last threshold column where the
-    row is a TP (equal: none); ``tp_total`` / ``fp_total`` (B, K) weighted totals over all n
-    rows; ``npos`` (B,) the weighted number of non-ignored truths. A frame drawn w times
-    contributes w copies of each of its detections, adjacent in the ranking. ``kind``: 0
-    all-points, 1 step sum, 2 the envelope sampled at ``npoints`` recall levels
-    q / (npoints - 1). Rows with ``npos`` 0 give NaN (undefined; the caller excludes them).
+    ``weights`` (B, F) int: how often each frame is drawn. The label's ranked detections come
+    in two kinds: the "mixed" rows (TP or ignored at some threshold), with ``mixed_frame``
+    (nm,) their frames and ``code`` (K, nm) int8 their outcome per threshold (1 TP, 2 FP,
+    0 neither), in ranking order; and the rows that are FP at every threshold, which only
+    add to a running count: ``run_frame`` holds their frames in ranking order, grouped by
+    ``run_ptr`` (nm + 1) into the run ranked below each mixed row (rows ranked above the
+    first mixed row are left out: they are in the totals and need no walk). ``tp_total`` /
+    ``fp_total`` (B, K) are the weighted totals; ``npos`` (B,) the weighted number of
+    non-ignored truths. A frame drawn w times contributes w adjacent copies of each of its
+    detections. ``kind``: 0 all-points, 1 step sum, 2 the envelope sampled at ``npoints``
+    recall levels q / (npoints - 1). Rows with ``npos`` 0 give NaN (the caller excludes them).
 
-    One backward pass per row: walking from the lowest score up, the running maximum of
-    precision is the monotone envelope at each recall level.
+    Per resample and threshold, one backward walk: from the lowest score up, the running
+    maximum of precision is the monotone envelope. For all-points AP, w copies of a TP with c
+    TPs at or above it have precisions (c - j) / (c - j + fp), j = 0 .. w-1, none above the
+    first: the envelope becomes max(envelope, c / (c + fp)) and each copy adds that value.
+    The compact (K, nm) int8 layout keeps each walk in cache.
     """
     nb = weights.shape[0]
-    n, nk = det_tp.shape
+    nk, nm = code.shape
     out = np.zeros((nb, nk))
+    scale = npoints - 1.0
     for b in prange(nb):
         pos = npos[b]
         if pos <= 0:
@@ -199,49 +206,47 @@ def bootstrap_ap(
                 out[b, k] = np.nan
             continue
         wrow = weights[b]
-        tp_c = tp_total[b].copy()
-        fp_c = fp_total[b].copy()
-        env = np.zeros(nk)
-        acc = np.zeros(nk)
-        q = np.empty(nk, dtype=np.int64)
-        scale = npoints - 1.0
+        run_sum = np.empty(nm)
+        wmix = np.empty(nm)
+        for m in range(nm):
+            s = 0.0
+            for j in range(run_ptr[m], run_ptr[m + 1]):
+                s += wrow[run_frame[j]]
+            run_sum[m] = s
+            wmix[m] = wrow[mixed_frame[m]]
         for k in range(nk):
-            q[k] = npoints - 1
-            # recall levels above the highest recall reached get precision 0
-            while q[k] >= 0 and q[k] * pos > tp_c[k] * scale:
-                q[k] -= 1
-        for i in range(n - 1, -1, -1):
-            w = wrow[det_frame[i]]
-            if w == 0:
-                continue
-            if kind != 2:
-                # branch-free over thresholds (vectorises): one step per copy of the row
-                lo, hi = tp_lo[i], tp_hi[i]
-                if hi > lo:
-                    for _ in range(w):
-                        for k in range(lo, hi):
-                            t = det_tp[i, k]
-                            c = tp_c[k]
-                            prec = c / max(c + fp_c[k], 1.0)
-                            e = max(env[k], prec)
-                            env[k] = t * e + (1.0 - t) * env[k]
-                            acc[k] += t * (prec if kind == 1 else e)
-                            tp_c[k] = c - t
-            elif tp_hi[i] > tp_lo[i]:
-                for k in range(tp_lo[i], tp_hi[i]):
-                    if det_tp[i, k] > 0.0:
-                        for _ in range(w):
-                            c = tp_c[k]
-                            prec = c / (c + fp_c[k])
-                            if prec > env[k]:
-                                env[k] = prec
-                            while q[k] >= 0 and (q[k] * pos > (c - 1.0) * scale or c == 1.0):
-                                acc[k] += env[k]
-                                q[k] -= 1
-                            tp_c[k] -= 1.0
-            wf = float(w)
-            for k in range(nk):  # branch-free: vectorises
-                fp_c[k] -= wf * det_fp[i, k]
-        for k in range(nk):
-            out[b, k] = acc[k] / npoints if kind == 2 else acc[k] / pos
+            c = tp_total[b, k]
+            fp = fp_total[b, k]
+            env = 0.0
+            total = 0.0
+            q = npoints - 1
+            while q >= 0 and q * pos > c * scale:  # recall levels never reached: precision 0
+                q -= 1
+            row = code[k]
+            for m in range(nm - 1, -1, -1):
+                fp -= run_sum[m]
+                w = wmix[m]
+                o = row[m]
+                if kind == 0:
+                    t = w if o == 1 else 0.0
+                    prec = c / max(c + fp, 1.0)
+                    e = max(env, prec)
+                    env = e if t > 0.0 else env
+                    total += t * e
+                    c -= t
+                elif o == 1:
+                    for _ in range(int(w)):
+                        prec = c / (c + fp)
+                        if kind == 1:
+                            total += prec
+                        else:
+                            if prec > env:
+                                env = prec
+                            while q >= 0 and (q * pos > (c - 1.0) * scale or c == 1.0):
+                                total += env
+                                q -= 1
+                        c -= 1.0
+                if o == 2:
+                    fp -= w
+            out[b, k] = total / npoints if kind == 2 else total / pos
     return out

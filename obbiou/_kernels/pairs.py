@@ -43,7 +43,7 @@ POLY_COLUMNS = 7
 RECT_SCRATCH = 24
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def finish(measure, inter, sa, sb, hull, d2, c2):
     """Turn an intersection (and, for GIoU/DIoU, hull size or distances) into a measure."""
     if measure == INTERSECTION:
@@ -74,7 +74,7 @@ def finish(measure, inter, sa, sb, hull, d2, c2):
 # axis-aligned boxes (axis, axis3)
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def axis_less(A, i, B, j):
     """True when row B[j] sorts before row A[i] (lexicographic on the data)."""
     for k in range(6):
@@ -83,7 +83,7 @@ def axis_less(A, i, B, j):
     return False
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def axis_pair(A, i, B, j, measure, is3d, buf):
     sa = A[i, AX_SIZE]
     sb = B[j, AX_SIZE]
@@ -121,7 +121,7 @@ def axis_pair(A, i, B, j, measure, is3d, buf):
     return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def axis_corners(R, r, ox, oy, xs, ys, at):
     x0 = R[r, AX_X0] - ox
     x1 = R[r, AX_X1] - ox
@@ -137,7 +137,7 @@ def axis_corners(R, r, ox, oy, xs, ys, at):
     ys[at + 3] = y1
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def axis_hull(P, p, Q, q, is3d, buf):
     """Convex hull area of two axis-aligned boxes (times the joint z span in 3D)."""
     ox = P[p, AX_X0]
@@ -156,48 +156,71 @@ def axis_hull(P, p, Q, q, is3d, buf):
 # rotated rectangles (rotated, upright footprints)
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def rect_less(A, i, B, j, is3d):
     """True when row B[j] sorts before row A[i] (lexicographic on centre, size, direction)."""
-    for k in range(6):
-        if B[j, k] != A[i, k]:
-            return B[j, k] < A[i, k]
+    return rect_before(rect_load(A, i), rect_load(B, j), is3d)
+
+
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_load(R, i):
+    """Row i of prepared rectangles (N, 16) as a tuple."""
+    return (
+        R[i, 0], R[i, 1], R[i, 2], R[i, 3], R[i, 4], R[i, 5], R[i, 6], R[i, 7],
+        R[i, 8], R[i, 9], R[i, 10], R[i, 11], R[i, 12], R[i, 13], R[i, 14], R[i, 15],
+    )  # fmt: skip
+
+
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_load_t(RT, j):
+    """Column j of transposed prepared rectangles (16, M) as a tuple."""
+    return (
+        RT[0, j], RT[1, j], RT[2, j], RT[3, j], RT[4, j], RT[5, j], RT[6, j], RT[7, j],
+        RT[8, j], RT[9, j], RT[10, j], RT[11, j], RT[12, j], RT[13, j], RT[14, j], RT[15, j],
+    )  # fmt: skip
+
+
+@njit(error_model="numpy", cache=True, inline="always")
+def pick(swap, a, b):
+    """b if swap else a, element by element (selects, not a branch: loops vectorise)."""
+    return (
+        b[0] if swap else a[0], b[1] if swap else a[1], b[2] if swap else a[2],
+        b[3] if swap else a[3], b[4] if swap else a[4], b[5] if swap else a[5],
+        b[6] if swap else a[6], b[7] if swap else a[7], b[8] if swap else a[8],
+        b[9] if swap else a[9], b[10] if swap else a[10], b[11] if swap else a[11],
+        b[12] if swap else a[12], b[13] if swap else a[13], b[14] if swap else a[14],
+        b[15] if swap else a[15],
+    )  # fmt: skip
+
+
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_before(a, b, is3d):
+    """True when box b sorts before box a: lexicographic on cx, cy, hw, hh, cos, sin (and
+    z0, z1 in 3D). Branch-free, so that loops over pairs vectorise."""
+    lt = b[0] < a[0]
+    eq = b[0] == a[0]
+    lt = lt | (eq & (b[1] < a[1]))
+    eq = eq & (b[1] == a[1])
+    lt = lt | (eq & (b[2] < a[2]))
+    eq = eq & (b[2] == a[2])
+    lt = lt | (eq & (b[3] < a[3]))
+    eq = eq & (b[3] == a[3])
+    lt = lt | (eq & (b[4] < a[4]))
+    eq = eq & (b[4] == a[4])
+    lt = lt | (eq & (b[5] < a[5]))
     if is3d:
-        for k in (R_Z0, R_Z1):
-            if B[j, k] != A[i, k]:
-                return B[j, k] < A[i, k]
-    return False
+        eq = eq & (b[5] == a[5])
+        lt = lt | (eq & (b[11] < a[11]))
+        eq = eq & (b[11] == a[11])
+        lt = lt | (eq & (b[12] < a[12]))
+    return lt
 
 
-@njit(cache=True)
-def relative(P, p, Q, q):
-    """Q's centre and direction in P's own frame: (px, py, cos, sin) of the angle difference.
-
-    Per-box cos/sin and the angle-difference identities: no trigonometry per pair.
-    """
-    pc = P[p, R_C]
-    ps = P[p, R_S]
-    qc = Q[q, R_C]
-    qs = Q[q, R_S]
-    dx = Q[q, R_CX] - P[p, R_CX]
-    dy = Q[q, R_CY] - P[p, R_CY]
-    px = pc * dx + ps * dy
-    py = pc * dy - ps * dx
-    if pc == qc and ps == qs:
-        c = 1.0
-        s = 0.0
-    else:
-        c = qc * pc + qs * ps
-        s = qs * pc - qc * ps
-    return px, py, c, s
-
-
-@njit(cache=True)
+@njit(error_model="numpy", cache=True, inline="always")
 def span_inside(x0, y0, rx, ry, hx, hy):
     """Length share of segment (x0, y0) + t d, t in [0, 1], inside |x| <= hx, |y| <= hy.
 
-    ``rx, ry`` are 1/dx, 1/dy (both finite and non-zero). Liang & Barsky's parametric
-    clipping (1984), branch-free.
+    ``rx, ry`` are 1/dx, 1/dy. Liang & Barsky's parametric clipping (1984), branch-free.
     """
     ta = (-hx - x0) * rx
     tb = (hx - x0) * rx
@@ -214,48 +237,54 @@ def span_inside(x0, y0, rx, ry, hx, hy):
 NEAR_PARALLEL = 1.0 / 64.0
 
 
-@njit(cache=True)
-def rect_inter(P, p, Q, q, buf):
-    """Intersection area of rectangles P[p] and Q[q], computed in P's own frame.
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_area(p, q):
+    """Intersection area of rectangles p and q (row tuples), in p's own frame: (area, redo).
 
-    There P is the axis-aligned rectangle [-hw, hw] x [-hh, hh]. Separating-axis tests on
-    both boxes' axes give exact 0 for disjoint pairs and exact sizes for nested ones. Other
-    pairs: the area is the boundary integral (1/2) * closed integral of (x dy - y dx) over
-    the boundary of the intersection, made of the parts of Q's edges inside P and of P's
-    edges inside Q, each found by parametric clipping against the other box in that box's
-    own frame. Near-parallel pairs are clipped polygon-wise (Sutherland-Hodgman) instead.
+    In p's frame p is the axis-aligned rectangle [-hw, hw] x [-hh, hh]. Per-box cos/sin and
+    the angle-difference identities: no trigonometry per pair. Separating-axis tests on both
+    boxes' axes give exact 0 for disjoint pairs, exact sizes for nested ones. Otherwise the
+    area is the boundary integral (1/2) * closed integral of (x dy - y dx) over the
+    intersection's boundary: the parts of q's edges inside p and of p's edges inside q, each
+    found by parametric clipping against the other box in that box's own frame.
+    Branch-free; ``redo`` flags near-parallel pairs, which the caller clips polygon-wise.
     """
-    phw = P[p, R_HW]
-    phh = P[p, R_HH]
-    qhw = Q[q, R_HW]
-    qhh = Q[q, R_HH]
-    px, py, c, s = relative(P, p, Q, q)
-    ux = c * qhw
+    phw = p[R_HW]
+    phh = p[R_HH]
+    qhw = q[R_HW]
+    qhh = q[R_HH]
+    pc = p[R_C]
+    ps = p[R_S]
+    qc = q[R_C]
+    qs = q[R_S]
+    dx = q[R_CX] - p[R_CX]
+    dy = q[R_CY] - p[R_CY]
+    px = pc * dx + ps * dy  # q's centre in p's frame
+    py = pc * dy - ps * dx
+    same = (pc == qc) & (ps == qs)
+    c = 1.0 if same else qc * pc + qs * ps  # cos, sin of the angle from p to q
+    s = 0.0 if same else qs * pc - qc * ps
+    ux = c * qhw  # q's half axes in p's frame
     uy = s * qhw
     vx = -s * qhh
     vy = c * qhh
-    ex = abs(ux) + abs(vx)  # half extents of Q along P's axes
+    ex = abs(ux) + abs(vx)  # q's half extents along p's axes
     ey = abs(uy) + abs(vy)
     apx = abs(px)
     apy = abs(py)
-    if apx - ex >= phw or apy - ey >= phh:
-        return 0.0
-    if apx + ex <= phw and apy + ey <= phh:
-        return Q[q, R_AREA]
-    # P's centre in Q's frame, and P's half extents along Q's axes.
-    mx = -(c * px + s * py)
+    mx = -(c * px + s * py)  # p's centre in q's frame
     my = s * px - c * py
-    fx = abs(c) * phw + abs(s) * phh
+    fx = abs(c) * phw + abs(s) * phh  # p's half extents along q's axes
     fy = abs(s) * phw + abs(c) * phh
-    if abs(mx) - fx >= qhw or abs(my) - fy >= qhh:
-        return 0.0
-    if abs(mx) + fx <= qhw and abs(my) + fy <= qhh:
-        return P[p, R_AREA]
-    if abs(c) < NEAR_PARALLEL or abs(s) < NEAR_PARALLEL:
-        return rect_clip(phw, phh, px, py, ux, uy, vx, vy, P[p, R_AREA], Q[q, R_AREA], buf)
+    amx = abs(mx)
+    amy = abs(my)
+    disjoint = (apx - ex >= phw) | (apy - ey >= phh) | (amx - fx >= qhw) | (amy - fy >= qhh)
+    q_in_p = (apx + ex <= phw) & (apy + ey <= phh)
+    p_in_q = (amx + fx <= qhw) & (amy + fy <= qhh)
     ic = 0.5 / c
     is_ = 0.5 / s
-    # Q's corners in P's frame; its edges run along 2u, 2v, -2u, -2v.
+    # q's corners in p's frame; its edges run along 2u, 2v, -2u, -2v. Each edge k -> k + d
+    # adds t_inside * cross(k, d) / 2 to the area.
     x0 = px - ux - vx
     y0 = py - uy - vy
     x1 = px + ux - vx
@@ -264,24 +293,23 @@ def rect_inter(P, p, Q, q, buf):
     y2 = py + uy + vy
     x3 = px - ux + vx
     y3 = py - uy + vy
-    rux = ic * Q[q, R_IHW]
-    ruy = is_ * Q[q, R_IHW]
-    rvx = -is_ * Q[q, R_IHH]
-    rvy = ic * Q[q, R_IHH]
-    # Each edge k -> k + d adds t_inside * cross(k, d); d = 2u etc., the 2 cancels the 1/2.
+    rux = ic * q[R_IHW]
+    ruy = is_ * q[R_IHW]
+    rvx = -is_ * q[R_IHH]
+    rvy = ic * q[R_IHH]
     sq = span_inside(x0, y0, rux, ruy, phw, phh) * (x0 * uy - y0 * ux)
     sq += span_inside(x1, y1, rvx, rvy, phw, phh) * (x1 * vy - y1 * vx)
     sq -= span_inside(x2, y2, -rux, -ruy, phw, phh) * (x2 * uy - y2 * ux)
     sq -= span_inside(x3, y3, -rvx, -rvy, phw, phh) * (x3 * vy - y3 * vx)
-    # P's corners in Q's frame; in P's frame every edge of P adds t_inside * 2 hw hh.
+    # p's corners in q's frame; measured in p's frame each edge of p adds t_inside * 2 hw hh.
     ax = c * phw
     ay = -s * phw
     bx = s * phh
     by = c * phh
-    rax = ic * P[p, R_IHW]
-    ray = -is_ * P[p, R_IHW]
-    rbx = is_ * P[p, R_IHH]
-    rby = ic * P[p, R_IHH]
+    rax = ic * p[R_IHW]
+    ray = -is_ * p[R_IHW]
+    rbx = is_ * p[R_IHH]
+    rby = ic * p[R_IHH]
     x0 = mx - ax - bx
     y0 = my - ay - by
     x1 = mx + ax - bx
@@ -294,11 +322,68 @@ def rect_inter(P, p, Q, q, buf):
     sp += span_inside(x1, y1, rbx, rby, qhw, qhh)
     sp += span_inside(x2, y2, -rax, -ray, qhw, qhh)
     sp += span_inside(x3, y3, -rbx, -rby, qhw, qhh)
-    area = sq + phw * phh * sp
-    return min(max(area, 0.0), P[p, R_AREA], Q[q, R_AREA])
+    area = min(max(sq + phw * phh * sp, 0.0), p[R_AREA], q[R_AREA])
+    area = q[R_AREA] if q_in_p else area
+    area = p[R_AREA] if p_in_q else area
+    area = 0.0 if disjoint else area
+    near = (abs(c) < NEAR_PARALLEL) | (abs(s) < NEAR_PARALLEL)
+    return area, near & ~(disjoint | q_in_p | p_in_q)
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_intersection(a, b, is3d):
+    """Intersection size of boxes a and b (row tuples), in canonical order: (size, redo).
+
+    Branch-free; ``redo`` asks the caller to recompute the pair with :func:`rect_slow`.
+    """
+    sa = a[R_SIZE]
+    sb = b[R_SIZE]
+    separate = (a[R_XMAX] <= b[R_XMIN]) | (b[R_XMAX] <= a[R_XMIN])
+    separate = separate | (a[R_YMAX] <= b[R_YMIN]) | (b[R_YMAX] <= a[R_YMIN])
+    separate = separate | (sa <= 0.0) | (sb <= 0.0)
+    dz = 1.0
+    if is3d:
+        dz = min(a[R_Z1], b[R_Z1]) - max(a[R_Z0], b[R_Z0])
+        separate = separate | (dz <= 0.0)
+    swap = rect_before(a, b, is3d)
+    area, redo = rect_area(pick(swap, a, b), pick(swap, b, a))
+    inter = min(area * dz, sa, sb) if is3d else area
+    inter = 0.0 if separate else inter
+    return inter, redo & ~separate
+
+
+@njit(error_model="numpy", cache=True)
+def rect_slow(P, p, Q, q, is3d, buf):
+    """Intersection size of P[p] and Q[q] by polygon clipping (the near-parallel path)."""
+    a = rect_load(P, p)
+    b = rect_load(Q, q)
+    if rect_before(a, b, is3d):
+        a, b = b, a
+    phw = a[R_HW]
+    phh = a[R_HH]
+    pc = a[R_C]
+    ps = a[R_S]
+    qc = b[R_C]
+    qs = b[R_S]
+    dx = b[R_CX] - a[R_CX]
+    dy = b[R_CY] - a[R_CY]
+    px = pc * dx + ps * dy
+    py = pc * dy - ps * dx
+    same = (pc == qc) & (ps == qs)
+    c = 1.0 if same else qc * pc + qs * ps
+    s = 0.0 if same else qs * pc - qc * ps
+    ux = c * b[R_HW]
+    uy = s * b[R_HW]
+    vx = -s * b[R_HH]
+    vy = c * b[R_HH]
+    area = rect_clip(phw, phh, px, py, ux, uy, vx, vy, a[R_AREA], b[R_AREA], buf)
+    if is3d:
+        dz = min(a[R_Z1], b[R_Z1]) - max(a[R_Z0], b[R_Z0])
+        return min(area * dz, a[R_SIZE], b[R_SIZE])
+    return area
+
+
+@njit(error_model="numpy", cache=True)
 def rect_clip(phw, phh, px, py, ux, uy, vx, vy, parea, qarea, buf):
     """Clip rectangle Q (centre p, half axes u, v, in P's frame) to P = [-phw, phw] x ..."""
     x1 = buf[0]
@@ -322,18 +407,26 @@ def rect_clip(phw, phh, px, py, ux, uy, vx, vy, parea, qarea, buf):
     return min(max(area, 0.0), parea, qarea)
 
 
-@njit(cache=True)
-def rect_hull(P, p, Q, q, buf):
-    """Area of the convex hull of rectangles P[p] and Q[q] (in P's frame)."""
-    phw = P[p, R_HW]
-    phh = P[p, R_HH]
-    qhw = Q[q, R_HW]
-    qhh = Q[q, R_HH]
-    px, py, c, s = relative(P, p, Q, q)
-    ux = c * qhw
-    uy = s * qhw
-    vx = -s * qhh
-    vy = c * qhh
+@njit(error_model="numpy", cache=True)
+def rect_hull(a, b, buf):
+    """Area of the convex hull of rectangles a and b (row tuples), in a's frame."""
+    phw = a[R_HW]
+    phh = a[R_HH]
+    pc = a[R_C]
+    ps = a[R_S]
+    qc = b[R_C]
+    qs = b[R_S]
+    dx = b[R_CX] - a[R_CX]
+    dy = b[R_CY] - a[R_CY]
+    px = pc * dx + ps * dy
+    py = pc * dy - ps * dx
+    same = (pc == qc) & (ps == qs)
+    c = 1.0 if same else qc * pc + qs * ps
+    s = 0.0 if same else qs * pc - qc * ps
+    ux = c * b[R_HW]
+    uy = s * b[R_HW]
+    vx = -s * b[R_HH]
+    vy = c * b[R_HH]
     xs = buf[0]
     ys = buf[1]
     xs[0] = -phw
@@ -355,62 +448,89 @@ def rect_hull(P, p, Q, q, buf):
     return hull_area(xs, ys, 8, buf[2], buf[3])
 
 
-@njit(cache=True)
-def rect_pair(A, i, B, j, measure, is3d, buf):
-    sa = A[i, R_SIZE]
-    sb = B[j, R_SIZE]
-    separate = (
-        A[i, R_XMAX] <= B[j, R_XMIN]
-        or B[j, R_XMAX] <= A[i, R_XMIN]
-        or A[i, R_YMAX] <= B[j, R_YMIN]
-        or B[j, R_YMAX] <= A[i, R_YMIN]
-    )
-    dz = 1.0
-    if is3d:
-        dz = min(A[i, R_Z1], B[j, R_Z1]) - max(A[i, R_Z0], B[j, R_Z0])
-        if dz <= 0.0:
-            separate = True
-    inter = 0.0
-    swap = False
-    if not separate and sa > 0.0 and sb > 0.0:
-        swap = rect_less(A, i, B, j, is3d)
-        if swap:
-            area = rect_inter(B, j, A, i, buf)
-        else:
-            area = rect_inter(A, i, B, j, buf)
-        inter = min(area * dz, sa, sb) if is3d else area
+@njit(error_model="numpy", cache=True)
+def rect_value(A, i, B, j, measure, is3d, buf):
+    """The measure of pair (A[i], B[j]) of prepared rectangles; every driver ends here or
+    (for IoU, intersection and coverage in all-pairs matrices) in the same arithmetic."""
+    a = rect_load(A, i)
+    b = rect_load(B, j)
+    inter, redo = rect_intersection(a, b, is3d)
+    if redo:
+        inter = rect_slow(A, i, B, j, is3d, buf)
+    sa = a[R_SIZE]
+    sb = b[R_SIZE]
     if measure == INTERSECTION or measure == IOU or measure == COVERAGE:
         return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
     if measure == DIOU:
-        dx = B[j, R_CX] - A[i, R_CX]
-        dy = B[j, R_CY] - A[i, R_CY]
-        cw = max(A[i, R_XMAX], B[j, R_XMAX]) - min(A[i, R_XMIN], B[j, R_XMIN])
-        ch = max(A[i, R_YMAX], B[j, R_YMAX]) - min(A[i, R_YMIN], B[j, R_YMIN])
+        dx = b[R_CX] - a[R_CX]
+        dy = b[R_CY] - a[R_CY]
+        cw = max(a[R_XMAX], b[R_XMAX]) - min(a[R_XMIN], b[R_XMIN])
+        ch = max(a[R_YMAX], b[R_YMAX]) - min(a[R_YMIN], b[R_YMIN])
         d2 = dx * dx + dy * dy
         c2 = cw * cw + ch * ch
         if is3d:
-            ddz = 0.5 * ((B[j, R_Z0] - A[i, R_Z0]) + (B[j, R_Z1] - A[i, R_Z1]))
-            cd = max(A[i, R_Z1], B[j, R_Z1]) - min(A[i, R_Z0], B[j, R_Z0])
+            ddz = 0.5 * ((b[R_Z0] - a[R_Z0]) + (b[R_Z1] - a[R_Z1]))
+            cd = max(a[R_Z1], b[R_Z1]) - min(a[R_Z0], b[R_Z0])
             d2 += ddz * ddz
             c2 += cd * cd
         return finish(measure, inter, sa, sb, 0.0, d2, c2)
     # GIOU
     if inter > 0.0 and inter >= min(sa, sb):
         return finish(measure, inter, sa, sb, max(sa, sb), 0.0, 0.0)
-    if rect_less(A, i, B, j, is3d):
-        hull = rect_hull(B, j, A, i, buf)
+    if rect_before(a, b, is3d):
+        hull = rect_hull(b, a, buf)
     else:
-        hull = rect_hull(A, i, B, j, buf)
+        hull = rect_hull(a, b, buf)
     if is3d:
-        hull *= max(A[i, R_Z1], B[j, R_Z1]) - min(A[i, R_Z0], B[j, R_Z0])
+        hull *= max(a[R_Z1], b[R_Z1]) - min(a[R_Z0], b[R_Z0])
     return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
+
+
+@njit(error_model="numpy", cache=True)
+def rect_row_fast(A, i, BT, out, redo):
+    """Intersection sizes of A[i] with every column of BT (transposed rows), vectorisable;
+    marks in ``redo`` the pairs to recompute with :func:`rect_value`."""
+    a = rect_load(A, i)
+    for j in range(BT.shape[1]):
+        inter, again = rect_intersection(a, rect_load_t(BT, j), False)
+        out[j] = inter
+        redo[j] = again
+
+
+@njit(error_model="numpy", cache=True)
+def rect_row_fast3(A, i, BT, out, redo):
+    a = rect_load(A, i)
+    for j in range(BT.shape[1]):
+        inter, again = rect_intersection(a, rect_load_t(BT, j), True)
+        out[j] = inter
+        redo[j] = again
+
+
+@njit(error_model="numpy", cache=True)
+def rect_matrix_row(A, i, B, BT, measure, is3d, out, redo, buf):
+    """Row i of an all-pairs matrix of rectangles."""
+    m = B.shape[0]
+    if measure == GIOU or measure == DIOU:
+        for j in range(m):
+            out[j] = rect_value(A, i, B, j, measure, is3d, buf)
+        return
+    if is3d:
+        rect_row_fast3(A, i, BT, out, redo)
+    else:
+        rect_row_fast(A, i, BT, out, redo)
+    sa = A[i, R_SIZE]
+    for j in range(m):
+        if redo[j]:
+            out[j] = rect_value(A, i, B, j, measure, is3d, buf)
+        elif measure != INTERSECTION:
+            out[j] = finish(measure, out[j], sa, B[j, R_SIZE], 0.0, 0.0, 0.0)
 
 
 # --------------------------------------------------------------------------------------
 # convex polygons
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def poly_less(VA, i, VB, j):
     """True when polygon VB[j] sorts before VA[i] (vertex count, then vertices)."""
     ka = VA.shape[1]
@@ -424,7 +544,7 @@ def poly_less(VA, i, VB, j):
     return False
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def poly_same(VA, i, VB, j):
     if VA.shape[1] != VB.shape[1]:
         return False
@@ -434,7 +554,7 @@ def poly_same(VA, i, VB, j):
     return True
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def poly_inter(VP, p, VQ, q, buf):
     """Intersection area of convex polygons VP[p] and VQ[q], relative to VP[p]'s vertex 0."""
     kp = VP.shape[1]
@@ -464,7 +584,7 @@ def poly_inter(VP, p, VQ, q, buf):
     return max(shoelace(x1, y1, n), 0.0)
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def poly_hull(VP, p, VQ, q, buf):
     kp = VP.shape[1]
     kq = VQ.shape[1]
@@ -481,7 +601,7 @@ def poly_hull(VP, p, VQ, q, buf):
     return hull_area(xs, ys, kp + kq, buf[2], buf[3])
 
 
-@njit(cache=True)
+@njit(error_model="numpy", cache=True)
 def poly_pair(VA, A, i, VB, B, j, measure, buf):
     sa = A[i, P_AREA]
     sb = B[j, P_AREA]
@@ -519,10 +639,11 @@ def poly_pair(VA, A, i, VB, B, j, measure, buf):
 
 
 # --------------------------------------------------------------------------------------
-# parallel drivers: all pairs (prange over rows) and pair lists (prange over chunks)
+# drivers: all pairs (prange over rows) and pair lists (prange over chunks); every driver
+# has a serial twin ``*_serial`` at the end of the module
 
 
-@njit(cache=True, parallel=True)
+@njit(error_model="numpy", cache=True, parallel=True)
 def axis_matrix(A, B, measure, is3d):
     n = A.shape[0]
     m = B.shape[0]
@@ -534,7 +655,7 @@ def axis_matrix(A, B, measure, is3d):
     return out
 
 
-@njit(cache=True, parallel=True)
+@njit(error_model="numpy", cache=True, parallel=True)
 def axis_pairs(A, B, first, second, measure, is3d, chunks):
     n = first.shape[0]
     out = np.empty(n)
@@ -546,19 +667,20 @@ def axis_pairs(A, B, first, second, measure, is3d, chunks):
     return out
 
 
-@njit(cache=True, parallel=True)
+@njit(error_model="numpy", cache=True, parallel=True)
 def rect_matrix(A, B, measure, is3d):
     n = A.shape[0]
     m = B.shape[0]
     out = np.empty((n, m))
+    BT = np.ascontiguousarray(B.T)
     for i in prange(n):
         buf = np.empty((4, RECT_SCRATCH))
-        for j in range(m):
-            out[i, j] = rect_pair(A, i, B, j, measure, is3d, buf)
+        redo = np.empty(m, dtype=np.bool_)
+        rect_matrix_row(A, i, B, BT, measure, is3d, out[i], redo, buf)
     return out
 
 
-@njit(cache=True, parallel=True)
+@njit(error_model="numpy", cache=True, parallel=True)
 def rect_pairs(A, B, first, second, measure, is3d, chunks):
     n = first.shape[0]
     out = np.empty(n)
@@ -566,11 +688,11 @@ def rect_pairs(A, B, first, second, measure, is3d, chunks):
     for c in prange(chunks):
         buf = np.empty((4, RECT_SCRATCH))
         for k in range(c * step, min(n, (c + 1) * step)):
-            out[k] = rect_pair(A, first[k], B, second[k], measure, is3d, buf)
+            out[k] = rect_value(A, first[k], B, second[k], measure, is3d, buf)
     return out
 
 
-@njit(cache=True, parallel=True)
+@njit(error_model="numpy", cache=True, parallel=True)
 def rect_elementwise(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
     """Row k of a with row k of b, straight from the box data: the per-box rows are built
     in scratch (the same code as ``rect_rows``), so no (N, 16) arrays are materialised."""
@@ -584,11 +706,11 @@ def rect_elementwise(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
         for k in range(c * step, min(n, (c + 1) * step)):
             rect_row(Da, k, la, ca, sa, ra[0])
             rect_row(Db, k, lb, cb, sb, rb[0])
-            out[k] = rect_pair(ra, 0, rb, 0, measure, is3d, buf)
+            out[k] = rect_value(ra, 0, rb, 0, measure, is3d, buf)
     return out
 
 
-@njit(cache=True, parallel=True)
+@njit(error_model="numpy", cache=True, parallel=True)
 def poly_matrix(VA, A, VB, B, measure):
     n = A.shape[0]
     m = B.shape[0]
@@ -601,13 +723,107 @@ def poly_matrix(VA, A, VB, B, measure):
     return out
 
 
-@njit(cache=True, parallel=True)
+@njit(error_model="numpy", cache=True, parallel=True)
 def poly_pairs(VA, A, VB, B, first, second, measure, chunks):
     n = first.shape[0]
     out = np.empty(n)
     width = 2 * (VA.shape[1] + VB.shape[1]) + 4
     step = (n + chunks - 1) // chunks
     for c in prange(chunks):
+        buf = np.empty((6, width))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            out[k] = poly_pair(VA, A, first[k], VB, B, second[k], measure, buf)
+    return out
+
+
+# Serial twins of the drivers above, for small inputs: starting threads costs more than
+# the work (and a first call then loads no threading layer). Same per-pair code.
+
+
+@njit(error_model="numpy", cache=True)
+def axis_matrix_serial(A, B, measure, is3d):
+    n = A.shape[0]
+    m = B.shape[0]
+    out = np.empty((n, m))
+    for i in range(n):
+        buf = np.empty((4, RECT_SCRATCH))
+        for j in range(m):
+            out[i, j] = axis_pair(A, i, B, j, measure, is3d, buf)
+    return out
+
+
+@njit(error_model="numpy", cache=True)
+def axis_pairs_serial(A, B, first, second, measure, is3d, chunks):
+    n = first.shape[0]
+    out = np.empty(n)
+    step = (n + chunks - 1) // chunks
+    for c in range(chunks):
+        buf = np.empty((4, RECT_SCRATCH))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            out[k] = axis_pair(A, first[k], B, second[k], measure, is3d, buf)
+    return out
+
+
+@njit(error_model="numpy", cache=True)
+def rect_matrix_serial(A, B, measure, is3d):
+    n = A.shape[0]
+    m = B.shape[0]
+    out = np.empty((n, m))
+    for i in range(n):
+        buf = np.empty((4, RECT_SCRATCH))
+        for j in range(m):
+            out[i, j] = rect_value(A, i, B, j, measure, is3d, buf)
+    return out
+
+
+@njit(error_model="numpy", cache=True)
+def rect_pairs_serial(A, B, first, second, measure, is3d, chunks):
+    n = first.shape[0]
+    out = np.empty(n)
+    step = (n + chunks - 1) // chunks
+    for c in range(chunks):
+        buf = np.empty((4, RECT_SCRATCH))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            out[k] = rect_value(A, first[k], B, second[k], measure, is3d, buf)
+    return out
+
+
+@njit(error_model="numpy", cache=True)
+def rect_elementwise_serial(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
+    n = Da.shape[0]
+    out = np.empty(n)
+    step = (n + chunks - 1) // chunks
+    for c in range(chunks):
+        buf = np.empty((4, RECT_SCRATCH))
+        ra = np.empty((1, RECT_COLUMNS))
+        rb = np.empty((1, RECT_COLUMNS))
+        for k in range(c * step, min(n, (c + 1) * step)):
+            rect_row(Da, k, la, ca, sa, ra[0])
+            rect_row(Db, k, lb, cb, sb, rb[0])
+            out[k] = rect_value(ra, 0, rb, 0, measure, is3d, buf)
+    return out
+
+
+@njit(error_model="numpy", cache=True)
+def poly_matrix_serial(VA, A, VB, B, measure):
+    n = A.shape[0]
+    m = B.shape[0]
+    out = np.empty((n, m))
+    width = 2 * (VA.shape[1] + VB.shape[1]) + 4
+    for i in range(n):
+        buf = np.empty((6, width))
+        for j in range(m):
+            out[i, j] = poly_pair(VA, A, i, VB, B, j, measure, buf)
+    return out
+
+
+@njit(error_model="numpy", cache=True)
+def poly_pairs_serial(VA, A, VB, B, first, second, measure, chunks):
+    n = first.shape[0]
+    out = np.empty(n)
+    width = 2 * (VA.shape[1] + VB.shape[1]) + 4
+    step = (n + chunks - 1) // chunks
+    for c in range(chunks):
         buf = np.empty((6, width))
         for k in range(c * step, min(n, (c + 1) * step)):
             out[k] = poly_pair(VA, A, first[k], VB, B, second[k], measure, buf)

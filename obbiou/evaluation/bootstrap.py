@@ -82,17 +82,22 @@ def resampled_ap(ranking: LabelRanking, weights: np.ndarray, kind: int, npoints:
     tp_total = np.ascontiguousarray(wf @ per_frame_tp)
     fp_total = np.ascontiguousarray(wf @ per_frame_fp)
     npos = wf @ ranking.positives.astype(np.float64)
-    # the span of threshold columns where each row is a TP (the kernel walks only that span)
-    any_tp = r.tp.any(axis=1)
-    lo = np.where(any_tp, np.argmax(r.tp, axis=1), 0).astype(np.int64)
-    hi = np.where(any_tp, nk - np.argmax(r.tp[:, ::-1], axis=1), 0).astype(np.int64)
+    # rows FP at every threshold only add to one running count: group them into the runs
+    # ranked below each other ("mixed") row; those ranked above every mixed row change no AP
+    # beyond the totals
+    pure = r.fp.all(axis=1)
+    mixed = np.flatnonzero(~pure)
+    pure_rows = np.flatnonzero(pure)
+    pure_rows = pure_rows[pure_rows > (mixed[0] if len(mixed) else len(pure))]
+    run_of = np.searchsorted(mixed, pure_rows, side="left") - 1
+    run_ptr = np.r_[0, np.cumsum(np.bincount(run_of, minlength=len(mixed)))].astype(np.int64)
+    code = np.where(r.tp[mixed], 1, np.where(r.fp[mixed], 2, 0)).astype(np.int8)
     return bootstrap_ap(
         np.ascontiguousarray(weights),
-        frame,
-        np.ascontiguousarray(r.tp, dtype=np.float64),
-        np.ascontiguousarray(r.fp, dtype=np.float64),
-        lo,
-        hi,
+        frame[mixed].astype(np.int32),
+        np.ascontiguousarray(code.T),
+        run_ptr,
+        frame[pure_rows].astype(np.int32),
         tp_total,
         fp_total,
         npos,

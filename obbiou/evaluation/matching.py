@@ -210,7 +210,7 @@ class MatchRecords:
         """The same records sorted by (frame, rank): one order however they were split."""
         frames = _common_ids([self.det_frame, self.truth_frame])
         both = np.concatenate(frames)
-        _, codes = np.unique(both, return_inverse=True)
+        _, codes = sorted_codes(both)
         dcode, tcode = codes[: self.n_detections], codes[self.n_detections :]
         d = np.lexsort((self.det_rank, dcode))
         t = np.lexsort((self.truth_rank, tcode))
@@ -223,6 +223,27 @@ class MatchRecords:
                 v = (frames[1] if f.name == "truth_frame" else v)[t]
             values[f.name] = v
         return MatchRecords(**values)
+
+
+def sorted_codes(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Sorted distinct values and the code (index into them) of each value.
+
+    Same result as ``np.unique(values, return_inverse=True)``, by hashing (fast for text).
+
+    Examples
+    --------
+    >>> u, c = sorted_codes(np.array(["b", "a", "b"], dtype=object))
+    >>> u.tolist(), c.tolist()
+    (['a', 'b'], [1, 0, 1])
+    """
+    import pandas as pd
+
+    codes, uniques = pd.factorize(values, sort=False)
+    uniques = np.asarray(uniques, dtype=values.dtype if values.dtype.kind != "U" else object)
+    order = np.argsort(uniques, kind="stable")
+    rank = np.empty(len(order), dtype=np.int64)
+    rank[order] = np.arange(len(order))
+    return uniques[order], rank[codes] if len(codes) else np.zeros(0, dtype=np.int64)
 
 
 def _common_ids(arrays: list[np.ndarray]) -> list[np.ndarray]:
@@ -354,12 +375,10 @@ def _match_tables(
 
     n, m, nk = len(dets), len(truth), len(thr)
     tframe, dframe = _common_ids([truth.frame, dets.frame])
-    uniq, codes = np.unique(np.concatenate([dframe, tframe]), return_inverse=True)
+    uniq, codes = sorted_codes(np.concatenate([dframe, tframe]))
     dcode, tcode = codes[:n].astype(np.int64), codes[n:].astype(np.int64)
     nframes = len(uniq)
-    _, lcodes = np.unique(
-        np.concatenate([dets.label, truth.label]).astype(str), return_inverse=True
-    )
+    _, lcodes = sorted_codes(np.concatenate([dets.label, truth.label]).astype(object))
     dlab, tlab = lcodes[:n].astype(np.int64), lcodes[n:].astype(np.int64)
     drank, trank = _rank_in_group(dcode), _rank_in_group(tcode)
 

@@ -41,7 +41,7 @@ def plot_curves(evaluation: Evaluation, path: str, *, iou: float | None = None) 
         colour = _LINE_COLOURS[i % len(_LINE_COLOURS)]
         style = _LINE_STYLES[(i // len(_LINE_COLOURS)) % len(_LINE_STYLES)]
         r = np.r_[0.0, c.recall]
-        p = np.r_[1.0 if len(c.precision) else 0.0, c.precision]
+        p = np.r_[c.precision[:1] if len(c.precision) else 0.0, c.precision]
         envelope = np.maximum.accumulate(p[::-1])[::-1]
         ax.plot(r, p, color=colour, linestyle=style, linewidth=1.0, alpha=0.45)
         ax.step(

@@ -27,6 +27,7 @@ from obbiou.evaluation.matching import (
     _common_ids,
     match_frames,
     parse_thresholds,
+    sorted_codes,
 )
 from obbiou.evaluation.tables import Table, read_table
 
@@ -121,12 +122,10 @@ class Evaluation:
         self.buckets: dict[str, dict[str, Evaluation]] = {}
         r = records
         frames = _common_ids([r.det_frame, r.truth_frame])
-        self.frames, codes = np.unique(np.concatenate(frames), return_inverse=True)
+        self.frames, codes = sorted_codes(np.concatenate(frames))
         self._dcode = codes[: r.n_detections].astype(np.int64)
         self._tcode = codes[r.n_detections :].astype(np.int64)
-        names, lcodes = np.unique(
-            np.concatenate([r.det_label, r.truth_label]).astype(str), return_inverse=True
-        )
+        names, lcodes = sorted_codes(np.concatenate([r.det_label, r.truth_label]).astype(object))
         self.labels: tuple[str, ...] = tuple(str(v) for v in names)
         self._dlabel = lcodes[: r.n_detections]
         self._tlabel = lcodes[r.n_detections :]
@@ -616,7 +615,7 @@ def _check_whole_frames(rec: MatchRecords) -> None:
     ):
         if not len(rank):
             continue
-        _, codes = np.unique(frame, return_inverse=True)
+        _, codes = sorted_codes(frame)
         counts = np.bincount(codes)
         expected = np.arange(len(rank)) - np.repeat(np.r_[0, np.cumsum(counts)[:-1]], counts)
         if not np.array_equal(rank, expected):

@@ -258,16 +258,17 @@ def _first_empty(values: np.ndarray) -> int | None:
     if values.dtype.kind == "f":
         bad = np.isnan(values)
     else:
-        series = pd.Series(values, dtype=object)
-        bad = series.isna().to_numpy().copy()
-        text = series.map(lambda v: isinstance(v, str)).to_numpy().astype(bool)
-        if text.any():
-            bad |= text & (series.where(text, "x").str.strip() == "").to_numpy().astype(bool)
+        bad = np.asarray(pd.isna(values), dtype=bool).copy()
+        if not bad.any():
+            text = values.astype(str)  # vectorised; blank text is an empty cell too
+            bad = np.char.str_len(np.char.strip(text)) == 0
     return int(np.argmax(bad)) if bad.any() else None
 
 
 def _ids(values: np.ndarray, column: str, where: _Where, *, text: bool) -> np.ndarray:
     """Frame ids (int64 when all integral, else str) or labels (``text=True``: always str)."""
+    import pandas as pd
+
     i = _first_empty(values)
     if i is not None:
         raise ValueError(f"{where(i, column)}: empty value")
@@ -276,12 +277,11 @@ def _ids(values: np.ndarray, column: str, where: _Where, *, text: bool) -> np.nd
     ):
         ints = values.astype(np.int64)
         return ints.astype(str).astype(object) if text else ints
-    if values.dtype.kind == "O" and all(
-        isinstance(v, (int, np.integer)) and not isinstance(v, bool) for v in values
-    ):
+    inferred = pd.api.types.infer_dtype(values, skipna=False)
+    if inferred == "integer":
         ints = values.astype(np.int64)
         return ints.astype(str).astype(object) if text else ints
-    if values.dtype.kind in "OU" and all(isinstance(v, str) for v in values):
+    if inferred == "string":
         return values.astype(object)
     out = np.empty(len(values), dtype=object)
     for i, v in enumerate(values):

@@ -1,0 +1,179 @@
+"""Property tests (hypothesis): measures against shapely, invariances, ranges, no NaN."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, assume, given, settings
+from hypothesis import strategies as st
+
+from obbiou.boxes import corners
+from obbiou.measures import coverage, diou, giou, intersection, iou
+
+shapely = pytest.importorskip("shapely")
+
+SETTINGS = settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+offsets = st.sampled_from([0.0, 0.0, 1e3, -5e5, 1e6])
+sizes = st.floats(1.0, 100.0)
+angles = st.floats(-math.pi, math.pi)
+# Sizes of zero (valid: overlaps nothing) or well above rounding of the coordinates.
+maybe_zero = st.one_of(st.just(0.0), st.floats(1e-3, 10))
+
+
+@st.composite
+def rotated_pairs(draw):
+    """A pair of rotated boxes near each other (often overlapping), maybe far from 0."""
+    off_x, off_y = draw(offsets), draw(offsets)
+    a = [off_x + draw(st.floats(-10, 10)), off_y + draw(st.floats(-10, 10))]
+    a += [draw(sizes), draw(sizes), draw(angles)]
+    kind = draw(st.sampled_from(["random", "same centre", "same angle", "near parallel"]))
+    b = [a[0] + draw(st.floats(-60, 60)), a[1] + draw(st.floats(-60, 60))]
+    b += [draw(sizes), draw(sizes), draw(angles)]
+    if kind == "same centre":
+        b[:2] = a[:2]
+    elif kind == "same angle":
+        b[4] = a[4]
+    elif kind == "near parallel":
+        b[4] = a[4] + draw(st.sampled_from([1e-12, -1e-12, 1e-9, math.pi / 2 + 1e-12]))
+    return np.array(a), np.array(b), (off_x, off_y)
+
+
+@st.composite
+def convex_polygons(draw, k_min=3, k_max=8):
+    """A convex polygon: points on a circle (distinct angles), stretched, turned, moved."""
+    k = draw(st.integers(k_min, k_max))
+    gaps = np.array(draw(st.lists(st.floats(0.2, 1.0), min_size=k, max_size=k)))
+    theta = np.cumsum(gaps) / gaps.sum() * 2 * math.pi
+    r = draw(sizes) / 2
+    sx, sy = draw(st.floats(0.3, 1.0)), draw(st.floats(0.3, 1.0))
+    pts = np.column_stack([r * sx * np.cos(theta), r * sy * np.sin(theta)])
+    t = draw(angles)
+    c, s = math.cos(t), math.sin(t)
+    pts = pts @ np.array([[c, s], [-s, c]])
+    return pts + [draw(st.floats(-40, 40)), draw(st.floats(-40, 40))]
+
+
+def shapely_measures(pa, pb):
+    """Intersection, IoU and GIoU by shapely (the outside reference)."""
+    ga, gb = shapely.Polygon(pa), shapely.Polygon(pb)
+    inter = ga.intersection(gb).area
+    union = ga.area + gb.area - inter
+    hull = shapely.union(ga, gb).convex_hull.area
+    return inter, inter / union, inter / union - (hull - union) / hull
+
+
+@SETTINGS
+@given(rotated_pairs())
+def test_rotated_pairs_against_shapely(pair):
+    a, b, (ox, oy) = pair
+    # shapely works on the pair moved near the origin (it would lose digits at 1e6; the
+    # shift is exact for such nearby boxes); obbiou gets the boxes where they are.
+    shift = np.array([ox, oy, 0, 0, 0])
+    inter, ref_iou, ref_giou = shapely_measures(corners(a - shift), corners(b - shift))
+    assert iou(a, b) == pytest.approx(ref_iou, abs=1e-9)  # shapely reference
+    assert giou(a, b) == pytest.approx(ref_giou, abs=1e-9)  # shapely hull reference
+    assert intersection(a, b) == pytest.approx(inter, abs=1e-9 * a[2] * a[3] + 1e-9)
+    assert iou(a, b) == iou(b, a)
+    assert giou(a, b) == giou(b, a)
+
+
+@SETTINGS
+@given(convex_polygons(), convex_polygons(), offsets)
+def test_convex_polygons_against_shapely(pa, pb, offset):
+    _, ref_iou, ref_giou = shapely_measures(pa, pb)
+    a, b = pa + offset, pb + offset
+    assert iou(a, b, shape="polygon") == pytest.approx(ref_iou, abs=1e-9)  # shapely
+    assert giou(a, b, shape="polygon") == pytest.approx(ref_giou, abs=1e-9)  # shapely
+    assert iou(a[::-1], b, shape="polygon") == pytest.approx(ref_iou, abs=1e-9)  # clockwise
+    assert iou(a, b, shape="polygon") == iou(b, a, shape="polygon")
+
+
+@SETTINGS
+@given(convex_polygons(4, 4), rotated_pairs())
+def test_polygon_with_rotated_against_shapely(quad, pair):
+    box = pair[0] - [pair[2][0], pair[2][1], 0, 0, 0]
+    box[:2] = quad.mean(axis=0) + np.clip(box[:2], -20, 20)
+    _, ref_iou, _ = shapely_measures(quad, corners(box))
+    assert iou(quad[None], box[None])[0, 0] == pytest.approx(ref_iou, abs=1e-9)  # shapely
+
+
+# ---------------------------------------------------------------------------------------
+# invariances (common practice, no source: the measures depend on shapes, not frames)
+
+
+@SETTINGS
+@given(rotated_pairs(), st.floats(-1e5, 1e5), st.floats(-1e5, 1e5), angles)
+def test_translation_and_common_rotation(pair, tx, ty, turn):
+    a, b, _ = pair
+    base = iou(a, b)
+    moved = iou(a + [tx, ty, 0, 0, 0], b + [tx, ty, 0, 0, 0])
+    assert moved == pytest.approx(base, abs=1e-9)
+    c, s = math.cos(turn), math.sin(turn)
+
+    def spin(box):
+        return [c * box[0] - s * box[1], s * box[0] + c * box[1], box[2], box[3], box[4] + turn]
+
+    assert iou(spin(a), spin(b)) == pytest.approx(base, abs=1e-9)
+
+
+@SETTINGS
+@given(rotated_pairs(), st.sampled_from([0.5, 2.0, 1024.0, 3.0, 0.1]))
+def test_uniform_scaling(pair, k):
+    a, b, _ = pair
+    scale = np.array([k, k, k, k, 1.0])
+    for f in (iou, giou, diou):
+        if k in (0.5, 2.0, 1024.0):  # powers of two scale every float exactly
+            assert f(a * scale, b * scale) == f(a, b)
+        else:
+            assert f(a * scale, b * scale) == pytest.approx(f(a, b), abs=1e-9)
+
+
+@SETTINGS
+@given(
+    st.lists(
+        st.tuples(st.floats(-20, 20), st.floats(-20, 20), maybe_zero, maybe_zero, angles),
+        min_size=1,
+        max_size=12,
+    )
+)
+def test_ranges_and_no_nan(rows):
+    boxes = np.array(rows)  # widths / heights may be 0: zero-size boxes overlap nothing
+    for f, lo, hi in ((iou, 0, 1), (giou, -1, 1), (diou, -1, 1), (coverage, 0, 1)):
+        m = f(boxes, boxes[::-1])
+        assert not np.isnan(m).any()
+        assert ((m >= lo) & (m <= hi)).all()
+    area = boxes[:, 2] * boxes[:, 3]
+    assert (intersection(boxes, boxes[::-1]) <= np.minimum.outer(area, area[::-1]) + 1e-12).all()
+    positive = area > 0
+    assert (np.diag(iou(boxes, boxes))[positive] == 1.0).all()
+    assert (iou(boxes, boxes)[~positive] == 0.0).all()
+
+
+@SETTINGS
+@given(
+    st.lists(
+        st.tuples(
+            st.floats(-5, 5),
+            st.floats(-5, 5),
+            st.floats(-2, 2),
+            maybe_zero,
+            maybe_zero,
+            maybe_zero,
+            angles,
+        ),
+        min_size=1,
+        max_size=10,
+    )
+)
+def test_upright_ranges_symmetry_identity(rows):
+    boxes = np.array(rows)
+    for f, lo, hi in ((iou, 0, 1), (giou, -1, 1), (diou, -1, 1), (coverage, 0, 1)):
+        m = f(boxes, boxes[::-1])
+        assert not np.isnan(m).any() and ((m >= lo) & (m <= hi)).all()
+    assert np.array_equal(iou(boxes, boxes[::-1]), iou(boxes[::-1], boxes).T)
+    volume = np.prod(boxes[:, 3:6], axis=1)
+    assume(volume.max() > 0)
+    assert (np.diag(iou(boxes, boxes))[volume > 0] == 1.0).all()
