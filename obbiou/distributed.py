@@ -41,7 +41,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["evaluate_distributed", "overlapping_pairs_distributed", "connect"]
+__all__ = ["evaluate_distributed", "overlapping_pairs_distributed", "connect", "TaskFailed"]
 
 _INSTALL_HINT = "pip install 'obbiou[dask]'"
 
@@ -51,6 +51,11 @@ _CONNECT_SECONDS = 20
 #: Environment of local worker processes: one worker thread each, so the numba kernels run
 #: on one thread too instead of every process starting a thread per core.
 _ONE_THREAD = {"NUMBA_NUM_THREADS": "1", "OMP_NUM_THREADS": "1"}
+
+
+class TaskFailed(RuntimeError):
+    """A task on the cluster failed for a reason other than bad input (a partition that
+    could not be loaded, a worker that died); the message names the partition or bucket."""
 
 
 def _require_dask() -> Any:
@@ -318,7 +323,7 @@ def _wait(
     """Wait for ``futures`` with a progress bar; raise at the first failure, naming it.
 
     A task that raises surfaces at once (the others are cancelled) as a ``ValueError`` for
-    bad input or a ``RuntimeError`` otherwise, with the partition's name in front. A run
+    bad input or a :class:`TaskFailed` otherwise, with the partition's name in front. A run
     that takes longer than ``timeout`` seconds raises ``TimeoutError``.
     """
     distributed = _require_dask()
@@ -335,10 +340,10 @@ def _wait(
                 client.cancel(list(futures))
                 if isinstance(exc, ValueError):
                     raise ValueError(f"{name}: {exc}") from exc
-                raise RuntimeError(f"{name}: task failed: {type(exc).__name__}: {exc}") from exc
+                raise TaskFailed(f"{name}: task failed: {type(exc).__name__}: {exc}") from exc
             if fut.status == "cancelled":
                 client.cancel(list(futures))
-                raise RuntimeError(f"{by_key.get(fut.key, stage)}: task was cancelled")
+                raise TaskFailed(f"{by_key.get(fut.key, stage)}: task was cancelled")
             bar.update(1)
     except TimeoutError:
         client.cancel(list(futures))
@@ -606,7 +611,7 @@ def evaluate_distributed(
     ------
     ValueError
         Bad input, naming the partition, then the row and the column.
-    RuntimeError
+    TaskFailed
         Any other failing task (a worker that died, a partition that could not be loaded),
         naming the partition or bucket.
     TimeoutError
@@ -968,7 +973,7 @@ def overlapping_pairs_distributed(
     ValueError
         Bad input, naming the partition and the row (``a partition 3 of 8 (Parquet dataset
         'scene/'): row[17]: negative width -3.0``).
-    RuntimeError
+    TaskFailed
         Any other failing task, naming the partition or tile.
 
     Examples

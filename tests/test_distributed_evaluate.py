@@ -22,7 +22,7 @@ pd = pytest.importorskip("pandas")
 dd = pytest.importorskip("dask.dataframe")
 evaluation = pytest.importorskip("obbiou.evaluation")
 
-from obbiou.distributed import evaluate_distributed  # noqa: E402
+from obbiou.distributed import TaskFailed, evaluate_distributed  # noqa: E402
 
 BOX = ["cx", "cy", "width", "height", "angle"]
 
@@ -200,7 +200,7 @@ def test_failing_task_surfaces_as_clear_error_in_bounded_time(client, tables):
     meta = synthetic_tables(3, seed=0)[1].iloc[:0]
     dets = dd.from_map(_load_partition, range(4), meta=meta)
     start = time.monotonic()
-    with pytest.raises(RuntimeError, match=r"detections partition 2 of 4 .*OSError: simulated"):
+    with pytest.raises(TaskFailed, match=r"detections partition 2 of 4 .*OSError: simulated"):
         evaluate_distributed(truth, dets, client=client, timeout=60)
     assert time.monotonic() - start < 60
     # The cluster is still usable afterwards.
