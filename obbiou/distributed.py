@@ -165,15 +165,15 @@ def connect(
         return
     except ValueError:  # no default client
         pass
-    with (
-        distributed.LocalCluster(
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message="Port .* is already in use")
+        cluster = distributed.LocalCluster(
             n_workers=1,
             threads_per_worker=os.cpu_count() or 1,
             processes=False,
             dashboard_address=None,
-        ) as cluster,
-        distributed.Client(cluster) as made,
-    ):
+        )
+    with cluster, distributed.Client(cluster) as made:
         yield made
 
 
@@ -715,34 +715,21 @@ def evaluate_distributed(
 # Tiled scene overlap
 
 
-def _box_columns(shape: str) -> tuple[str, ...]:
-    from obbiou.shapes import COLUMNS
+def _table_layout(columns: Sequence[Any], shape: str | None, what: str) -> tuple[str, list]:
+    """The layout of a box table and its box columns, by the rules tables are read by in
+    :func:`obbiou.evaluation.read_table` (the same column names, the same inference)."""
+    from obbiou.evaluation.tables import _infer_layout, _polygon_vertices, box_columns
 
-    if shape == "polygon":
-        return tuple(f"p{axis}{k}" for k in range(4) for axis in "xy")
-    return COLUMNS[shape]
-
-
-def _table_shape(columns: Sequence[str], shape: str | None, what: str) -> str:
-    """The layout of a box table from its columns (or check the one given)."""
-    from obbiou.shapes import SHAPES
-
-    present = set(columns)
-    if shape is not None:
-        if shape not in SHAPES:
-            raise ValueError(f"{what}: unknown shape {shape!r}")
-        missing = [c for c in _box_columns(shape) if c not in present]
-        if missing:
-            raise ValueError(f"{what}: shape={shape!r} needs column(s) {', '.join(missing)}")
-        return shape
-    for candidate in ("upright", "rotated", "axis3", "axis", "polygon"):
-        if all(c in present for c in _box_columns(candidate)):
-            return candidate
-    raise ValueError(
-        f"{what}: no box columns found (columns: {', '.join(map(str, columns))}); expected "
-        "cx cy width height angle (rotated), cx cy cz length width height yaw (upright), "
-        "x_min y_min x_max y_max (axis), the axis3 columns or px0 py0 ... py3 (polygon)"
-    )
+    names = {str(c) for c in columns}
+    layout = shape if shape is not None else _infer_layout(names, what)
+    vertices = _polygon_vertices(names) if layout == "polygon" else 0
+    cols = list(box_columns(layout, max(vertices, 3)))
+    missing = [c for c in cols if c not in names]
+    if missing:
+        raise ValueError(
+            f"{what}: missing column {missing[0]!r} (shape {layout!r} needs {' '.join(cols)})"
+        )
+    return layout, cols
 
 
 def _boxes_of(part: Any, shape: str | None, what: str) -> tuple[np.ndarray, str]:
@@ -752,14 +739,13 @@ def _boxes_of(part: Any, shape: str | None, what: str) -> tuple[np.ndarray, str]
     from obbiou.shapes import read_boxes
 
     if isinstance(part, pd.DataFrame):
-        layout = _table_shape(list(part.columns), shape, what)
-        cols = list(_box_columns(layout))
+        layout, cols = _table_layout(list(part.columns), shape, "table")
         try:
             data = part[cols].to_numpy(dtype=np.float64)
         except (TypeError, ValueError) as exc:
             raise ValueError(f"non-numeric value in the box columns ({exc})") from None
         if layout == "polygon":
-            data = data.reshape(-1, 4, 2)
+            data = data.reshape(len(data), -1, 2)
         boxes = read_boxes(data, layout, name="row")
     else:
         boxes = read_boxes(part, shape, name="row")
