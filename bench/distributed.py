@@ -41,9 +41,8 @@ _HERE = Path(__file__).resolve().parent
 sys.path[:] = [p for p in sys.path if Path(p or ".").resolve() != _HERE]
 sys.path.insert(0, str(_HERE.parent))
 
-from obbiou.evaluation import evaluate  # noqa: E402
-
 from obbiou.distributed import evaluate_distributed, overlapping_pairs_distributed  # noqa: E402
+from obbiou.evaluation import evaluate  # noqa: E402
 
 LABELS = np.array(["vessel", "container", "crane"])
 

@@ -118,47 +118,83 @@ def _numbers(text: str | None, option: str) -> list[float] | None:
 def details_text(evaluation: Any, iou: float | None = None) -> str:
     """Causes of false positives and misses per label, and the orientation error, as text.
 
-    ``iou`` defaults to the evaluation's lowest threshold.
+    Each label is reported at ``iou`` or, by default, at its own lowest threshold (labels
+    may have thresholds of their own).
     """
     import math
 
-    t = min(evaluation.thresholds) if iou is None else float(iou)
-    fps = evaluation.false_positives(t)
-    misses = evaluation.misses(t)
-    width = max([len(str(lab)) for lab in fps] + [5])
-    lines = [f"False positives at IoU {t:g} by cause:"]
-    row = f"  {{:<{width}}}  {{:>9}}  {{:>11}}  {{:>11}}  {{:>10}}  {{:>6}}"
+    per_label = evaluation.to_dict(breakdowns=False)["labels"]
+    at: dict[str, float] = {}
+    for lab, entry in per_label.items():
+        own = sorted(float(k) for k in entry["ap"])
+        if iou is None:
+            at[lab] = own[0]
+        elif any(abs(float(iou) - v) < 1e-9 for v in own):
+            at[lab] = float(iou)
+    fps: dict[str, Any] = {}
+    misses: dict[str, Any] = {}
+    for t in sorted(set(at.values())):
+        for lab, c in evaluation.false_positives(t).items():
+            if at.get(lab) == t:
+                fps[lab] = c
+        for lab, c in evaluation.misses(t).items():
+            if at.get(lab) == t:
+                misses[lab] = c
+    width = max([len(str(lab)) for lab in at] + [5])
+    row = f"  {{:<{width}}}  {{:>5}}  {{:>9}}  {{:>11}}  {{:>11}}  {{:>10}}  {{:>6}}"
+    lines = ["False positives by cause:"]
     lines.append(
-        row.format("label", "duplicate", "wrong label", "poor boxes", "background", "total")
+        row.format(
+            "label", "IoU>=", "duplicate", "wrong label", "poor boxes", "background", "total"
+        )
     )
     for lab, c in fps.items():
         lines.append(
-            row.format(lab, c.duplicate, c.wrong_label, c.poor_localisation, c.background, c.total)
+            row.format(
+                lab,
+                f"{at[lab]:.2f}",
+                c.duplicate,
+                c.wrong_label,
+                c.poor_localisation,
+                c.background,
+                c.total,
+            )
         )
-    lines.append(f"Missed truths at IoU {t:g} by cause:")
-    lines.append(row.format("label", "crowded", "wrong label", "poor boxes", "not found", "total"))
+    lines.append("Missed truths by cause:")
+    lines.append(
+        row.format("label", "IoU>=", "crowded", "wrong label", "poor boxes", "not found", "total")
+    )
     for lab, c in misses.items():
         lines.append(
-            row.format(lab, c.crowded, c.wrong_label, c.poor_localisation, c.not_detected, c.total)
+            row.format(
+                lab,
+                f"{at[lab]:.2f}",
+                c.crowded,
+                c.wrong_label,
+                c.poor_localisation,
+                c.not_detected,
+                c.total,
+            )
         )
     if evaluation.records.shape not in ("axis", "axis3"):
-        period = (
-            "heading modulo 360°"
-            if evaluation.records.shape == "upright"
-            else ("angle modulo 180°")
-        )
-        lines.append(f"Orientation error of matched pairs at IoU {t:g} ({period}, degrees):")
-        lines.append(row.format("label", "pairs", "mean", "median", "90th pct", "flipped"))
-        for lab in [*evaluation.labels, None]:
+        upright = evaluation.records.shape == "upright"
+        period = "heading modulo 360°" if upright else "angle modulo 180°"
+        lines.append(f"Orientation error of matched pairs ({period}, degrees):")
+        lines.append(row.format("label", "IoU>=", "pairs", "mean", "median", "90th pct", "flipped"))
+
+        def deg(v: float | None) -> str:
+            return "n/a" if v is None or math.isnan(v) else f"{math.degrees(v):.2f}"
+
+        rows = [(lab, t) for lab, t in at.items()]
+        if len(set(at.values())) == 1 and len(at) > 1:
+            rows.append((None, next(iter(at.values()))))  # all labels at the one threshold
+        for lab, t in rows:
             e = evaluation.orientation_error(t, label=lab)
-
-            def deg(v: float | None) -> str:
-                return "n/a" if v is None or math.isnan(v) else f"{math.degrees(v):.2f}"
-
             flipped = "n/a" if e.flipped is None else f"{e.flipped:.1%}"
             lines.append(
                 row.format(
                     "all" if lab is None else lab,
+                    f"{t:.2f}",
                     e.pairs,
                     deg(e.mean),
                     deg(e.median),
@@ -467,7 +503,7 @@ def _cmd_warmup(args: argparse.Namespace) -> int:
         t0 = time.perf_counter()
         fn()
         steps.append((name, time.perf_counter() - t0))
-        print(f"  {name:<58s} {steps[-1][1]:6.1f} s", flush=True)
+        print(f"  {name:<60s} {steps[-1][1]:6.1f} s", flush=True)
 
     print("compiling obbiou's kernels (cached on disk for later runs):")
 
@@ -483,25 +519,33 @@ def _cmd_warmup(args: argparse.Namespace) -> int:
 
     def evaluation() -> None:
         from obbiou.evaluation import evaluate
+        from obbiou.evaluation.tables import box_columns
 
-        for boxes in ([[5.0, 5.0, 4.0, 2.0, 0.1]], [[5.0, 5.0, 0.5, 4.0, 2.0, 1.0, 0.1]]):
-            cols = (
-                ["cx", "cy", "width", "height", "angle"]
-                if len(boxes[0]) == 5
-                else ["cx", "cy", "cz", "length", "width", "height", "yaw"]
-            )
-            box = np.array(boxes[0])
+        # One tiny table per layout: a match, an ignored detection, at ten thresholds.
+        tiny = {
+            "axis": [[0.0, 0.0, 4.0, 2.0], [3.0, 0.0, 7.0, 2.0]],
+            "rotated": [[5.0, 5.0, 4.0, 2.0, 0.1], [8.0, 5.0, 4.0, 2.0, 0.1]],
+            "polygon": [
+                [0.0, 0.0, 4.0, 0.0, 4.0, 2.0, 0.0, 2.0],
+                [3.0, 0.0, 7.0, 0.0, 7.0, 2.0, 3.0, 2.0],
+            ],
+            "axis3": [[0.0, 0.0, 0.0, 4.0, 2.0, 1.0], [3.0, 0.0, 0.0, 7.0, 2.0, 1.0]],
+            "upright": [[5.0, 5.0, 0.5, 4.0, 2.0, 1.0, 0.1], [8.0, 5.0, 0.5, 4.0, 2.0, 1.0, 0.1]],
+        }
+        for shape, rows in tiny.items():
+            cols = box_columns(shape)
+            values = np.array(rows)
             truth = {"frame": [0, 0], "label": ["a", "a"], "ignore": [False, True]}
             dets = {"frame": [0, 0], "label": ["a", "a"], "score": [0.9, 0.4]}
             for j, c in enumerate(cols):
-                truth[c] = [box[j], box[j] + (3.0 if j == 0 else 0.0)]
-                dets[c] = [box[j] + (0.1 if j == 0 else 0.0), box[j] + (3.0 if j == 0 else 0.0)]
-            result = evaluate(truth, dets, iou="0.5:0.95:0.05")
+                truth[c] = values[:, j]
+                dets[c] = values[:, j] + (0.1 if j == 0 else 0.0)
+            result = evaluate(truth, dets, shape=shape, iou="0.5:0.95:0.05")
             result.interval(resamples=20, seed=0)
 
     step("overlap measures (iou, giou, diou, intersection, coverage)", measures)
     step("scene (overlapping_pairs, suppress: hard, linear, gaussian)", scene)
-    step("evaluation (matching, AP, bootstrap; rotated and upright)", evaluation)
+    step("evaluation (matching, AP, bootstrap; every layout)", evaluation)
     print(f"done in {time.perf_counter() - start:.1f} s")
     return 0
 

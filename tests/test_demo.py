@@ -77,6 +77,9 @@ def test_demo_json(demo):
         cmp = s["comparison"]
         assert cmp["difference"] == pytest.approx(cmp["mean_ap_b"] - cmp["mean_ap_a"])
         assert 0 < cmp["p_value"] <= 1
+        control = s["control_comparison"]
+        lo, hi = control["interval"]
+        assert lo <= control["difference"] <= hi and 0 < control["p_value"] <= 1
 
 
 def test_demo_pictures(demo):

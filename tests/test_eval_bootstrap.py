@@ -61,11 +61,12 @@ def test_interval_shrinks_as_frames_grow():
     assert w_large < 0.6 * w_small
 
 
-def test_resample_equals_evaluation_of_copied_frames():
+@pytest.mark.parametrize("kind", ["all-points", "101-point", "step"])
+def test_resample_equals_evaluation_of_copied_frames(kind):
     # A resample that draws frame f w_f times must give the AP of a data set in which frame f
     # is literally copied w_f times (copies as new frames), evaluated from scratch.
     truth, dets = scene(25, 2)
-    ev = evaluate(truth, dets, iou=[0.5, 0.75], ap="101-point")
+    ev = evaluate(truth, dets, iou=[0.5, 0.75], ap=kind)
     w = frame_weights(len(ev.frames), 3, seed=9)
     got = ev._resampled(w, None, None)
     for b in range(3):
@@ -77,7 +78,7 @@ def test_resample_equals_evaluation_of_copied_frames():
                     rows = [i for i, fr in enumerate(src["frame"]) if fr == f]
                     for k in src:
                         dst[k] += [f"{f}-{c}" if k == "frame" else src[k][i] for i in rows]
-        direct = evaluate(t2, d2, iou=[0.5, 0.75], ap="101-point")
+        direct = evaluate(t2, d2, iou=[0.5, 0.75], ap=kind)
         assert got[b] == pytest.approx(direct.mean_ap(), abs=1e-12)
 
 

@@ -177,3 +177,20 @@ def test_breakdowns_sum_to_totals():
             assert sum(fp[:4]) == fp.total
         for lab, miss in ev.misses(t).items():
             assert miss.total == ev.counts(lab, t).missed
+
+
+def test_progress_bar_gives_the_same_result(capsys):
+    data = upright_scene(6)
+    quiet = evaluate(*data, iou=[0.5, 0.7]).to_dict()
+    shown = evaluate(*data, iou=[0.5, 0.7], progress=True).to_dict()
+    assert quiet == shown
+    assert "matching" in capsys.readouterr().err
+
+
+def test_empty_evaluation_is_defined():
+    cols = ("frame", "label", "cx", "cy", "width", "height", "angle")
+    ev = evaluate({k: [] for k in cols}, {k: [] for k in (*cols, "score")})
+    assert ev.mean_ap() is None and ev.labels == ()
+    assert json.loads(json.dumps(ev.to_dict(), allow_nan=False))["mean_ap"] is None
+    with pytest.raises(ValueError, match="nothing to resample"):
+        ev.interval()

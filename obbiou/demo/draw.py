@@ -93,6 +93,7 @@ def draw_scene(
     from matplotlib.collections import LineCollection
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch, Polygon
+    from matplotlib.transforms import offset_copy
 
     path = Path(path)
     shape = scenario.shape
@@ -116,22 +117,28 @@ def draw_scene(
         for r, text in ((24.0, "24 m: beyond, truths are ignore"), (30.0, "30 m sweep range")):
             ring = plt.Circle((0, 0), r, fill=False, color="#c8c8c8", lw=0.8, ls="-")
             ax.add_patch(ring)
-            at = np.deg2rad(17.0)
-            ax.annotate(
-                text,
-                (r * np.cos(at), r * np.sin(at)),
-                xytext=(-4, 0),
-                textcoords="offset points",
-                fontsize=7.5,
-                color="#8a8a8a",
-                ha="right",
-            )
+            # Label the ring where it crosses the view: try a few bearings.
+            for deg in (17.0, 163.0, -17.0, -163.0):
+                at = np.deg2rad(deg)
+                px, py = r * np.cos(at), r * np.sin(at)
+                if x0 <= px <= x1 and y0 <= py <= y1:
+                    ax.annotate(
+                        text,
+                        (px, py),
+                        xytext=(-4 if px > 0 else 4, 0),
+                        textcoords="offset points",
+                        fontsize=7.5,
+                        color="#8a8a8a",
+                        ha="right" if px > 0 else "left",
+                    )
+                    break
         _draw_racks(ax, scenario, frame, Polygon)
         ax.plot([0], [0], marker=(3, 0, -90), ms=11, color="#555555", ls="none")
         ax.annotate(
             "robot (sensor origin), heading +x",
             (0, 0),
-            xytext=(10, -14),
+            xytext=(-8, -14),
+            ha="right",
             textcoords="offset points",
             fontsize=8,
             color="#555555",
@@ -209,7 +216,8 @@ def draw_scene(
     ax.legend(
         handles=handles,
         loc="upper center",
-        bbox_to_anchor=(0.5, -0.07),
+        bbox_to_anchor=(0.5, 0.0),
+        bbox_transform=offset_copy(ax.transAxes, fig=fig, y=-34, units="points"),
         ncol=3,
         fontsize=8.5,
         frameon=False,

@@ -704,77 +704,94 @@ def simulate_detector(
     names, counts = np.unique(labels.astype(str), return_counts=True)
     fa_p = np.sqrt(counts) / np.sqrt(counts).sum() if len(counts) else counts
 
-    def noisy(box: np.ndarray, d: float, scale: float) -> tuple[np.ndarray, float]:
-        out = box.copy()
-        sizes = box[size_cols]
-        k = scale * (1 + d)
+    def noisy(rows: np.ndarray, scale: float) -> tuple[np.ndarray, np.ndarray]:
+        """Noisy copies of the truths ``rows`` and their quality in (0, 1]."""
+        out = boxes[rows].copy()
+        sizes = out[:, size_cols]
+        k = (scale * (1 + hard[rows]))[:, None]
         # Centre error in the box's own frame, each part in proportion to that side.
-        own = rng.normal(0, model.position * k, 2) * sizes[:2]
-        ca, sa = np.cos(box[angle_col]), np.sin(box[angle_col])
-        shift = np.array([ca * own[0] - sa * own[1], sa * own[0] + ca * own[1]])
-        out[0:2] += shift
+        own = rng.normal(0, 1, (len(rows), 2)) * model.position * k * sizes[:, :2]
+        ca, sa = np.cos(out[:, angle_col]), np.sin(out[:, angle_col])
+        out[:, 0] += ca * own[:, 0] - sa * own[:, 1]
+        out[:, 1] += sa * own[:, 0] + ca * own[:, 1]
         if is3d:
-            out[2] += rng.normal(0, model.position * k * sizes[2] * 0.5)
-        log_err = rng.normal(0, model.size * k, len(size_cols))
-        out[size_cols] = sizes * np.exp(log_err)
-        turn = rng.normal(0, model.angle * k)
-        out[angle_col] += turn
+            out[:, 2] += rng.normal(0, 1, len(rows)) * model.position * k[:, 0] * sizes[:, 2] * 0.5
+        log_err = rng.normal(0, 1, sizes.shape) * model.size * k
+        out[:, size_cols] = sizes * np.exp(log_err)
+        turn = rng.normal(0, 1, len(rows)) * model.angle * k[:, 0]
+        out[:, angle_col] += turn
         # Quality: 1 for an exact box, falling with each kind of error (a plain proxy for IoU).
-        err = ((own / np.maximum(sizes[:2], 1e-9)) ** 2).sum() * 20 + (log_err**2).sum() * 20
-        err += (turn / 0.2) ** 2
-        return out, float(np.exp(-err))
+        err = ((own / np.maximum(sizes[:, :2], 1e-9)) ** 2).sum(axis=1) * 20
+        err += (log_err**2).sum(axis=1) * 20 + (turn / 0.2) ** 2
+        return out, np.exp(-err)
 
-    def score_of(q: float, d: float, offset: float = 0.0) -> float:
-        z = 4 * q - 1 - 1.5 * d + offset + rng.normal(0, model.score_noise)
-        return float(1 / (1 + np.exp(-z)))
+    def score_of(q: np.ndarray, d: np.ndarray, offset: float = 0.0) -> np.ndarray:
+        z = 4 * q - 1 - 1.5 * d + offset + rng.normal(0, model.score_noise, len(q))
+        return 1 / (1 + np.exp(-z))
 
-    rows = []
-    for i in range(len(truth)):
-        d = float(hard[i])
-        if rng.random() < min(model.miss * (1 + 2 * d), 0.95):
-            continue
-        box, q = noisy(boxes[i], d, 1.0)
-        if rng.random() < model.flip:
-            box[angle_col] += np.pi
-        label = labels[i]
-        other, weight = _CONFUSIONS[scenario.name].get(label, (label, 0.0))
-        if rng.random() < model.confusion * weight:
-            label = other
-        rows.append((frames[i], label, score_of(q, d), box))
-        if rng.random() < model.duplicate:
-            dup, q2 = noisy(boxes[i], d, 2.5)
-            rows.append((frames[i], label, score_of(q2, d, -1.0), dup))
+    n = len(truth)
+    found = np.flatnonzero(rng.random(n) >= np.minimum(model.miss * (1 + 2 * hard), 0.95))
+    box, q = noisy(found, 1.0)
+    box[rng.random(len(found)) < model.flip, angle_col] += np.pi
+    label = labels[found].copy()
+    confusions = _CONFUSIONS[scenario.name]
+    other = np.array([confusions.get(v, (v, 0.0))[0] for v in label], dtype=object)
+    weight = np.array([confusions.get(v, (v, 0.0))[1] for v in label])
+    swap = rng.random(len(found)) < model.confusion * weight
+    label[swap] = other[swap]
+    score = score_of(q, hard[found])
+    twice = np.flatnonzero(rng.random(len(found)) < model.duplicate)
+    dup, q2 = noisy(found[twice], 2.5)
+    parts = [
+        # (sort key: truth order, each duplicate right after its detection)
+        (2 * found, frames[found], label, score, box),
+        (
+            2 * found[twice] + 1,
+            frames[found[twice]],
+            label[twice],
+            score_of(q2, hard[found[twice]], -1.0),
+            dup,
+        ),
+    ]
     # False alarms: truth-like boxes (size, label, height) at random places and headings.
     x0, y0, x1, y1 = scenario.extent
-    for name in scenario.frames:
-        for _ in range(rng.poisson(model.false_alarms) if len(truth) else 0):
-            lab = names[rng.choice(len(names), p=fa_p)]
-            j = int(rng.choice(np.flatnonzero(labels == lab)))
-            box = boxes[j].copy()
-            if is3d:
-                r, phi = rng.uniform(2, WAREHOUSE_IGNORE_RANGE), rng.uniform(-np.pi, np.pi)
-                box[0], box[1] = r * np.cos(phi), r * np.sin(phi)
-            else:
-                box[0], box[1] = rng.uniform(x0, x1), rng.uniform(y0, y1)
-            box[angle_col] = rng.uniform(-np.pi, np.pi)
-            rows.append((name, labels[j], score_of(0.0, 0.5, -0.5), box))
+    nf = len(scenario.frames)
+    counts_per_frame = rng.poisson(model.false_alarms, nf) if n else np.zeros(nf, np.int64)
+    fa_frames = np.repeat(np.array(scenario.frames, dtype=object), counts_per_frame)
+    m = len(fa_frames)
+    if m:
+        by_label = {lab: np.flatnonzero(labels == lab) for lab in names}
+        picked = names[rng.choice(len(names), size=m, p=fa_p)]
+        j = np.array([by_label[lab][rng.integers(0, len(by_label[lab]))] for lab in picked])
+        fa = boxes[j].copy()
+        if is3d:
+            r, phi = rng.uniform(2, WAREHOUSE_IGNORE_RANGE, m), rng.uniform(-np.pi, np.pi, m)
+            fa[:, 0], fa[:, 1] = r * np.cos(phi), r * np.sin(phi)
+        else:
+            fa[:, 0], fa[:, 1] = rng.uniform(x0, x1, m), rng.uniform(y0, y1, m)
+        fa[:, angle_col] = rng.uniform(-np.pi, np.pi, m)
+        fa_score = score_of(np.zeros(m), np.full(m, 0.5), -0.5)
+        parts.append((2 * n + np.arange(m), fa_frames, labels[j], fa_score, fa))
+    key = np.concatenate([p[0] for p in parts])
+    frame_of = np.concatenate([p[1] for p in parts])
+    rank = {name: k for k, name in enumerate(scenario.frames)}
+    frame_rank = np.array([rank.get(f, len(rank)) for f in frame_of], dtype=np.int64)
+    order = np.lexsort((key, frame_rank))  # by frame, then truth order, then false alarms
+    out_boxes = np.concatenate([p[4] for p in parts])[order] if len(order) else boxes[:0]
     # Wrap angles: rectangles modulo pi into [-pi/2, pi/2), headings modulo 2 pi.
-    order = {name: k for k, name in enumerate(scenario.frames)}
-    rows.sort(key=lambda r: order.get(r[0], len(order)))
-    out = [
-        {"frame": f, "label": lab, "score": sc, **dict(zip(cols, _wrap(b, is3d), strict=True))}
-        for f, lab, sc, b in rows
-    ]
-    return _table(out, scenario.shape, truth=False)
-
-
-def _wrap(box: np.ndarray, is3d: bool) -> np.ndarray:
-    box = box.copy()
     if is3d:
-        box[6] = (box[6] + np.pi) % (2 * np.pi) - np.pi
+        out_boxes[:, 6] = (out_boxes[:, 6] + np.pi) % (2 * np.pi) - np.pi
     else:
-        box[4] = (box[4] + np.pi / 2) % np.pi - np.pi / 2
-    return box
+        out_boxes[:, 4] = (out_boxes[:, 4] + np.pi / 2) % np.pi - np.pi / 2
+    table = pd.DataFrame(
+        {
+            "frame": frame_of[order],
+            "label": np.concatenate([p[2] for p in parts])[order],
+            "score": np.concatenate([p[3] for p in parts])[order],
+            **{c: out_boxes[:, i] for i, c in enumerate(cols)},
+        }
+    )
+    return _table(table.to_dict("records"), scenario.shape, truth=False)
 
 
 def scenarios(*, frames: int | None = None, seed: int = 0) -> list[Scenario]:

@@ -320,6 +320,8 @@ class Evaluation:
         self, weights: np.ndarray, label: str | None, iou: float | None, frame_code=None
     ) -> np.ndarray:
         """(B,) the statistic (AP of a label, or mAP) under each row of frame weights."""
+        if not self.labels:
+            raise ValueError("interval: nothing to resample (no truths and no detections)")
         if frame_code is None:
             frame_code = (self._dcode, self._tcode)
         nframes = weights.shape[1]
