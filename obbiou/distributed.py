@@ -577,10 +577,12 @@ def evaluate_distributed(
     and its rows are sent to one of ``buckets`` buckets by a hash of the frame id, so all
     rows of a frame meet in one bucket even when the frame is split across partitions (or
     across files). Each bucket's truths and detections are matched on a worker, which sends
-    back the compact match records: per detection its frame, label, score, size and the
-    outcome at each threshold; per truth whether it was matched — a few numbers per box,
-    no coordinates. So each box crosses the network once (to its bucket), and only records
-    come back.
+    back the compact match records: per detection its frame, rank, label, score, size,
+    range, orientation, best IoUs and, per threshold, its outcome, matched truth and IoU;
+    per truth the like — no coordinates, in a lossless wire form (text as codes, narrow
+    integers, per-threshold IoUs only where they change) of about the size of the box rows
+    themselves. So each box crosses the network at most once (to its bucket's worker), and
+    only records come back to the client.
 
     Parameters
     ----------
