@@ -35,19 +35,27 @@ import os
 import warnings
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, fields, replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-__all__ = ["evaluate_distributed", "overlapping_pairs_distributed", "connect"]
+__all__ = ["evaluate_distributed", "overlapping_pairs_distributed", "connect", "TaskFailed"]
 
 _INSTALL_HINT = "pip install 'obbiou[dask]'"
+
+#: How long to try reaching a scheduler address before giving up.
+_CONNECT_SECONDS = 20
 
 #: Environment of local worker processes: one worker thread each, so the numba kernels run
 #: on one thread too instead of every process starting a thread per core.
 _ONE_THREAD = {"NUMBA_NUM_THREADS": "1", "OMP_NUM_THREADS": "1"}
+
+
+class TaskFailed(RuntimeError):
+    """A task on the cluster failed for a reason other than bad input (a partition that
+    could not be loaded, a worker that died); the message names the partition or bucket."""
 
 
 def _require_dask() -> Any:
@@ -97,6 +105,8 @@ def connect(
     ValueError
         If more than one of ``client``, ``scheduler``, ``workers`` is given, or ``workers``
         is not a positive integer.
+    ConnectionError
+        If the scheduler cannot be reached within 20 seconds.
 
     Examples
     --------
@@ -105,13 +115,18 @@ def connect(
     Traceback (most recent call last):
     ...
     ValueError: give at most one of client=, scheduler=, workers= (got scheduler and workers)
+    >>> with connect(workers=0):
+    ...     pass
+    Traceback (most recent call last):
+    ...
+    ValueError: workers: expected a positive integer, got 0
     """
     given = [
         n for n, v in (("client", client), ("scheduler", scheduler), ("workers", workers)) if v
     ]
-    if workers is not None and (isinstance(workers, bool) or int(workers) != workers):
-        raise ValueError(f"workers: expected a positive integer, got {workers!r}")
-    if workers is not None and workers < 1:
+    if workers is not None and (
+        isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1
+    ):
         raise ValueError(f"workers: expected a positive integer, got {workers!r}")
     if len(given) > 1:
         raise ValueError(
@@ -122,7 +137,13 @@ def connect(
         yield client
         return
     if scheduler:
-        with distributed.Client(scheduler, timeout="30s") as made:
+        try:
+            made = distributed.Client(scheduler, timeout=f"{_CONNECT_SECONDS}s")
+        except (OSError, TimeoutError) as exc:
+            raise ConnectionError(
+                f"scheduler: cannot reach {scheduler!r} within {_CONNECT_SECONDS} s ({exc})"
+            ) from None
+        with made:
             yield made
         return
     if workers:
@@ -144,15 +165,15 @@ def connect(
         return
     except ValueError:  # no default client
         pass
-    with (
-        distributed.LocalCluster(
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message="Port .* is already in use")
+        cluster = distributed.LocalCluster(
             n_workers=1,
             threads_per_worker=os.cpu_count() or 1,
             processes=False,
             dashboard_address=None,
-        ) as cluster,
-        distributed.Client(cluster) as made,
-    ):
+        )
+    with cluster, distributed.Client(cluster) as made:
         yield made
 
 
@@ -218,6 +239,8 @@ def _sources(table: Any, *, what: str, chunks: int = 1, boxes: bool = False) -> 
         )
     if isinstance(table, pd.DataFrame):
         return _in_memory(table, what, chunks, origin="DataFrame")
+    if hasattr(table, "take") and hasattr(table, "boxes"):  # an evaluation Table, read here
+        return _in_memory(table, what, chunks, origin=str(table.source))
     if isinstance(table, dict):
         return _in_memory(pd.DataFrame(table), what, chunks, origin="mapping")
     if boxes and not isinstance(table, (bytes, set)):
@@ -255,11 +278,16 @@ def _in_memory(frame: Any, what: str, chunks: int, *, origin: str, raw: Any = No
     n = len(frame)
     chunks = max(1, min(int(chunks), n)) if n else 1
     bounds = np.linspace(0, n, chunks + 1).astype(np.int64)
-    rows = frame.iloc if hasattr(frame, "iloc") else frame
-    parts = [rows[lo:hi] for lo, hi in zip(bounds[:-1], bounds[1:], strict=True)]
+    spans = list(zip(bounds[:-1].tolist(), bounds[1:].tolist(), strict=True))
+    if hasattr(frame, "iloc"):
+        parts = [frame.iloc[lo:hi] for lo, hi in spans]
+    elif hasattr(frame, "boxes"):  # an evaluation Table
+        parts = [frame.take(np.arange(lo, hi)) for lo, hi in spans]
+    else:
+        parts = [frame[lo:hi] for lo, hi in spans]
     names = [
         f"{what} rows {lo}..{hi - 1} ({origin})" if hi > lo else f"{what} (empty {origin})"
-        for lo, hi in zip(bounds[:-1], bounds[1:], strict=True)
+        for lo, hi in spans
     ]
     return _Source(parts, names)
 
@@ -295,7 +323,7 @@ def _wait(
     """Wait for ``futures`` with a progress bar; raise at the first failure, naming it.
 
     A task that raises surfaces at once (the others are cancelled) as a ``ValueError`` for
-    bad input or a ``RuntimeError`` otherwise, with the partition's name in front. A run
+    bad input or a :class:`TaskFailed` otherwise, with the partition's name in front. A run
     that takes longer than ``timeout`` seconds raises ``TimeoutError``.
     """
     distributed = _require_dask()
@@ -312,10 +340,10 @@ def _wait(
                 client.cancel(list(futures))
                 if isinstance(exc, ValueError):
                     raise ValueError(f"{name}: {exc}") from exc
-                raise RuntimeError(f"{name}: task failed: {type(exc).__name__}: {exc}") from exc
+                raise TaskFailed(f"{name}: task failed: {type(exc).__name__}: {exc}") from exc
             if fut.status == "cancelled":
                 client.cancel(list(futures))
-                raise RuntimeError(f"{by_key.get(fut.key, stage)}: task was cancelled")
+                raise TaskFailed(f"{by_key.get(fut.key, stage)}: task was cancelled")
             bar.update(1)
     except TimeoutError:
         client.cancel(list(futures))
@@ -331,19 +359,56 @@ def _wait(
 # Distributed evaluation: frames to buckets, match on the workers, reduce here
 
 
+def _read_here(table: Any, role: str, shape: str | None, degrees: bool) -> Any:
+    """Read a single file or an in-memory table here, as in-process evaluation reads it.
+
+    Errors then name the file, line and column exactly as ``evaluate`` does; the validated
+    table is cut into pieces for the workers. Dask DataFrames and Parquet folders are left
+    to the workers.
+    """
+    import pandas as pd
+
+    from obbiou.evaluation.tables import Table, read_table
+
+    is_file = isinstance(table, (str, os.PathLike)) and Path(table).is_file()
+    if is_file or isinstance(table, (pd.DataFrame, dict, Table)):
+        return read_table(table, role=role, shape=shape, degrees=degrees)
+    return table
+
+
+def _mix(values: np.ndarray) -> np.ndarray:
+    """splitmix64 of int64 values (Steele, Lea & Flood, OOPSLA 2014): well-spread buckets."""
+    z = values.astype(np.int64).view(np.uint64) + np.uint64(0x9E3779B97F4A7C15)
+    z = (z ^ (z >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
+    z = (z ^ (z >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
+    return z ^ (z >> np.uint64(31))
+
+
 def _frame_buckets(frame: np.ndarray, n_buckets: int) -> np.ndarray:
     """Bucket of each frame id, the same in every process and for either table.
 
-    Ids are hashed by their text so that ``7`` and ``"7"`` (one table with integer ids, the
-    other with text ids) land together, as they match together in-process. pandas' hash
-    is keyed with a fixed key, not Python's per-process ``hash``.
+    Integer ids are mixed by splitmix64. Text ids that spell an integer (``"7"``) go where
+    that integer goes, because in-process evaluation matches ``7`` and ``"7"`` (it compares
+    ids as text once one table has text ids); other text is hashed with pandas' fixed-key
+    hash, not Python's per-process ``hash``.
     """
     import pandas as pd
 
     if len(frame) == 0:
         return np.zeros(0, dtype=np.int64)
-    text = np.asarray(frame).astype(str).astype(object)
-    return (pd.util.hash_array(text) % np.uint64(n_buckets)).astype(np.int64)
+    if frame.dtype.kind in "iu":
+        keys = _mix(frame)
+    else:
+        text = pd.Series(frame, dtype=object).astype(str)
+        keys = pd.util.hash_array(text.to_numpy(dtype=object))
+        spelled = text.str.fullmatch(r"-?(0|[1-9][0-9]*)").to_numpy(dtype=bool)
+        if spelled.any():
+            values = [int(v) for v in text[spelled]]
+            fits = np.array([-(2**63) <= v < 2**63 for v in values], dtype=bool)
+            rows = np.flatnonzero(spelled)[fits]
+            ints = np.array([v for v, ok in zip(values, fits, strict=True) if ok], np.int64)
+            keys[rows] = _mix(ints)
+    return (keys % np.uint64(n_buckets)).astype(np.int64)
 
 
 def _split_frames(
@@ -404,7 +469,81 @@ def _match_bucket(
 
     truth = _join_tables(truth_pieces)
     detections = _join_tables(detection_pieces)
-    return match_frames(truth, detections, thresholds=thresholds, shape=shape, **match_options)
+    records = match_frames(truth, detections, thresholds=thresholds, shape=shape, **match_options)
+    return _pack_records(records)
+
+
+def _narrow(values: np.ndarray) -> np.ndarray:
+    """The same integers in the smallest integer type that holds them (lossless)."""
+    if values.size == 0:
+        return values
+    lo, hi = int(values.min()), int(values.max())
+    for kind in (np.int8, np.int16, np.int32):
+        if np.iinfo(kind).min <= lo and hi <= np.iinfo(kind).max:
+            return values.astype(kind)
+    return values
+
+
+def _pack_records(records: Any) -> dict[str, Any]:
+    """Match records in a lossless wire form: text as codes into a table of the distinct
+    values, integers in the narrowest type. Labels and text frame ids are Python objects
+    (one pickled string per row otherwise), so this makes the records several times
+    smaller on the network."""
+    packed: dict[str, Any] = {}
+    for f in fields(records):
+        value = getattr(records, f.name)
+        if isinstance(value, np.ndarray) and value.dtype == object:
+            distinct, codes = np.unique(value.astype(str), return_inverse=True)
+            packed[f.name] = ("text", distinct, _narrow(codes.reshape(value.shape)))
+        elif isinstance(value, np.ndarray) and value.dtype.kind == "i":
+            packed[f.name] = ("int", value.dtype.str, _narrow(value))
+        elif _is_constant(value):  # e.g. the range column of 2D boxes: all NaN
+            packed[f.name] = ("constant", value.dtype.str, value.shape, value.reshape(-1)[:1])
+        elif isinstance(value, np.ndarray) and value.dtype.kind == "f" and value.ndim == 2:
+            # Per-threshold values (the IoU of the matched truth) mostly repeat the previous
+            # threshold's value or are 0: send only the entries that change, and where.
+            before = np.zeros_like(value)
+            before[:, 1:] = value[:, :-1]
+            changed = value.view(np.uint64) != before.view(np.uint64)
+            packed[f.name] = ("changes", value.shape, np.packbits(changed), value[changed])
+        else:
+            packed[f.name] = ("as is", value)
+    return packed
+
+
+def _is_constant(value: Any) -> bool:
+    """A float array whose entries are all the same bits (NaN included), with 2+ entries."""
+    if not isinstance(value, np.ndarray) or value.dtype.kind != "f" or value.size < 2:
+        return False
+    bits = value.reshape(-1).view(np.uint64 if value.itemsize == 8 else np.uint32)
+    return bool(np.all(bits == bits[0]))
+
+
+def _unpack_records(packed: dict[str, Any]) -> Any:
+    """The :class:`MatchRecords` that :func:`_pack_records` packed, equal field by field."""
+    from obbiou.evaluation.matching import MatchRecords
+
+    values = {}
+    for name, item in packed.items():
+        if item[0] == "text":
+            values[name] = item[1].astype(object)[item[2].astype(np.int64)]
+        elif item[0] == "int":
+            values[name] = item[2].astype(np.dtype(item[1]))
+        elif item[0] == "constant":
+            values[name] = np.full(item[2], item[3][0], dtype=np.dtype(item[1]))
+        elif item[0] == "changes":
+            shape, bits, changes = item[1], item[2], item[3]
+            changed = np.unpackbits(bits, count=shape[0] * shape[1]).astype(bool).reshape(shape)
+            # Each entry is the last changed entry at or before it in its row (0.0 if none).
+            col = np.where(changed, np.arange(shape[1]), -1)
+            np.maximum.accumulate(col, axis=1, out=col)
+            full = np.zeros(shape, dtype=changes.dtype)
+            full[changed] = changes
+            rows = np.arange(shape[0])[:, None]
+            values[name] = np.where(col >= 0, full[rows, np.maximum(col, 0)], 0.0)
+        else:
+            values[name] = item[1]
+    return MatchRecords(**values)
 
 
 def evaluate_distributed(
@@ -438,10 +577,12 @@ def evaluate_distributed(
     and its rows are sent to one of ``buckets`` buckets by a hash of the frame id, so all
     rows of a frame meet in one bucket even when the frame is split across partitions (or
     across files). Each bucket's truths and detections are matched on a worker, which sends
-    back the compact match records: per detection its frame, label, score, size and the
-    outcome at each threshold; per truth whether it was matched — a few numbers per box,
-    no coordinates. So each box crosses the network once (to its bucket), and only records
-    come back.
+    back the compact match records: per detection its frame, rank, label, score, size,
+    range, orientation, best IoUs and, per threshold, its outcome, matched truth and IoU;
+    per truth the like — no coordinates, in a lossless wire form (text as codes, narrow
+    integers, per-threshold IoUs only where they change) of about the size of the box rows
+    themselves. So each box crosses the network at most once (to its bucket's worker), and
+    only records come back to the client.
 
     Parameters
     ----------
@@ -472,7 +613,7 @@ def evaluate_distributed(
     ------
     ValueError
         Bad input, naming the partition, then the row and the column.
-    RuntimeError
+    TaskFailed
         Any other failing task (a worker that died, a partition that could not be loaded),
         naming the partition or bucket.
     TimeoutError
@@ -509,7 +650,10 @@ def evaluate_distributed(
         n_buckets = int(buckets) if buckets is not None else 2 * threads
         if n_buckets < 1:
             raise ValueError(f"buckets: expected a positive integer, got {buckets!r}")
-        roles = {"truth": truth, "detections": detections}
+        roles = {
+            "truth": _read_here(truth, "truth", shape, degrees),
+            "detections": _read_here(detections, "detections", shape, degrees),
+        }
         sources = {k: _sources(t, what=k, chunks=threads) for k, t in roles.items()}
         parts = {k: _submit_parts(cl, s) for k, s in sources.items()}
         splits = {
@@ -558,7 +702,7 @@ def evaluate_distributed(
             _release(held)
     # The same reduce call as obbiou.evaluation.evaluate makes, on the same records.
     return reduce_records(
-        records,
+        [_unpack_records(r) for r in records],
         iou=thresholds,
         ap=ap,
         recall_points=recall_points,
@@ -573,34 +717,21 @@ def evaluate_distributed(
 # Tiled scene overlap
 
 
-def _box_columns(shape: str) -> tuple[str, ...]:
-    from obbiou.shapes import COLUMNS
+def _table_layout(columns: Sequence[Any], shape: str | None, what: str) -> tuple[str, list]:
+    """The layout of a box table and its box columns, by the rules tables are read by in
+    :func:`obbiou.evaluation.read_table` (the same column names, the same inference)."""
+    from obbiou.evaluation.tables import _infer_layout, _polygon_vertices, box_columns
 
-    if shape == "polygon":
-        return tuple(f"p{axis}{k}" for k in range(4) for axis in "xy")
-    return COLUMNS[shape]
-
-
-def _table_shape(columns: Sequence[str], shape: str | None, what: str) -> str:
-    """The layout of a box table from its columns (or check the one given)."""
-    from obbiou.shapes import SHAPES
-
-    present = set(columns)
-    if shape is not None:
-        if shape not in SHAPES:
-            raise ValueError(f"{what}: unknown shape {shape!r}")
-        missing = [c for c in _box_columns(shape) if c not in present]
-        if missing:
-            raise ValueError(f"{what}: shape={shape!r} needs column(s) {', '.join(missing)}")
-        return shape
-    for candidate in ("upright", "rotated", "axis3", "axis", "polygon"):
-        if all(c in present for c in _box_columns(candidate)):
-            return candidate
-    raise ValueError(
-        f"{what}: no box columns found (columns: {', '.join(map(str, columns))}); expected "
-        "cx cy width height angle (rotated), cx cy cz length width height yaw (upright), "
-        "x_min y_min x_max y_max (axis), the axis3 columns or px0 py0 ... py3 (polygon)"
-    )
+    names = {str(c) for c in columns}
+    layout = shape if shape is not None else _infer_layout(names, what)
+    vertices = _polygon_vertices(names) if layout == "polygon" else 0
+    cols = list(box_columns(layout, max(vertices, 3)))
+    missing = [c for c in cols if c not in names]
+    if missing:
+        raise ValueError(
+            f"{what}: missing column {missing[0]!r} (shape {layout!r} needs {' '.join(cols)})"
+        )
+    return layout, cols
 
 
 def _boxes_of(part: Any, shape: str | None, what: str) -> tuple[np.ndarray, str]:
@@ -610,14 +741,13 @@ def _boxes_of(part: Any, shape: str | None, what: str) -> tuple[np.ndarray, str]
     from obbiou.shapes import read_boxes
 
     if isinstance(part, pd.DataFrame):
-        layout = _table_shape(list(part.columns), shape, what)
-        cols = list(_box_columns(layout))
+        layout, cols = _table_layout(list(part.columns), shape, "table")
         try:
             data = part[cols].to_numpy(dtype=np.float64)
         except (TypeError, ValueError) as exc:
             raise ValueError(f"non-numeric value in the box columns ({exc})") from None
         if layout == "polygon":
-            data = data.reshape(-1, 4, 2)
+            data = data.reshape(len(data), -1, 2)
         boxes = read_boxes(data, layout, name="row")
     else:
         boxes = read_boxes(part, shape, name="row")
@@ -831,7 +961,7 @@ def overlapping_pairs_distributed(
     ValueError
         Bad input, naming the partition and the row (``a partition 3 of 8 (Parquet dataset
         'scene/'): row[17]: negative width -3.0``).
-    RuntimeError
+    TaskFailed
         Any other failing task, naming the partition or tile.
 
     Examples

@@ -22,9 +22,13 @@ pd = pytest.importorskip("pandas")
 dd = pytest.importorskip("dask.dataframe")
 evaluation = pytest.importorskip("obbiou.evaluation")
 
-from obbiou.distributed import evaluate_distributed  # noqa: E402
+from obbiou.distributed import TaskFailed, evaluate_distributed  # noqa: E402
 
 BOX = ["cx", "cy", "width", "height", "angle"]
+
+
+# Another local cluster on this machine may hold the default HTTP port: not a problem.
+pytestmark = pytest.mark.filterwarnings("ignore:Port .* is already in use")
 
 
 @pytest.fixture(scope="module")
@@ -196,7 +200,7 @@ def test_failing_task_surfaces_as_clear_error_in_bounded_time(client, tables):
     meta = synthetic_tables(3, seed=0)[1].iloc[:0]
     dets = dd.from_map(_load_partition, range(4), meta=meta)
     start = time.monotonic()
-    with pytest.raises(RuntimeError, match=r"detections partition 2 of 4 .*OSError: simulated"):
+    with pytest.raises(TaskFailed, match=r"detections partition 2 of 4 .*OSError: simulated"):
         evaluate_distributed(truth, dets, client=client, timeout=60)
     assert time.monotonic() - start < 60
     # The cluster is still usable afterwards.
@@ -216,3 +220,21 @@ def test_option_errors_before_any_work():
         evaluate_distributed({}, {}, workers=2, scheduler="tcp://127.0.0.1:1")
     with pytest.raises(ValueError, match="iou"):
         evaluate_distributed({}, {}, iou=1.5)
+
+
+def test_single_files_read_here_like_in_process(client, tables, tmp_path):
+    truth, dets = tables
+    truth.to_csv(tmp_path / "truth.csv", index=False)
+    dets.to_json(tmp_path / "dets.jsonl", orient="records", lines=True)
+    t, d = str(tmp_path / "truth.csv"), str(tmp_path / "dets.jsonl")
+    assert_same(evaluate_distributed(t, d, client=client), evaluation.evaluate(t, d))
+    # A bad value in a single file is reported as in-process: file, line and column.
+    bad = truth.astype({"height": object})
+    bad.loc[5, "height"] = "tall"
+    bad.to_csv(tmp_path / "bad.csv", index=False)
+    with pytest.raises(ValueError) as in_process:
+        evaluation.evaluate(str(tmp_path / "bad.csv"), d)
+    assert "line 7" in str(in_process.value)  # header is line 1, row 5 is line 7
+    with pytest.raises(ValueError) as distributed_run:
+        evaluate_distributed(str(tmp_path / "bad.csv"), d, client=client)
+    assert str(distributed_run.value) == str(in_process.value)

@@ -24,6 +24,10 @@ from obbiou.scene import overlapping_pairs  # noqa: E402
 COLUMNS = ["cx", "cy", "width", "height", "angle"]
 
 
+# Another local cluster on this machine may hold the default HTTP port: not a problem.
+pytestmark = pytest.mark.filterwarnings("ignore:Port .* is already in use")
+
+
 @pytest.fixture(scope="module")
 def client():
     from distributed import Client, LocalCluster
@@ -157,3 +161,16 @@ def test_bad_partition_is_named_quickly(client):
     with pytest.raises(ValueError, match=r"a partition 3 of 4 .*row\[17\]: negative height"):
         overlapping_pairs_distributed(table, client=client, timeout=60)
     assert time.monotonic() - start < 60
+
+
+def test_polygon_table_by_the_evaluation_column_names(client):
+    # Quadrilaterals as 4-vertex polygons in the columns px0 py0 ... py3 (DESIGN §6).
+    quads = obbiou.boxes.corners(synthetic_scene(500, seed=8))
+    want = overlapping_pairs(quads, shape="polygon")
+    frame = pd.DataFrame(
+        quads.reshape(len(quads), 8), columns=[f"p{a}{k}" for k in range(4) for a in "xy"]
+    )
+    got = overlapping_pairs_distributed(
+        dd.from_pandas(frame, npartitions=3), client=client, tiles=(4, 3)
+    )
+    assert_same_pairs(got, want)
