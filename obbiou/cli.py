@@ -334,7 +334,19 @@ def _cmd_evaluate(args: argparse.Namespace) -> int:
         opts["size_buckets"] = sizes
     if ranges is not None:
         opts["range_buckets"] = ranges
-    result = evaluate(args.truth, args.detections, progress=not args.quiet, **opts)
+    if args.workers is not None or args.scheduler is not None:
+        from obbiou.distributed import evaluate_distributed
+
+        result = evaluate_distributed(
+            args.truth,
+            args.detections,
+            workers=args.workers,
+            scheduler=args.scheduler,
+            progress=not args.quiet,
+            **opts,
+        )
+    else:
+        result = evaluate(args.truth, args.detections, progress=not args.quiet, **opts)
     print(result.summary())
     if args.interval:
         lo, hi = result.interval(resamples=args.resamples, level=args.level, seed=args.seed)
@@ -669,10 +681,19 @@ def build_parser() -> argparse.ArgumentParser:
         "and threshold, mAP.",
         "  obbiou evaluate truth.csv detections.csv --iou 0.5:0.95:0.05 \\\n"
         "      --json result.json --plot curves.png\n"
-        "  obbiou evaluate truth.parquet dets.parquet --iou 0.5 --iou crane=0.7 --interval",
+        "  obbiou evaluate truth.parquet dets.parquet --iou 0.5 --iou crane=0.7 --interval\n"
+        "  obbiou evaluate truth/ dets/ --workers 2      # folders of Parquet files, on Dask",
     )
-    p.add_argument("truth", metavar="TRUTH", help="ground-truth table")
-    p.add_argument("detections", metavar="DETECTIONS", help="detections table")
+    p.add_argument(
+        "truth",
+        metavar="TRUTH",
+        help="ground-truth table (with --workers/--scheduler: or a folder)",
+    )
+    p.add_argument(
+        "detections",
+        metavar="DETECTIONS",
+        help="detections table (with --workers/--scheduler: or a folder of Parquet files)",
+    )
     _add_matching(p)
     p.add_argument(
         "--size-buckets",
@@ -708,6 +729,20 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", metavar="PATH", default=None, help="write the full result as JSON")
     p.add_argument(
         "--plot", metavar="PATH", default=None, help="write precision-recall curves as PNG"
+    )
+    cluster = p.add_mutually_exclusive_group()
+    cluster.add_argument(
+        "--workers",
+        type=int,
+        metavar="N",
+        default=None,
+        help="match frames on N local Dask worker processes (needs obbiou[dask])",
+    )
+    cluster.add_argument(
+        "--scheduler",
+        metavar="ADDRESS",
+        default=None,
+        help="match frames on an existing Dask cluster, e.g. tcp://10.0.0.5:8786",
     )
     _add_common(p)
     p.set_defaults(run=_cmd_evaluate)
@@ -869,6 +904,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print(f"{prog}: interrupted", file=sys.stderr)
         return 130
+    except RuntimeError as exc:  # a failed cluster task (obbiou.distributed.TaskFailed)
+        print(f"{prog}: error: {_one_line(exc)}", file=sys.stderr)
+        return 1
     return BAD_INPUT
 
 
