@@ -304,7 +304,9 @@ def _validate(arr: np.ndarray, layout: str, name: str) -> None:
         failures.extend(_inverted_extent(arr, layout, lo, hi) for lo, hi in _EXTENT_COLUMNS[layout])
     elif layout == "polygon":
         rows_ok = finite.reshape(arr.shape[0], -1).all(axis=1)
-        failures.extend(_bad_polygons(np.where(rows_ok[:, None, None], arr, 0.0)))
+        with np.errstate(over="ignore", invalid="ignore"):  # huge ones fail _too_large below
+            failures.extend(_bad_polygons(np.where(rows_ok[:, None, None], arr, 0.0)))
+    failures.append(_too_large(np.where(finite, arr, 0.0), layout))
     found = [f for f in failures if f is not None]
     if found:
         row, reason = min(found, key=lambda f: f[0])
@@ -336,6 +338,26 @@ def _negative_size(arr: np.ndarray, layout: str) -> Failure:
     row = _first_bad(neg)
     col = cols[int(np.argmax(neg[row]))]
     return row, f"negative {_column_name(layout, col)} {float(arr[row, col])!r}"
+
+
+def _too_large(arr: np.ndarray, layout: str) -> Failure:
+    """Boxes whose area or volume (or whose extent) overflows float64: their IoU is undefined."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        if layout == "polygon":
+            span = arr.max(axis=1) - arr.min(axis=1)
+            size = span[:, 0] * span[:, 1]
+        elif layout in _SIZE_COLUMNS:
+            size = np.prod(np.abs(arr[:, list(_SIZE_COLUMNS[layout])]), axis=1)
+        else:
+            size = np.prod(
+                np.abs([arr[:, hi] - arr[:, lo] for lo, hi in _EXTENT_COLUMNS[layout]]), axis=0
+            )
+    bad = ~np.isfinite(size)
+    if not bad.any():
+        return None
+    row = _first_bad(bad)
+    what = "volume" if layout in ("axis3", "upright") else "area"
+    return row, f"box too large: its {what} overflows float64"
 
 
 def _inverted_extent(arr: np.ndarray, layout: str, lo: int, hi: int) -> Failure:

@@ -496,3 +496,17 @@ def test_pair_batches_validate_row_by_row(rot, up):
         assert a.shape == b.shape and len(kinds) == len(a)
         np.testing.assert_array_equal(check(a, "rotated" if a.shape[-1] == 5 else "upright"), a)
         check(b, "rotated" if b.shape[-1] == 5 else "upright")
+
+
+@pytest.mark.parametrize(
+    ("rows", "shape", "message"),
+    [
+        ([[0, 0, 1, 1, 0], [0, 0, 1e200, 1e200, 0]], None, "b[1]: box too large: its area"),
+        ([[-1e308, 0, 0, 1e308, 1, 1]], None, "b[0]: box too large: its volume"),
+        ([[[0, 0], [1e300, 0], [0, 1e300]]], None, "b[0]: box too large: its area"),
+    ],
+)
+def test_sizes_that_overflow_float64_are_rejected(rows, shape, message):
+    # An area of inf would turn iou(x, x) into inf/inf: the project's rule is an error, not NaN.
+    with pytest.raises(ValueError, match="^" + re.escape(message)):
+        check(rows, shape, name="b")
