@@ -40,11 +40,11 @@ def axis_rows(data, layout):
     return rows
 
 
-@njit(error_model="numpy", cache=True)
-def rect_row(data, i, layout, cos, sin, row):
-    """Fill ``row`` with ``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1,
-    size, 1/hw, 1/hh`` of box ``data[i]`` (rotated, axis, or the footprint of an upright /
-    axis3 box). ``cos``, ``sin`` hold the per-box direction, computed once by numpy."""
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_tuple(data, i, layout, cos, sin):
+    """``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1, size, 1/hw, 1/hh``
+    of box ``data[i]`` (rotated, axis, or the footprint of an upright / axis3 box) as a
+    tuple. ``cos``, ``sin`` hold the per-box direction, computed once by numpy."""
     z0 = 0.0
     z1 = 0.0
     if layout == ROTATED or layout == UPRIGHT:
@@ -88,22 +88,18 @@ def rect_row(data, i, layout, cos, sin, row):
         c = 1.0
         s = 0.0
     area = w * h
-    row[0] = cx
-    row[1] = cy
-    row[2] = hw
-    row[3] = hh
-    row[4] = c
-    row[5] = s
-    row[6] = area
-    row[7] = xmin
-    row[8] = ymin
-    row[9] = xmax
-    row[10] = ymax
-    row[11] = z0
-    row[12] = z1
-    row[13] = area * (z1 - z0) if layout == UPRIGHT or layout == AXIS3 else area
-    row[14] = 1.0 / hw if hw > 0.0 else np.inf
-    row[15] = 1.0 / hh if hh > 0.0 else np.inf
+    size = area * (z1 - z0) if layout == UPRIGHT or layout == AXIS3 else area
+    ihw = 1.0 / hw if hw > 0.0 else np.inf
+    ihh = 1.0 / hh if hh > 0.0 else np.inf
+    return (cx, cy, hw, hh, c, s, area, xmin, ymin, xmax, ymax, z0, z1, size, ihw, ihh)
+
+
+@njit(error_model="numpy", cache=True)
+def rect_row(data, i, layout, cos, sin, row):
+    """Write :func:`rect_tuple` of box ``data[i]`` into ``row``."""
+    t = rect_tuple(data, i, layout, cos, sin)
+    row[0], row[1], row[2], row[3], row[4], row[5], row[6], row[7] = t[:8]
+    row[8], row[9], row[10], row[11], row[12], row[13], row[14], row[15] = t[8:]
 
 
 @njit(error_model="numpy", cache=True)

@@ -21,7 +21,7 @@ import numpy as np
 from numba import njit, prange
 
 from obbiou._kernels.clip import clip_axis, clip_line, hull_area, shoelace
-from obbiou._kernels.geometry import rect_row
+from obbiou._kernels.geometry import rect_row, rect_tuple
 
 # Measure codes (the public layer maps names to these).
 INTERSECTION = 0
@@ -49,13 +49,11 @@ def finish(measure, inter, sa, sb, hull, d2, c2):
     if measure == INTERSECTION:
         return inter
     if measure == COVERAGE:
-        if sa <= 0.0:
-            return 0.0
-        return min(max(inter / sa, 0.0), 1.0)
+        share = min(max(inter / sa, 0.0), 1.0)
+        return share if sa > 0.0 else 0.0
     union = sa + sb - inter
-    iou = 0.0
-    if union > 0.0 and inter > 0.0:
-        iou = min(max(inter / union, 0.0), 1.0)
+    iou = min(max(inter / union, 0.0), 1.0)  # a select below, not a branch: loops vectorise
+    iou = iou if (union > 0.0) & (inter > 0.0) else 0.0
     if measure == IOU:
         return iou
     if measure == GIOU:
@@ -178,6 +176,15 @@ def rect_load_t(RT, j):
         RT[0, j], RT[1, j], RT[2, j], RT[3, j], RT[4, j], RT[5, j], RT[6, j], RT[7, j],
         RT[8, j], RT[9, j], RT[10, j], RT[11, j], RT[12, j], RT[13, j], RT[14, j], RT[15, j],
     )  # fmt: skip
+
+
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_store_t(RT, j, t):
+    """Write row tuple t into column j of transposed rows RT (16, M)."""
+    RT[0, j], RT[1, j], RT[2, j], RT[3, j] = t[0], t[1], t[2], t[3]
+    RT[4, j], RT[5, j], RT[6, j], RT[7, j] = t[4], t[5], t[6], t[7]
+    RT[8, j], RT[9, j], RT[10, j], RT[11, j] = t[8], t[9], t[10], t[11]
+    RT[12, j], RT[13, j], RT[14, j], RT[15, j] = t[12], t[13], t[14], t[15]
 
 
 @njit(error_model="numpy", cache=True, inline="always")
@@ -336,17 +343,23 @@ def rect_intersection(a, b, is3d):
 
     Branch-free; ``redo`` asks the caller to recompute the pair with :func:`rect_slow`.
     """
-    sa = a[R_SIZE]
-    sb = b[R_SIZE]
-    separate = (a[R_XMAX] <= b[R_XMIN]) | (b[R_XMAX] <= a[R_XMIN])
-    separate = separate | (a[R_YMAX] <= b[R_YMIN]) | (b[R_YMAX] <= a[R_YMIN])
+    swap = rect_before(a, b, is3d)
+    return rect_ordered(pick(swap, a, b), pick(swap, b, a), is3d)
+
+
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_ordered(p, q, is3d):
+    """:func:`rect_intersection` of p and q already in canonical order (p first)."""
+    sa = p[R_SIZE]
+    sb = q[R_SIZE]
+    separate = (p[R_XMAX] <= q[R_XMIN]) | (q[R_XMAX] <= p[R_XMIN])
+    separate = separate | (p[R_YMAX] <= q[R_YMIN]) | (q[R_YMAX] <= p[R_YMIN])
     separate = separate | (sa <= 0.0) | (sb <= 0.0)
     dz = 1.0
     if is3d:
-        dz = min(a[R_Z1], b[R_Z1]) - max(a[R_Z0], b[R_Z0])
+        dz = min(p[R_Z1], q[R_Z1]) - max(p[R_Z0], q[R_Z0])
         separate = separate | (dz <= 0.0)
-    swap = rect_before(a, b, is3d)
-    area, redo = rect_area(pick(swap, a, b), pick(swap, b, a))
+    area, redo = rect_area(p, q)
     inter = min(area * dz, sa, sb) if is3d else area
     inter = 0.0 if separate else inter
     return inter, redo & ~separate
@@ -487,27 +500,26 @@ def rect_value(A, i, B, j, measure, is3d, buf):
 
 
 @njit(error_model="numpy", cache=True)
-def rect_row_fast(A, i, BT, out, redo):
-    """Intersection sizes of A[i] with every column of BT (transposed rows), vectorisable;
-    marks in ``redo`` the pairs to recompute with :func:`rect_value`."""
+def rect_row_fast(A, i, BT, out):
+    """Intersection sizes of A[i] with every column of BT (transposed rows), or -1 for the
+    pairs to recompute with :func:`rect_value`; a vectorisable loop."""
     a = rect_load(A, i)
     for j in range(BT.shape[1]):
         inter, again = rect_intersection(a, rect_load_t(BT, j), False)
-        out[j] = inter
-        redo[j] = again
+        out[j] = -1.0 if again else inter
 
 
 @njit(error_model="numpy", cache=True)
-def rect_row_fast3(A, i, BT, out, redo):
+def rect_row_fast3(A, i, BT, out):
+    """:func:`rect_row_fast` for upright 3D boxes."""
     a = rect_load(A, i)
     for j in range(BT.shape[1]):
         inter, again = rect_intersection(a, rect_load_t(BT, j), True)
-        out[j] = inter
-        redo[j] = again
+        out[j] = -1.0 if again else inter
 
 
 @njit(error_model="numpy", cache=True)
-def rect_matrix_row(A, i, B, BT, measure, is3d, out, redo, buf):
+def rect_matrix_row(A, i, B, BT, measure, is3d, out, buf):
     """Row i of an all-pairs matrix of rectangles."""
     m = B.shape[0]
     if measure == GIOU or measure == DIOU:
@@ -515,12 +527,12 @@ def rect_matrix_row(A, i, B, BT, measure, is3d, out, redo, buf):
             out[j] = rect_value(A, i, B, j, measure, is3d, buf)
         return
     if is3d:
-        rect_row_fast3(A, i, BT, out, redo)
+        rect_row_fast3(A, i, BT, out)
     else:
-        rect_row_fast(A, i, BT, out, redo)
+        rect_row_fast(A, i, BT, out)
     sa = A[i, R_SIZE]
     for j in range(m):
-        if redo[j]:
+        if out[j] < 0.0:
             out[j] = rect_value(A, i, B, j, measure, is3d, buf)
         elif measure != INTERSECTION:
             out[j] = finish(measure, out[j], sa, B[j, R_SIZE], 0.0, 0.0, 0.0)
@@ -675,8 +687,7 @@ def rect_matrix(A, B, measure, is3d):
     BT = np.ascontiguousarray(B.T)
     for i in prange(n):
         buf = np.empty((4, RECT_SCRATCH))
-        redo = np.empty(m, dtype=np.bool_)
-        rect_matrix_row(A, i, B, BT, measure, is3d, out[i], redo, buf)
+        rect_matrix_row(A, i, B, BT, measure, is3d, out[i], buf)
     return out
 
 
@@ -692,21 +703,84 @@ def rect_pairs(A, B, first, second, measure, is3d, chunks):
     return out
 
 
+ELEMENTWISE_BLOCK = 512
+
+
+@njit(error_model="numpy", cache=True)
+def rect_columns(Da, la, ca, sa, Db, lb, cb, sb, lo, hi, is3d, PT, QT, size_a, size_b):
+    """Prepared rows of pairs lo..hi-1 as columns of PT, QT (16, >= hi - lo), each pair in
+    canonical order (so that the loop over them needs no selects), and both sizes."""
+    for k in range(lo, hi):
+        a = rect_tuple(Da, k, la, ca, sa)
+        b = rect_tuple(Db, k, lb, cb, sb)
+        swap = rect_before(a, b, is3d)
+        p = pick(swap, a, b)
+        q = pick(swap, b, a)
+        rect_store_t(PT, k - lo, p)
+        rect_store_t(QT, k - lo, q)
+        size_a[k - lo] = a[R_SIZE]
+        size_b[k - lo] = b[R_SIZE]
+
+
+@njit(error_model="numpy", cache=True)
+def rect_columns_inter(PT, QT, n, out):
+    """out[k] = intersection of column k of PT with column k of QT (2D, ordered pairs), or
+    -1 for a pair to recompute with :func:`rect_value`. A vectorisable loop: the 2D / 3D
+    choice is a constant here so that it folds, and the flag rides in the value."""
+    for k in range(n):
+        inter, again = rect_ordered(rect_load_t(PT, k), rect_load_t(QT, k), False)
+        out[k] = -1.0 if again else inter
+
+
+@njit(error_model="numpy", cache=True)
+def rect_columns_inter3(PT, QT, n, out):
+    """:func:`rect_columns_inter` for upright 3D boxes."""
+    for k in range(n):
+        inter, again = rect_ordered(rect_load_t(PT, k), rect_load_t(QT, k), True)
+        out[k] = -1.0 if again else inter
+
+
+@njit(error_model="numpy", cache=True)
+def rect_elementwise_span(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, lo, hi, out):
+    """out[k] for k in [lo, hi) for every measure, block by block; scratch per call."""
+    buf = np.empty((4, RECT_SCRATCH))
+    ra = np.empty((1, RECT_COLUMNS))
+    rb = np.empty((1, RECT_COLUMNS))
+    fast = measure == INTERSECTION or measure == IOU or measure == COVERAGE
+    PT = np.empty((RECT_COLUMNS, ELEMENTWISE_BLOCK))
+    QT = np.empty((RECT_COLUMNS, ELEMENTWISE_BLOCK))
+    size_a = np.empty(ELEMENTWISE_BLOCK)
+    size_b = np.empty(ELEMENTWISE_BLOCK)
+    for start in range(lo, hi, ELEMENTWISE_BLOCK):
+        stop = min(hi, start + ELEMENTWISE_BLOCK)
+        n = stop - start
+        part = out[start:stop]
+        if fast:
+            rect_columns(Da, la, ca, sa, Db, lb, cb, sb, start, stop, is3d, PT, QT, size_a, size_b)
+            if is3d:
+                rect_columns_inter3(PT, QT, n, part)
+            else:
+                rect_columns_inter(PT, QT, n, part)
+        for k in range(n):
+            if not fast or part[k] < 0.0:
+                rect_row(Da, start + k, la, ca, sa, ra[0])
+                rect_row(Db, start + k, lb, cb, sb, rb[0])
+                part[k] = rect_value(ra, 0, rb, 0, measure, is3d, buf)
+            elif measure != INTERSECTION:
+                part[k] = finish(measure, part[k], size_a[k], size_b[k], 0.0, 0.0, 0.0)
+
+
 @njit(error_model="numpy", cache=True, parallel=True)
 def rect_elementwise(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
-    """Row k of a with row k of b, straight from the box data: the per-box rows are built
-    in scratch (the same code as ``rect_rows``), so no (N, 16) arrays are materialised."""
+    """Row k of a with row k of b, straight from the box data: no (N, 16) arrays."""
     n = Da.shape[0]
     out = np.empty(n)
     step = (n + chunks - 1) // chunks
     for c in prange(chunks):
-        buf = np.empty((4, RECT_SCRATCH))
-        ra = np.empty((1, RECT_COLUMNS))
-        rb = np.empty((1, RECT_COLUMNS))
-        for k in range(c * step, min(n, (c + 1) * step)):
-            rect_row(Da, k, la, ca, sa, ra[0])
-            rect_row(Db, k, lb, cb, sb, rb[0])
-            out[k] = rect_value(ra, 0, rb, 0, measure, is3d, buf)
+        lo = c * step
+        hi = min(n, lo + step)
+        if lo < hi:
+            rect_elementwise_span(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, lo, hi, out)
     return out
 
 
@@ -790,17 +864,8 @@ def rect_pairs_serial(A, B, first, second, measure, is3d, chunks):
 
 @njit(error_model="numpy", cache=True)
 def rect_elementwise_serial(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
-    n = Da.shape[0]
-    out = np.empty(n)
-    step = (n + chunks - 1) // chunks
-    for c in range(chunks):
-        buf = np.empty((4, RECT_SCRATCH))
-        ra = np.empty((1, RECT_COLUMNS))
-        rb = np.empty((1, RECT_COLUMNS))
-        for k in range(c * step, min(n, (c + 1) * step)):
-            rect_row(Da, k, la, ca, sa, ra[0])
-            rect_row(Db, k, lb, cb, sb, rb[0])
-            out[k] = rect_value(ra, 0, rb, 0, measure, is3d, buf)
+    out = np.empty(Da.shape[0])
+    rect_elementwise_span(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, 0, Da.shape[0], out)
     return out
 
 
