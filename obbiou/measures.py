@@ -17,6 +17,10 @@ Mixing layouts: ``axis`` and ``rotated`` boxes mix (axis boxes are rotated boxes
 mixes with ``upright``. 2D boxes never mix with 3D boxes (take
 :func:`obbiou.boxes.footprint` of the 3D ones for bird's-eye-view measures).
 
+Scene-scale code (overlapping pairs, suppression, evaluation) builds on
+:func:`pair_values`: the measure for listed index pairs, bit for bit the all-pairs entries,
+with :func:`prepare` to precompute per-box data once when the same boxes are used again.
+
 Exactness: each pair is computed relative to one of its boxes (coordinates near 1e6 lose
 nothing), in an order fixed by the boxes' data, so ``iou(a, b) == iou(b, a).T`` bit for bit;
 ``iou(x, x) == 1.0`` for every box of positive size; disjoint boxes give exactly 0.0; a box
@@ -112,9 +116,9 @@ def _polygon_rows(vertices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     with np.errstate(invalid="ignore", divide="ignore"):
         gx = ((x + xn) * cross).sum(axis=1) / (3.0 * area2)
         gy = ((y + yn) * cross).sum(axis=1) / (3.0 * area2)
-    flat = area2 == 0
-    gx[flat] = x[flat].mean(axis=1) if flat.any() else gx[flat]
-    gy[flat] = y[flat].mean(axis=1) if flat.any() else gy[flat]
+    flat = area2 == 0  # degenerate polygons: the mean of the vertices instead
+    gx = np.where(flat, x.mean(axis=1), gx)
+    gy = np.where(flat, y.mean(axis=1), gy)
     rows[:, 5] = origin[:, 0, 0] + gx
     rows[:, 6] = origin[:, 0, 1] + gy
     return np.ascontiguousarray(vertices), rows

@@ -21,7 +21,7 @@ import numpy as np
 from numba import njit, prange
 
 from obbiou._kernels.clip import clip_axis, clip_line, hull_area, shoelace
-from obbiou._kernels.geometry import rect_row, rect_tuple
+from obbiou._kernels.geometry import ROTATED, UPRIGHT, rect_row, rect_tuple
 
 # Measure codes (the public layer maps names to these).
 INTERSECTION = 0
@@ -500,20 +500,20 @@ def rect_value(A, i, B, j, measure, is3d, buf):
 
 
 @njit(error_model="numpy", cache=True)
-def rect_row_fast(A, i, BT, out):
+def rect_row_fast(A, i, BT, m, out):
     """Intersection sizes of A[i] with every column of BT (transposed rows), or -1 for the
     pairs to recompute with :func:`rect_value`; a vectorisable loop."""
     a = rect_load(A, i)
-    for j in range(BT.shape[1]):
+    for j in range(m):
         inter, again = rect_intersection(a, rect_load_t(BT, j), False)
         out[j] = -1.0 if again else inter
 
 
 @njit(error_model="numpy", cache=True)
-def rect_row_fast3(A, i, BT, out):
+def rect_row_fast3(A, i, BT, m, out):
     """:func:`rect_row_fast` for upright 3D boxes."""
     a = rect_load(A, i)
-    for j in range(BT.shape[1]):
+    for j in range(m):
         inter, again = rect_intersection(a, rect_load_t(BT, j), True)
         out[j] = -1.0 if again else inter
 
@@ -527,9 +527,9 @@ def rect_matrix_row(A, i, B, BT, measure, is3d, out, buf):
             out[j] = rect_value(A, i, B, j, measure, is3d, buf)
         return
     if is3d:
-        rect_row_fast3(A, i, BT, out)
+        rect_row_fast3(A, i, BT, m, out)
     else:
-        rect_row_fast(A, i, BT, out)
+        rect_row_fast(A, i, BT, m, out)
     sa = A[i, R_SIZE]
     for j in range(m):
         if out[j] < 0.0:
@@ -684,7 +684,8 @@ def rect_matrix(A, B, measure, is3d):
     n = A.shape[0]
     m = B.shape[0]
     out = np.empty((n, m))
-    BT = np.ascontiguousarray(B.T)
+    BT = np.empty((RECT_COLUMNS, m + 8))  # padded: rows not a multiple of 4 KiB apart
+    BT[:, :m] = B.T
     for i in prange(n):
         buf = np.empty((4, RECT_SCRATCH))
         rect_matrix_row(A, i, B, BT, measure, is3d, out[i], buf)
@@ -706,20 +707,37 @@ def rect_pairs(A, B, first, second, measure, is3d, chunks):
 ELEMENTWISE_BLOCK = 512
 
 
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_column_pair(Da, la, ca, sa, Db, lb, cb, sb, k, is3d, PT, QT, j, size_a, size_b):
+    a = rect_tuple(Da, k, la, ca, sa)
+    b = rect_tuple(Db, k, lb, cb, sb)
+    swap = rect_before(a, b, is3d)
+    rect_store_t(PT, j, pick(swap, a, b))
+    rect_store_t(QT, j, pick(swap, b, a))
+    size_a[j] = a[R_SIZE]
+    size_b[j] = b[R_SIZE]
+
+
 @njit(error_model="numpy", cache=True)
 def rect_columns(Da, la, ca, sa, Db, lb, cb, sb, lo, hi, is3d, PT, QT, size_a, size_b):
     """Prepared rows of pairs lo..hi-1 as columns of PT, QT (16, >= hi - lo), each pair in
-    canonical order (so that the loop over them needs no selects), and both sizes."""
-    for k in range(lo, hi):
-        a = rect_tuple(Da, k, la, ca, sa)
-        b = rect_tuple(Db, k, lb, cb, sb)
-        swap = rect_before(a, b, is3d)
-        p = pick(swap, a, b)
-        q = pick(swap, b, a)
-        rect_store_t(PT, k - lo, p)
-        rect_store_t(QT, k - lo, q)
-        size_a[k - lo] = a[R_SIZE]
-        size_b[k - lo] = b[R_SIZE]
+    canonical order (so that the loop over them needs no selects), and both sizes. The
+    common same-layout cases get loops where the layout is a constant."""
+    if la == ROTATED and lb == ROTATED:
+        for k in range(lo, hi):
+            rect_column_pair(
+                Da, ROTATED, ca, sa, Db, ROTATED, cb, sb, k, False, PT, QT, k - lo, size_a, size_b
+            )
+    elif la == UPRIGHT and lb == UPRIGHT:
+        for k in range(lo, hi):
+            rect_column_pair(
+                Da, UPRIGHT, ca, sa, Db, UPRIGHT, cb, sb, k, True, PT, QT, k - lo, size_a, size_b
+            )
+    else:
+        for k in range(lo, hi):
+            rect_column_pair(
+                Da, la, ca, sa, Db, lb, cb, sb, k, is3d, PT, QT, k - lo, size_a, size_b
+            )
 
 
 @njit(error_model="numpy", cache=True)
@@ -747,8 +765,10 @@ def rect_elementwise_span(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, lo, hi,
     ra = np.empty((1, RECT_COLUMNS))
     rb = np.empty((1, RECT_COLUMNS))
     fast = measure == INTERSECTION or measure == IOU or measure == COVERAGE
-    PT = np.empty((RECT_COLUMNS, ELEMENTWISE_BLOCK))
-    QT = np.empty((RECT_COLUMNS, ELEMENTWISE_BLOCK))
+    # Rows of the scratch columns are padded off a multiple of 4096 bytes apart: sixteen
+    # streams exactly 4 KiB apart would fight over the same L1 cache sets.
+    PT = np.empty((RECT_COLUMNS, ELEMENTWISE_BLOCK + 8))
+    QT = np.empty((RECT_COLUMNS, ELEMENTWISE_BLOCK + 8))
     size_a = np.empty(ELEMENTWISE_BLOCK)
     size_b = np.empty(ELEMENTWISE_BLOCK)
     for start in range(lo, hi, ELEMENTWISE_BLOCK):
