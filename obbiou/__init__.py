@@ -4,9 +4,24 @@ Public names only; the numba kernels live in ``obbiou._kernels`` and compile on 
 (``obbiou warmup`` compiles them all once and caches them on disk).
 """
 
+from obbiou import boxes
 from obbiou.measures import coverage, diou, giou, intersection, iou
+from obbiou.scene import Kept, Pairs, overlapping_pairs, suppress
 from obbiou.shapes import SHAPES
 
 __version__ = "0.1.0"
 
-__all__ = ["SHAPES", "__version__", "iou", "giou", "diou", "intersection", "coverage"]
+__all__ = [
+    "SHAPES",
+    "__version__",
+    "boxes",
+    "iou",
+    "giou",
+    "diou",
+    "intersection",
+    "coverage",
+    "overlapping_pairs",
+    "suppress",
+    "Pairs",
+    "Kept",
+]

@@ -294,40 +294,60 @@ def _column_name(layout: str, col: int) -> str:
 
 
 def _validate(arr: np.ndarray, layout: str, name: str) -> None:
+    # Each check finds its own first failing row; the earliest row wins (for one row, the
+    # checks' order decides), so the message always names the first offending row.
     finite = np.isfinite(arr)
-    if not finite.all():
-        row = _first_bad(~finite)
-        flat = arr[row].reshape(-1, arr.shape[-1])
-        vertex, col = (int(v) for v in np.argwhere(~np.isfinite(flat))[0])
-        value = flat[vertex, col]
-        what = "NaN" if np.isnan(value) else ("+inf" if value > 0 else "-inf")
-        where = _column_name(layout, col)
-        if layout == "polygon":
-            where = f"vertex {vertex} {where}"
-        raise ValueError(f"{name}[{row}]: {where} is {what}")
+    failures = [_non_finite(arr, finite, layout)]
     if layout in _SIZE_COLUMNS:
-        cols = list(_SIZE_COLUMNS[layout])
-        neg = arr[:, cols] < 0
-        if neg.any():
-            row = _first_bad(neg)
-            col = cols[int(np.argmax(neg[row]))]
-            raise ValueError(
-                f"{name}[{row}]: negative {_column_name(layout, col)} {float(arr[row, col])!r}"
-            )
+        failures.append(_negative_size(arr, layout))
     elif layout in _EXTENT_COLUMNS:
-        for lo, hi in _EXTENT_COLUMNS[layout]:
-            bad = arr[:, hi] < arr[:, lo]
-            if bad.any():
-                row = _first_bad(bad)
-                raise ValueError(
-                    f"{name}[{row}]: {COLUMNS[layout][hi]} {float(arr[row, hi])!r} < "
-                    f"{COLUMNS[layout][lo]} {float(arr[row, lo])!r}"
-                )
+        failures.extend(_inverted_extent(arr, layout, lo, hi) for lo, hi in _EXTENT_COLUMNS[layout])
     elif layout == "polygon":
-        _validate_polygons(arr, name)
+        rows_ok = finite.reshape(arr.shape[0], -1).all(axis=1)
+        failures.extend(_bad_polygons(np.where(rows_ok[:, None, None], arr, 0.0)))
+    found = [f for f in failures if f is not None]
+    if found:
+        row, reason = min(found, key=lambda f: f[0])
+        raise ValueError(f"{name}[{row}]: {reason}")
 
 
-def _validate_polygons(poly: np.ndarray, name: str) -> None:
+Failure = tuple[int, str] | None
+
+
+def _non_finite(arr: np.ndarray, finite: np.ndarray, layout: str) -> Failure:
+    if finite.all():
+        return None
+    row = _first_bad(~finite)
+    flat = arr[row].reshape(-1, arr.shape[-1])
+    vertex, col = (int(v) for v in np.argwhere(~np.isfinite(flat))[0])
+    value = flat[vertex, col]
+    what = "NaN" if np.isnan(value) else ("+inf" if value > 0 else "-inf")
+    where = _column_name(layout, col)
+    if layout == "polygon":
+        where = f"vertex {vertex} {where}"
+    return row, f"{where} is {what}"
+
+
+def _negative_size(arr: np.ndarray, layout: str) -> Failure:
+    cols = list(_SIZE_COLUMNS[layout])
+    neg = arr[:, cols] < 0
+    if not neg.any():
+        return None
+    row = _first_bad(neg)
+    col = cols[int(np.argmax(neg[row]))]
+    return row, f"negative {_column_name(layout, col)} {float(arr[row, col])!r}"
+
+
+def _inverted_extent(arr: np.ndarray, layout: str, lo: int, hi: int) -> Failure:
+    bad = arr[:, hi] < arr[:, lo]
+    if not bad.any():
+        return None
+    row = _first_bad(bad)
+    cols = COLUMNS[layout]
+    return row, f"{cols[hi]} {float(arr[row, hi])!r} < {cols[lo]} {float(arr[row, lo])!r}"
+
+
+def _bad_polygons(poly: np.ndarray) -> list[Failure]:
     """Reject polygons that are not convex or wind around more than once.
 
     Zero-length edges and collinear vertices are allowed (a degenerate polygon has zero area
@@ -351,14 +371,18 @@ def _validate_polygons(poly: np.ndarray, name: str) -> None:
     # turn that counts as wrong.
     x, y = local[..., 0], local[..., 1]
     area2 = (x * np.roll(y, -1, axis=1) - np.roll(x, -1, axis=1) * y).sum(axis=1)
-    sign = np.sign(area2)[:, None]
+    sign = np.sign(area2)
+    # Lobes of a symmetric bow-tie cancel to area 0: orient such rows by their first turn
+    # that is clearly not straight, so turns the other way still count as wrong.
+    significant = np.abs(cross) > tol
+    first_turn = np.take_along_axis(cross, np.argmax(significant, axis=1)[:, None], axis=1)[:, 0]
+    sign = np.where(sign == 0, np.sign(first_turn) * significant.any(axis=1), sign)[:, None]
     wrong = (cross * sign < -tol) & (sign != 0)
+    failures: list[Failure] = []
     if wrong.any():
         row = _first_bad(wrong)
         vertex = (int(np.argmax(wrong[row])) + 1) % poly.shape[1]
-        raise ValueError(
-            f"{name}[{row}]: polygon is not convex (it turns the other way at vertex {vertex})"
-        )
+        failures.append((row, f"polygon is not convex (it turns the other way at vertex {vertex})"))
     # A convex-turning polygon that is simple turns through exactly 2*pi in total; a star
     # (pentagram) turns through 4*pi and crosses itself.
     turning = np.abs(np.arctan2(cross, dot).sum(axis=1))
@@ -366,4 +390,5 @@ def _validate_polygons(poly: np.ndarray, name: str) -> None:
     if crossing.any():
         row = _first_bad(crossing)
         winds = int(round(turning[row] / (2 * np.pi)))
-        raise ValueError(f"{name}[{row}]: polygon crosses itself (it winds around {winds} times)")
+        failures.append((row, f"polygon crosses itself (it winds around {winds} times)"))
+    return failures

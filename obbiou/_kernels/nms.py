@@ -1,0 +1,153 @@
+"""Non-maximum suppression over a neighbour list: hard greedy and soft (decaying) variants.
+
+Numba kernels only: no validation, no Python objects. The public layer
+(:func:`obbiou.scene.suppress`) finds the overlapping pairs with the spatial index and hands
+them here as a symmetric CSR neighbour list, so the cost follows the number of overlapping
+pairs, never N^2.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+
+@njit(cache=True)
+def neighbours(n, first, second, values):
+    """Symmetric CSR neighbour list of n boxes from pairs (first[k], second[k], values[k])."""
+    ptr = np.zeros(n + 1, np.int64)
+    for k in range(first.shape[0]):
+        ptr[first[k] + 1] += 1
+        ptr[second[k] + 1] += 1
+    for i in range(n):
+        ptr[i + 1] += ptr[i]
+    fill = ptr[:-1].copy()
+    nbr = np.empty(ptr[n], np.int64)
+    val = np.empty(ptr[n])
+    for k in range(first.shape[0]):
+        i, j = first[k], second[k]
+        nbr[fill[i]] = j
+        val[fill[i]] = values[k]
+        fill[i] += 1
+        nbr[fill[j]] = i
+        val[fill[j]] = values[k]
+        fill[j] += 1
+    return ptr, nbr, val
+
+
+@njit(cache=True)
+def hard(order, ptr, nbr, limit):
+    """Greedy suppression: walk ``order`` (best first); keep a box unless a kept box is its
+    neighbour, and then remove all its neighbours. Stops after ``limit`` kept boxes
+    (limit < 0: no limit). The neighbour list holds only pairs above the IoU threshold."""
+    n = ptr.shape[0] - 1
+    removed = np.zeros(n, np.bool_)
+    kept = np.empty(order.shape[0], np.int64)
+    nk = 0
+    for p in range(order.shape[0]):
+        if nk == limit:
+            break
+        i = order[p]
+        if removed[i]:
+            continue
+        kept[nk] = i
+        nk += 1
+        for k in range(ptr[i], ptr[i + 1]):
+            removed[nbr[k]] = True
+    return kept[:nk]
+
+
+@njit(cache=True)
+def _before(s1, i1, s2, i2):
+    """Heap order: higher score first, ties by lower input index."""
+    return s1 > s2 or (s1 == s2 and i1 < i2)
+
+
+@njit(cache=True)
+def _push(hs, hx, size, s, i):
+    p = size
+    while p > 0:
+        q = (p - 1) // 2
+        if not _before(s, i, hs[q], hx[q]):
+            break
+        hs[p], hx[p] = hs[q], hx[q]
+        p = q
+    hs[p], hx[p] = s, i
+    return size + 1
+
+
+@njit(cache=True)
+def _pop(hs, hx, size):
+    """Remove the top entry (returned by the caller beforehand); returns the new size."""
+    size -= 1
+    s, i = hs[size], hx[size]
+    p = 0
+    while True:
+        c = 2 * p + 1
+        if c >= size:
+            break
+        if c + 1 < size and _before(hs[c + 1], hx[c + 1], hs[c], hx[c]):
+            c += 1
+        if not _before(hs[c], hx[c], s, i):
+            break
+        hs[p], hx[p] = hs[c], hx[c]
+        p = c
+    if size > 0:
+        hs[p], hx[p] = s, i
+    return size
+
+
+@njit(cache=True)
+def soft(scores, ptr, nbr, val, gaussian, max_iou, sigma, min_score, limit):
+    """Soft suppression (Bodla et al., ICCV 2017), exact for any order of decays.
+
+    Repeatedly select the remaining box with the highest current score (ties: lower
+    index) and decay the current score of each remaining neighbour j by
+    ``1 - iou`` when iou > max_iou (linear) or ``exp(-iou**2 / sigma)`` (gaussian). A box
+    whose decayed score falls below ``min_score`` is discarded at once and decays no other
+    box. A max-heap with lazy deletion keeps the order as scores change: every decay pushes
+    the new score, stale entries are skipped when they surface; each pair decays at most
+    once, so there are at most N + P pushes. Returns (kept indices, their final scores),
+    in selection order, which is by descending final score (ties: lower index).
+    """
+    n = scores.shape[0]
+    cur = scores.copy()
+    done = np.zeros(n, np.bool_)
+    cap = n + nbr.shape[0] // 2 + 1
+    hs = np.empty(cap)
+    hx = np.empty(cap, np.int64)
+    size = 0
+    for i in range(n):
+        size = _push(hs, hx, size, cur[i], i)
+    kept = np.empty(n, np.int64)
+    kept_s = np.empty(n)
+    nk = 0
+    while size > 0 and nk != limit:
+        s, i = hs[0], hx[0]
+        size = _pop(hs, hx, size)
+        if done[i] or s != cur[i]:
+            continue
+        done[i] = True
+        kept[nk] = i
+        kept_s[nk] = s
+        nk += 1
+        for k in range(ptr[i], ptr[i + 1]):
+            j = nbr[k]
+            if done[j]:
+                continue
+            iou = val[k]
+            if gaussian:
+                f = np.exp(-(iou * iou) / sigma)
+            elif iou > max_iou:
+                f = 1.0 - iou
+            else:
+                f = 1.0
+            new = cur[j] * f
+            if new == cur[j]:
+                continue
+            cur[j] = new
+            if new < min_score:
+                done[j] = True
+                continue
+            size = _push(hs, hx, size, new, j)
+    return kept[:nk], kept_s[:nk]

@@ -1,0 +1,315 @@
+"""A picture of one scene: truths and detections in the project palette (invented data).
+
+Truths are navy ``#1f3b73`` solid, matched detections amber ``#e0a100``, false positives
+magenta ``#b0207a`` dashed, missed truths navy dotted; ignore truths are navy with a light
+fill and the detections they absorb light grey. Upright 3D boxes are drawn from above
+(bird's-eye view, their footprints) with a tick towards the heading.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+__all__ = ["PALETTE", "draw_scene"]
+
+#: The project palette (DESIGN §7).
+PALETTE = {
+    "truth": "#1f3b73",
+    "matched": "#e0a100",
+    "false_positive": "#b0207a",
+    "ignored": "#9a9a9a",
+    "water": "#eef3f8",
+}
+
+
+def _outlines(boxes: np.ndarray, shape: str) -> tuple[np.ndarray, np.ndarray | None]:
+    """Closed 2D outlines (N, 5, 2) and, for upright boxes, heading ticks (N, 2, 2)."""
+    from obbiou.boxes import corners, footprint
+
+    if len(boxes) == 0:
+        return np.zeros((0, 5, 2)), None
+    flat = footprint(boxes, shape=shape) if shape == "upright" else boxes
+    pts = corners(flat, shape="rotated" if shape == "upright" else shape)
+    closed = np.concatenate([pts, pts[:, :1]], axis=1)
+    ticks = None
+    if shape == "upright":
+        cx, cy, length, yaw = flat[:, 0], flat[:, 1], flat[:, 2], flat[:, 4]
+        tip = np.stack([cx + 0.5 * length * np.cos(yaw), cy + 0.5 * length * np.sin(yaw)], 1)
+        ticks = np.stack([np.stack([cx, cy], 1), tip], axis=1)
+    return closed, ticks
+
+
+def draw_scene(
+    path: Any,
+    scenario: Any,
+    frame: str,
+    truth: Any,
+    truth_status: Any,
+    detections: Any,
+    detection_status: Any,
+    *,
+    iou: float = 0.5,
+    iou_text: str | None = None,
+    title: str | None = None,
+    window: tuple[float, float, float, float] | None = None,
+) -> Path:
+    """Draw one frame's truths and detections to a PNG.
+
+    Parameters
+    ----------
+    path : path-like
+        The PNG to write.
+    scenario : obbiou.demo.scenarios.Scenario
+        Gives the layout, units, frame extent and drawing extras (quay line, robot pose).
+    frame : str
+        The frame drawn (for the title and the scenario extras).
+    truth, detections : pandas.DataFrame
+        That frame's rows (box columns of ``scenario.shape``).
+    truth_status : sequence of str
+        Per truth: ``"matched"``, ``"missed"`` or ``"ignore"``.
+    detection_status : sequence of str
+        Per detection: ``"matched"``, ``"false positive"`` or ``"ignored"``.
+    iou : float
+        The IoU threshold the statuses come from (for the legend).
+    iou_text : str, optional
+        The legend's title instead of ``"matching at IoU ≥ <iou>"``.
+    title : str, optional
+        Title; a default names the scenario and frame.
+    window : tuple of float, optional
+        ``(x_min, y_min, x_max, y_max)`` to show instead of the whole frame.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
+    import matplotlib
+
+    matplotlib.use("Agg", force=False)
+    import matplotlib.pyplot as plt
+    from matplotlib.collections import LineCollection
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch, Polygon
+    from matplotlib.transforms import offset_copy
+
+    path = Path(path)
+    shape = scenario.shape
+    cols = list(scenario.box_columns)
+    t_status = np.asarray(truth_status, dtype=object)
+    d_status = np.asarray(detection_status, dtype=object)
+    t_out, t_tick = _outlines(truth[cols].to_numpy(np.float64), shape)
+    d_out, d_tick = _outlines(detections[cols].to_numpy(np.float64), shape)
+
+    x0, y0, x1, y1 = window or scenario.extent
+    aspect = (y1 - y0) / (x1 - x0)
+    fig, ax = plt.subplots(figsize=(9.6, 9.6 * aspect * 0.86 + 2.4), dpi=110)
+    ax.set_xlim(x0, x1)
+    ax.set_ylim(y1, y0) if scenario.y_down else ax.set_ylim(y0, y1)
+    ax.set_aspect("equal")
+    ax.set_facecolor("white")
+
+    if scenario.name == "harbour" and frame in scenario.layout.get("quay", {}):
+        _draw_quay(ax, scenario, frame, Polygon)
+    if scenario.name == "warehouse":
+        for r, text in ((24.0, "24 m: beyond, truths are ignore"), (30.0, "30 m sweep range")):
+            ring = plt.Circle((0, 0), r, fill=False, color="#c8c8c8", lw=0.8, ls="-")
+            ax.add_patch(ring)
+            # Label the ring where it crosses the view: try a few bearings.
+            for deg in (17.0, 163.0, -17.0, -163.0):
+                at = np.deg2rad(deg)
+                px, py = r * np.cos(at), r * np.sin(at)
+                if x0 <= px <= x1 and y0 <= py <= y1:
+                    ax.annotate(
+                        text,
+                        (px, py),
+                        xytext=(-4 if px > 0 else 4, 0),
+                        textcoords="offset points",
+                        fontsize=7.5,
+                        color="#8a8a8a",
+                        ha="right" if px > 0 else "left",
+                    )
+                    break
+        _draw_racks(ax, scenario, frame, Polygon)
+        ax.plot([0], [0], marker=(3, 0, -90), ms=11, color="#555555", ls="none")
+        ax.annotate(
+            "robot (sensor origin), heading +x",
+            (0, 0),
+            xytext=(-8, -14),
+            ha="right",
+            textcoords="offset points",
+            fontsize=8,
+            color="#555555",
+        )
+
+    navy, amber, magenta, grey = (
+        PALETTE[k] for k in ("truth", "matched", "false_positive", "ignored")
+    )
+    thin = 0.7 if len(t_out) > 200 else 1.1
+
+    def lines(outlines, mask, **kw):
+        if mask.any():
+            ax.add_collection(LineCollection(list(outlines[mask]), **kw))
+
+    # Ignore truths: light fill so the region reads as "not judged".
+    for poly in t_out[t_status == "ignore"]:
+        ax.add_patch(Polygon(poly, closed=True, facecolor=navy, alpha=0.12, edgecolor="none"))
+    lines(t_out, t_status == "ignore", colors=navy, linewidths=thin * 0.8, alpha=0.6)
+    lines(t_out, t_status == "matched", colors=navy, linewidths=thin * 1.6)
+    lines(t_out, t_status == "missed", colors=navy, linewidths=thin * 2.0, linestyles=":")
+    lines(d_out, d_status == "ignored", colors=grey, linewidths=thin * 0.8)
+    lines(d_out, d_status == "matched", colors=amber, linewidths=thin * 1.1)
+    lines(
+        d_out,
+        d_status == "false positive",
+        colors=magenta,
+        linewidths=thin * 1.4,
+        linestyles=(0, (4, 2)),
+    )
+    if t_tick is not None and d_tick is not None:
+        lines(t_tick, t_status != "ignore", colors=navy, linewidths=thin)
+        lines(d_tick, d_status == "matched", colors=amber, linewidths=thin)
+        lines(d_tick, d_status == "false positive", colors=magenta, linewidths=thin)
+
+    # Name the less common objects (vessels, cranes; forklifts, people) beside their truth.
+    if len(truth):
+        labels = truth["label"].astype(str).to_numpy()
+        values, freq = np.unique(labels, return_counts=True)
+        common = values[np.argmax(freq)]
+        x0, y0, x1, y1 = window or scenario.extent
+        for poly, lab, st in zip(t_out, labels, t_status, strict=True):
+            cx, cy = poly[:4].mean(axis=0)
+            if lab == common or st == "ignore" or not (x0 <= cx <= x1 and y0 <= cy <= y1):
+                continue
+            ax.annotate(
+                lab,
+                (cx, cy),
+                fontsize=7,
+                color=navy,
+                ha="center",
+                va="center",
+                bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.7},
+            )
+    counts = {k: int((t_status == k).sum()) for k in ("matched", "missed", "ignore")}
+    dcounts = {k: int((d_status == k).sum()) for k in ("matched", "false positive", "ignored")}
+    handles = [
+        Line2D([], [], color=navy, lw=1.8, label=f"truth, found ({counts['matched']})"),
+        Line2D([], [], color=navy, lw=2.0, ls=":", label=f"truth, missed ({counts['missed']})"),
+        Patch(
+            facecolor=navy, alpha=0.25, edgecolor=navy, label=f"ignore truth ({counts['ignore']})"
+        ),
+        Line2D([], [], color=amber, lw=1.6, label=f"detection, matched ({dcounts['matched']})"),
+        Line2D(
+            [],
+            [],
+            color=magenta,
+            lw=1.6,
+            ls=(0, (4, 2)),
+            label=f"false positive ({dcounts['false positive']})",
+        ),
+        Line2D(
+            [], [], color=grey, lw=1.2, label=f"detection on an ignore truth ({dcounts['ignored']})"
+        ),
+    ]
+    ax.legend(
+        handles=handles,
+        loc="upper center",
+        bbox_to_anchor=(0.5, 0.0),
+        bbox_transform=offset_copy(ax.transAxes, fig=fig, y=-34, units="points"),
+        ncol=3,
+        fontsize=8.5,
+        frameon=False,
+        title=iou_text or f"matching at IoU ≥ {iou:g}",
+        title_fontsize=8.5,
+    )
+    if shape == "upright":
+        ax.set_xlabel("x, ahead of the robot (m)")
+        ax.set_ylabel("y, to the robot's left (m)")
+    else:
+        ax.set_xlabel("x (pixels, 0.15 m per pixel)")
+        ax.set_ylabel("y (pixels, pointing down)")
+    view = "bird's-eye view, " if shape == "upright" else ""
+    note = ""
+    if shape == "upright":
+        note = "; boxes on different rack levels overlap when seen from above"
+    ax.set_title(
+        f"{view}{scenario.units}{note}\nINVENTED DATA from a seeded simulation, "
+        "not a real scene or detector",
+        fontsize=8.5,
+        color="#555555",
+        loc="left",
+        pad=5,
+    )
+    ax.annotate(
+        title or f"{scenario.title}: {frame}",
+        (0, 1),
+        xycoords="axes fraction",
+        xytext=(0, 32),
+        textcoords="offset points",
+        fontsize=12.5,
+        va="bottom",
+    )
+    ax.tick_params(labelsize=8)
+    fig.tight_layout()
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fig.savefig(path, bbox_inches="tight", pad_inches=0.25)
+    plt.close(fig)
+    return path
+
+
+def _draw_quay(ax: Any, scenario: Any, frame: str, polygon: Any) -> None:
+    """Shade the water side of the harbour tile's quay edge (pixel frame)."""
+    from obbiou.demo.scenarios import HARBOUR_METRES_PER_PIXEL, HARBOUR_TILE
+
+    offset, theta = scenario.layout["quay"][frame]
+    along = np.array([np.cos(theta), np.sin(theta)])
+    across = np.array([-np.sin(theta), np.cos(theta)])
+    centre = np.full(2, HARBOUR_TILE / 2) + across * offset / HARBOUR_METRES_PER_PIXEL
+    far = 4 * HARBOUR_TILE
+    water = [
+        centre - along * far,
+        centre + along * far,
+        centre + along * far + across * far,
+        centre - along * far + across * far,
+    ]
+    ax.add_patch(
+        polygon(water, closed=True, facecolor=PALETTE["water"], edgecolor="none", zorder=0)
+    )
+    edge = np.array([centre - along * far, centre + along * far])
+    ax.plot(edge[:, 0], edge[:, 1], color="#b8c4d0", lw=1.0, zorder=0.5)
+    label_at = centre + across * 40 / HARBOUR_METRES_PER_PIXEL
+    if 0 <= label_at[0] <= HARBOUR_TILE and 0 <= label_at[1] <= HARBOUR_TILE:
+        ax.annotate("water", label_at, fontsize=8, color="#8fa3b8", ha="center")
+
+
+def _draw_racks(ax: Any, scenario: Any, frame: str, polygon: Any) -> None:
+    """Shade the two rack rows beside the robot's aisle (sensor frame)."""
+    from obbiou.demo import scenarios as sc
+
+    pose = scenario.layout.get("poses", {}).get(frame)
+    if pose is None:
+        return
+    rx, ry, ryaw = pose
+    c, s = np.cos(ryaw), np.sin(ryaw)
+    for side in (-1, 1):
+        y0 = ry + side * sc._AISLE / 2
+        y1 = ry + side * (sc._AISLE / 2 + sc._RACK_DEPTH)
+        world = np.array([[0, y0], [sc._RACK_LENGTH, y0], [sc._RACK_LENGTH, y1], [0, y1]])
+        d = world - [rx, ry]
+        local = np.stack([c * d[:, 0] + s * d[:, 1], -s * d[:, 0] + c * d[:, 1]], axis=1)
+        ax.add_patch(
+            polygon(local, closed=True, facecolor="#f1f1f1", edgecolor="#d5d5d5", lw=0.6, zorder=0)
+        )
+        mid = local[:, 1].mean()
+        ax.annotate(
+            "rack",
+            (local[:, 0].min(), mid),
+            xytext=(-3, 0),
+            textcoords="offset points",
+            fontsize=7.5,
+            color="#9a9a9a",
+            ha="right",
+            va="center",
+        )

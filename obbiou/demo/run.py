@@ -1,0 +1,453 @@
+"""The demo end to end, on invented data: ``obbiou demo`` and :func:`run_demo`.
+
+For each of the two invented scenarios (harbour survey, warehouse lidar) it generates the
+ground truth and the raw output of two versions of a simulated detector, suppresses
+duplicates (:func:`obbiou.suppress`, per frame and label), evaluates the improved version
+with bootstrap intervals (:func:`obbiou.evaluation.evaluate`), compares it with the baseline
+(:func:`obbiou.evaluation.compare`), and writes:
+
+* ``report.txt`` and ``report.json`` — the summary tables, intervals, comparison and
+  breakdowns;
+* ``<scenario>/truth.csv``, ``raw_<version>.csv``, ``<version>.csv`` — the tables, so the
+  command line can be tried on them;
+* ``<scenario>/pr_curves.png`` — precision–recall curves;
+* ``<scenario>/scene.png`` — one frame with truths and detections drawn in the palette
+  (the warehouse from above: bird's-eye view).
+
+All data is invented. Detection metrics do not establish that a vehicle or robot is safe.
+"""
+
+from __future__ import annotations
+
+import json
+import textwrap
+import time
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from obbiou.demo.scenarios import INVENTED, Scenario, harbour_survey, simulate_detector
+from obbiou.demo.scenarios import warehouse_lidar as _warehouse
+
+__all__ = ["run_demo", "CAUTION", "SETTINGS"]
+
+CAUTION = (
+    "Detection metrics do not establish that a vehicle, robot or any other system is safe. "
+    "Defer to the applicable safety standards, local regulation and qualified engineers."
+)
+
+#: How each scenario is run: default size, suppression threshold, IoU thresholds of the
+#: evaluation, the threshold the headline numbers and the pictures use, and buckets.
+SETTINGS: dict[str, dict[str, Any]] = {
+    "harbour": {
+        "make": harbour_survey,
+        "frames": 12,
+        "max_iou": 0.5,
+        "iou": "0.5:0.95:0.05",
+        "headline": 0.5,
+        # areas in square pixels: 20 ft containers ~650, 40 ft ~1300, vessels and cranes more
+        "size_buckets": {"small": (0, 2000), "medium": (2000, 40000), "large": (40000, 1e12)},
+        "range_buckets": None,
+    },
+    "warehouse": {
+        "make": _warehouse,
+        "frames": 40,
+        "max_iou": 0.3,
+        "iou": "0.25,0.5,0.7",
+        "headline": 0.5,
+        "size_buckets": None,
+        "range_buckets": {"0-8 m": (0, 8), "8-16 m": (8, 16), "16-24 m": (16, 24)},
+    },
+}
+
+VERSIONS = ("baseline", "improved")
+_RERUN = 7919  # seed offset of the control rerun
+
+
+def _suppress(scenario: Scenario, raw: Any, max_iou: float, progress: bool) -> Any:
+    """Hard suppression per frame and label; returns the kept rows (a DataFrame)."""
+    import obbiou
+
+    cols = list(scenario.box_columns)
+    boxes = raw[cols].to_numpy(np.float64)
+    scores = raw["score"].to_numpy(np.float64)
+    labels = raw["label"].to_numpy(object)
+    frames = raw["frame"].to_numpy(object)
+    keep = []
+    groups = [np.flatnonzero(frames == f) for f in scenario.frames]
+    if progress:
+        from tqdm import tqdm
+
+        groups = tqdm(groups, desc=f"{scenario.name}: suppress", unit="frame", leave=False)
+    for rows in groups:
+        if len(rows) == 0:
+            continue
+        kept = obbiou.suppress(
+            boxes[rows], scores[rows], shape=scenario.shape, max_iou=max_iou, labels=labels[rows]
+        )
+        keep.append(rows[np.sort(np.asarray(kept.indices, dtype=np.int64))])
+    idx = np.concatenate(keep) if keep else np.zeros(0, dtype=np.int64)
+    return raw.iloc[idx].reset_index(drop=True)
+
+
+def _statuses(evaluation: Any, frame: str, iou: float, n_truth: int, n_det: int) -> tuple:
+    """Per truth and per detection of one frame: what matching made of it at ``iou``."""
+    from obbiou.evaluation.matching import CAPPED, IGNORED, TP
+
+    r = evaluation.records
+    k = int(np.flatnonzero(np.abs(np.asarray(r.thresholds) - iou) < 1e-9)[0])
+    d_status = np.full(n_det, "false positive", dtype=object)
+    sel = np.flatnonzero(r.det_frame.astype(str) == str(frame))
+    outcome = r.det_outcome[sel, k]
+    names = {TP: "matched", IGNORED: "ignored", CAPPED: "ignored"}
+    for rank, code in zip(r.det_rank[sel], outcome, strict=True):
+        d_status[int(rank)] = names.get(int(code), "false positive")
+    t_status = np.full(n_truth, "missed", dtype=object)
+    sel = np.flatnonzero(r.truth_frame.astype(str) == str(frame))
+    for rank, ignore, hit in zip(
+        r.truth_rank[sel], r.truth_ignore[sel], r.truth_matched[sel, k], strict=True
+    ):
+        t_status[int(rank)] = "ignore" if ignore else ("matched" if hit else "missed")
+    return t_status, d_status
+
+
+def _pick_frame(scenario: Scenario) -> str:
+    """The frame drawn: the one with the most labels present, then the most non-ignore truths."""
+    t = scenario.truth[~scenario.truth["ignore"]]
+    if len(t) == 0:
+        return scenario.frames[0]
+    kinds = t.groupby("frame")["label"].nunique()
+    sizes = t.groupby("frame").size()
+    best = max(kinds.index, key=lambda f: (kinds[f], -abs(sizes[f] - sizes.median()), str(f)))
+    return str(best)
+
+
+def _window(scenario: Scenario, frame: str) -> tuple[float, float, float, float] | None:
+    """What the scene picture shows: a harbour tile whole; around the robot what it saw."""
+    if scenario.name != "warehouse":
+        return None
+    t = scenario.truth[scenario.truth["frame"] == frame]
+    if len(t) == 0:
+        return (-14.0, -12.0, 30.0, 12.0)
+    reach = np.hypot(t["length"], t["width"]).to_numpy() / 2
+    x0 = min(float((t["cx"] - reach).min()), -2.0) - 2
+    x1 = max(float((t["cx"] + reach).max()), 2.0) + 2
+    y0 = min(float((t["cy"] - reach).min()), -8.0) - 2
+    y1 = max(float((t["cy"] + reach).max()), 8.0) + 2
+    return (x0, y0, x1, y1)
+
+
+def run_demo(
+    out_dir: Any = "obbiou-demo",
+    *,
+    seed: int = 0,
+    frames: int | None = None,
+    progress: bool = True,
+    resamples: int = 1000,
+    echo: Callable[[str], None] | None = print,
+) -> dict[str, Any]:
+    """Run the whole job on the two invented scenarios and write the report and pictures.
+
+    Parameters
+    ----------
+    out_dir : path-like
+        Folder for the outputs (created if missing).
+    seed : int
+        Seed of the invented data and the simulated detectors; the bootstrap uses it too.
+        The same seed gives the same numbers.
+    frames : int, optional
+        Frames per scenario (default: 12 harbour tiles, 40 warehouse sweeps). Small values
+        make a quick run.
+    progress : bool
+        Show progress bars (on stderr).
+    resamples : int
+        Bootstrap resamples for the intervals and the comparison.
+    echo : callable, optional
+        Where the printed summary goes (default :func:`print`; ``None`` for silence).
+
+    Returns
+    -------
+    dict
+        ``{"report": Path, "json": Path, "files": {...}, "mean_ap": {scenario: float},
+        "seconds": float}``.
+    """
+    from obbiou.evaluation import compare, evaluate
+
+    say = echo or (lambda _text: None)
+    start = time.perf_counter()
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    say(f"obbiou demo: {INVENTED}.")
+    say(CAUTION)
+    lines = _header(seed)
+    doc: dict[str, Any] = {"note": INVENTED, "caution": CAUTION, "seed": seed, "scenarios": {}}
+    files: dict[str, Path] = {}
+    mean_ap: dict[str, float | None] = {}
+    for number, (name, cfg) in enumerate(SETTINGS.items(), start=1):
+        scenario: Scenario = cfg["make"](frames if frames is not None else cfg["frames"], seed=seed)
+        folder = out / name
+        say(
+            f"\n[{number}/2] {scenario.title}: {len(scenario.frames)} frames, "
+            f"{len(scenario.truth)} truths ({int(scenario.truth['ignore'].sum())} ignore)"
+        )
+        raw = {v: simulate_detector(scenario, v, seed=seed) for v in VERSIONS}
+        kept = {v: _suppress(scenario, raw[v], cfg["max_iou"], progress) for v in VERSIONS}
+        paths = scenario.write(folder, {**{f"raw_{v}": raw[v] for v in VERSIONS}, **kept})
+        files.update({f"{name}/{k}": p for k, p in paths.items()})
+
+        opts = {"shape": scenario.shape, "iou": cfg["iou"]}
+        ev = evaluate(
+            scenario.truth,
+            kept["improved"],
+            progress=progress,
+            size_buckets=cfg["size_buckets"],
+            range_buckets=cfg["range_buckets"],
+            **opts,
+        )
+        ev_base = evaluate(scenario.truth, kept["baseline"], **opts)
+        head = cfg["headline"]
+        ci_all = ev.interval(resamples=resamples, seed=seed)
+        ci_head = ev.interval(iou=head, resamples=resamples, seed=seed)
+        ci_labels = {
+            lab: ev.interval(lab, head, resamples=resamples, seed=seed)
+            for lab in ev.labels
+            if ev.ap(lab, head) is not None
+        }
+        cmp = compare(
+            scenario.truth,
+            kept["baseline"],
+            kept["improved"],
+            resamples=resamples,
+            seed=seed,
+            **opts,
+        )
+        # Control: the improved detector against a rerun of itself (same error model, fresh
+        # noise). Its interval should straddle zero: no real difference to find.
+        rerun = simulate_detector(scenario, "improved", seed=seed + _RERUN)
+        rerun = _suppress(scenario, rerun, cfg["max_iou"], False)
+        control = compare(
+            scenario.truth, kept["improved"], rerun, resamples=resamples, seed=seed, **opts
+        )
+        mean_ap[name] = ev.mean_ap()
+
+        files[f"{name}/pr_curves.png"] = _plot_curves(
+            ev, folder / "pr_curves.png", head, scenario.title
+        )
+        frame = _pick_frame(scenario)
+        t = scenario.truth[scenario.truth["frame"] == frame].reset_index(drop=True)
+        d = kept["improved"][kept["improved"]["frame"] == frame].reset_index(drop=True)
+        t_status, d_status = _statuses(ev, frame, head, len(t), len(d))
+        from obbiou.demo.draw import draw_scene
+
+        what = "3D IoU" if scenario.shape == "upright" else "IoU"
+        files[f"{name}/scene.png"] = draw_scene(
+            folder / "scene.png",
+            scenario,
+            frame,
+            t,
+            t_status,
+            d,
+            d_status,
+            iou=head,
+            iou_text=f"matching at {what} ≥ {head:g} (improved detector, after suppression)",
+            window=_window(scenario, frame),
+        )
+
+        raw_n = {v: len(raw[v]) for v in VERSIONS}
+        kept_n = {v: len(kept[v]) for v in VERSIONS}
+        section = _section(
+            number,
+            scenario,
+            cfg,
+            raw_n=raw_n,
+            kept_n=kept_n,
+            ev=ev,
+            ev_base=ev_base,
+            ci_all=ci_all,
+            ci_head=ci_head,
+            ci_labels=ci_labels,
+            cmp=cmp,
+            control=control,
+            resamples=resamples,
+            frame=frame,
+        )
+        lines += section
+        aps = ", ".join(f"{lab} {_fmt(ev.ap(lab, head))}" for lab in ev.labels)
+        lo, hi = cmp.interval
+        say(
+            "      suppression (raw -> kept): "
+            + ", ".join(f"{v} {raw_n[v]} -> {kept_n[v]}" for v in VERSIONS)
+        )
+        say(
+            f"      improved detector: mean AP {_fmt(ev.mean_ap())} [{ci_all[0]:.3f}, "
+            f"{ci_all[1]:.3f}] over IoU {cfg['iou']}; at {head:g}: {_fmt(ev.mean_ap(head))} "
+            f"[{ci_head[0]:.3f}, {ci_head[1]:.3f}]"
+        )
+        say(f"      AP at IoU {head:g}: {aps}")
+        say(
+            f"      improved - baseline: {cmp.difference:+.4f} [{lo:+.3f}, {hi:+.3f}], "
+            f"p = {cmp.p_value:.3f} (paired bootstrap over frames)"
+        )
+        clo, chi = control.interval
+        say(
+            f"      control, improved - rerun of itself: {control.difference:+.4f} "
+            f"[{clo:+.3f}, {chi:+.3f}], p = {control.p_value:.3f}"
+        )
+        doc["scenarios"][name] = {
+            "title": scenario.title,
+            "units": scenario.units,
+            "frames": len(scenario.frames),
+            "truths": int(len(scenario.truth)),
+            "ignore_truths": int(scenario.truth["ignore"].sum()),
+            "raw_detections": raw_n,
+            "kept_detections": kept_n,
+            "suppression": {"max_iou": cfg["max_iou"], "per": "frame and label", "decay": None},
+            "mean_ap": mean_ap[name],
+            "interval": {
+                "level": 0.95,
+                "resamples": resamples,
+                "mean_ap": list(ci_all),
+                f"mean_ap_at_{head:g}": list(ci_head),
+                "ap_at_headline": {k: list(v) for k, v in ci_labels.items()},
+            },
+            "evaluation": ev.to_dict(),
+            "baseline_evaluation": ev_base.to_dict(breakdowns=False),
+            "comparison": {k: v for k, v in cmp.to_dict().items() if k not in ("a", "b")},
+            "control_comparison": {
+                k: v for k, v in control.to_dict().items() if k not in ("a", "b")
+            },
+            "scene_frame": frame,
+        }
+    doc["mean_ap"] = mean_ap
+    seconds = time.perf_counter() - start
+    lines += _footer(out, files)
+    report = out / "report.txt"
+    report.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    jpath = out / "report.json"
+    jpath.write_text(
+        json.dumps(doc, indent=2, allow_nan=False, default=_json_default) + "\n", encoding="utf-8"
+    )
+    say(f"\nwrote {report}, {jpath} and {len(files)} more files in {out} ({seconds:.1f} s)")
+    say(
+        f"try:  obbiou evaluate {out / 'harbour' / 'truth.csv'} "
+        f"{out / 'harbour' / 'improved.csv'} --iou 0.5:0.95:0.05 --interval"
+    )
+    return {"report": report, "json": jpath, "files": files, "mean_ap": mean_ap, "seconds": seconds}
+
+
+def _plot_curves(evaluation: Any, path: Path, iou: float, title: str) -> Path:
+    """Precision-recall curves by :meth:`Evaluation.plot`, titled as invented data."""
+    evaluation.plot(str(path), iou=iou, title=f"{title}: improved detector — INVENTED DATA")
+    return path
+
+
+def _json_default(value: Any) -> Any:
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, Path):
+        return str(value)
+    raise TypeError(f"not JSON-serialisable: {type(value).__name__}")
+
+
+def _header(seed: int) -> list[str]:
+    rule = "=" * 88
+    return [
+        "obbiou demo report: INVENTED DATA",
+        rule,
+        "Everything below comes from two invented scenarios and a simulated detector, generated",
+        f"from seed {seed} by obbiou.demo.scenarios. No real port, warehouse or detector was",
+        "measured; the numbers show what the tools report, not how good any real system is.",
+        "",
+        textwrap.fill("CAUTION: " + CAUTION, 88),
+        rule,
+    ]
+
+
+def _fmt(v: float | None) -> str:
+    return "n/a" if v is None else f"{v:.4f}"
+
+
+def _section(
+    number: int,
+    scenario: Scenario,
+    cfg: dict[str, Any],
+    *,
+    raw_n: dict[str, int],
+    kept_n: dict[str, int],
+    ev: Any,
+    ev_base: Any,
+    ci_all: tuple[float, float],
+    ci_head: tuple[float, float],
+    ci_labels: dict[str, tuple[float, float]],
+    cmp: Any,
+    control: Any,
+    resamples: int,
+    frame: str,
+) -> list[str]:
+    """The report's text for one scenario."""
+    from obbiou.cli import details_text
+
+    head = cfg["headline"]
+    t = scenario.truth
+    counts = ", ".join(f"{lab} {int((t.label == lab).sum())}" for lab in scenario.labels)
+    lines = [
+        "",
+        f"{number}. {scenario.title}",
+        "-" * 88,
+        f"frames: {len(scenario.frames)}; coordinates: {scenario.units}",
+        f"truths: {counts} ({int(t.ignore.sum())} marked ignore)",
+        "simulated detector, raw -> after suppression "
+        f"(IoU > {cfg['max_iou']:g}, per frame and label):",
+        "  " + "; ".join(f"{v} {raw_n[v]} -> {kept_n[v]}" for v in VERSIONS),
+        "",
+        "Evaluation of the improved detector:",
+        ev.summary(),
+        "",
+        f"  mean AP over thresholds {_fmt(ev.mean_ap())}, 95% interval "
+        f"[{ci_all[0]:.4f}, {ci_all[1]:.4f}]; at IoU {head:g}: {_fmt(ev.mean_ap(head))} "
+        f"[{ci_head[0]:.4f}, {ci_head[1]:.4f}] (bootstrap over frames, {resamples} resamples)",
+    ]
+    for lab, (lo, hi) in ci_labels.items():
+        lines.append(f"    AP {lab} at {head:g}: {_fmt(ev.ap(lab, head))} [{lo:.4f}, {hi:.4f}]")
+    lines += ["", details_text(ev, head)]
+    for by, group in ev.buckets.items():
+        lines.append(f"AP at IoU {head:g} by {by}:")
+        for bucket, sub in group.items():
+            aps = ", ".join(f"{lab} {_fmt(sub.ap(lab, head))}" for lab in sub.labels)
+            lines.append(f"  {bucket:>10}: mean {_fmt(sub.mean_ap(head))} ({aps})")
+    lo, hi = cmp.interval
+    lines += [
+        "",
+        "Comparison, improved (B) against baseline (A), same truth, paired bootstrap:",
+        f"  baseline mean AP {_fmt(ev_base.mean_ap())}, improved {_fmt(ev.mean_ap())}",
+        f"  B - A: {cmp.difference:+.4f}, 95% interval [{lo:+.4f}, {hi:+.4f}], "
+        f"p = {cmp.p_value:.4f}",
+        "Control, the improved detector (A) against a rerun of itself with fresh noise (B):",
+        f"  B - A: {control.difference:+.4f}, 95% interval [{control.interval[0]:+.4f}, "
+        f"{control.interval[1]:+.4f}], p = {control.p_value:.4f}",
+        "  (same error model: expect an interval across zero and a large p; with few frames or",
+        "  rare labels the bootstrap over frames is rough and may say otherwise)",
+        "",
+        f"Scene picture: {scenario.name}/scene.png shows frame {frame}.",
+    ]
+    return lines
+
+
+def _footer(out: Path, files: dict[str, Path]) -> list[str]:
+    lines = ["", "Files", "-" * 88]
+    for key in sorted(files):
+        lines.append(f"  {files[key].relative_to(out)}")
+    lines += [
+        "",
+        "Try the command line on the tables written here, for example:",
+        f"  obbiou evaluate {out}/harbour/truth.csv {out}/harbour/improved.csv "
+        "--iou 0.5:0.95:0.05 --interval",
+        f"  obbiou compare {out}/warehouse/truth.csv {out}/warehouse/baseline.csv "
+        f"{out}/warehouse/improved.csv --iou 0.5",
+        f"  obbiou suppress {out}/harbour/raw_improved.csv --max-iou 0.5 --out kept.csv",
+        "",
+        textwrap.fill("Reminder: the data is invented. " + CAUTION, 88),
+    ]
+    return lines

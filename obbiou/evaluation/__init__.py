@@ -1,0 +1,37 @@
+"""Detector evaluation for rotated, polygon and upright 3D boxes.
+
+Map then reduce: :func:`match_frames` matches each frame into compact
+:class:`MatchRecords`; :func:`reduce_records` turns (concatenated) records into an
+:class:`Evaluation` (AP, counts, intervals, breakdowns). :func:`evaluate` is both in one call,
+:func:`compare` a paired bootstrap comparison of two detectors. Tables are read by
+:func:`read_table`.
+
+Detection metrics do not establish that a vehicle, robot or any other system is safe; defer
+to the applicable safety standards, local regulation and qualified engineers.
+"""
+
+from obbiou.evaluation.matching import MatchRecords, Thresholds, match_frames, parse_thresholds
+from obbiou.evaluation.report import (
+    Comparison,
+    Counts,
+    Evaluation,
+    compare,
+    evaluate,
+    reduce_records,
+)
+from obbiou.evaluation.tables import Table, read_table
+
+__all__ = [
+    "Comparison",
+    "Counts",
+    "Evaluation",
+    "MatchRecords",
+    "Table",
+    "Thresholds",
+    "compare",
+    "evaluate",
+    "match_frames",
+    "parse_thresholds",
+    "read_table",
+    "reduce_records",
+]

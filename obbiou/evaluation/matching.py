@@ -1,0 +1,500 @@
+"""The map step of evaluation: per-frame greedy matching into compact match records.
+
+:func:`match_frames` turns a truth table and a detection table into :class:`MatchRecords`:
+plain numpy arrays, one row per detection and one per truth, with the outcome at every IoU
+threshold. Records of disjoint sets of frames concatenate (:meth:`MatchRecords.concat`) and
+the reduce step (:func:`obbiou.evaluation.reduce_records`) gives the same numbers however the
+frames were split, as long as each frame lies wholly in one part.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, fields
+from typing import Any
+
+import numpy as np
+
+from obbiou.evaluation.tables import Table, read_table
+
+__all__ = ["MatchRecords", "match_frames", "Thresholds", "parse_thresholds"]
+
+#: Outcome codes in :attr:`MatchRecords.det_outcome`.
+FP, TP, IGNORED, CAPPED = 0, 1, 2, 3
+
+
+@dataclass(frozen=True)
+class Thresholds:
+    """IoU thresholds: the sorted union ``values`` and, optionally, a subset per label.
+
+    ``per_label`` maps a label to its own thresholds; ``default`` applies to labels not in
+    ``per_label`` (``None``: every label must be listed).
+    """
+
+    values: tuple[float, ...]
+    per_label: dict[str, tuple[float, ...]] | None = None
+    default: tuple[float, ...] | None = None
+
+    def of(self, label: str) -> tuple[float, ...]:
+        """The thresholds that apply to ``label``."""
+        if self.per_label is None:
+            return self.values
+        if label in self.per_label:
+            return self.per_label[label]
+        if self.default is not None:
+            return self.default
+        raise ValueError(
+            f"iou: no threshold for label {label!r}; list it in the mapping or add a default "
+            "under the key None"
+        )
+
+
+def _check_threshold(v: Any) -> float:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        raise ValueError(f"iou: expected a number in (0, 1], got {v!r}") from None
+    if not (0.0 < f <= 1.0):
+        raise ValueError(f"iou: a threshold must lie in (0, 1], got {f!r}")
+    return f
+
+
+def _parse_one(iou: Any) -> tuple[float, ...]:
+    if isinstance(iou, str):
+        text = iou.strip()
+        if ":" in text:
+            parts = text.split(":")
+            if len(parts) != 3:
+                raise ValueError(f"iou: expected 'start:stop:step', got {iou!r}")
+            try:
+                start, stop, step = (float(p) for p in parts)
+            except ValueError:
+                raise ValueError(
+                    f"iou: expected numbers in 'start:stop:step', got {iou!r}"
+                ) from None
+            if step <= 0 or stop < start:
+                raise ValueError(
+                    f"iou: 'start:stop:step' needs step > 0 and stop >= start: {iou!r}"
+                )
+            # inclusive of stop within rounding: 0.5:0.95:0.05 gives 10 thresholds
+            count = int(np.floor((stop - start) / step + 1e-9)) + 1
+            values = [round(start + i * step, 10) for i in range(count)]
+            return tuple(sorted({_check_threshold(v) for v in values}))
+        if "," in text:
+            return tuple(sorted({_check_threshold(p) for p in text.split(",")}))
+        return (_check_threshold(text),)
+    if isinstance(iou, (Sequence, np.ndarray)):
+        values = tuple(sorted({_check_threshold(v) for v in iou}))
+        if not values:
+            raise ValueError("iou: no thresholds given")
+        return values
+    return (_check_threshold(iou),)
+
+
+def parse_thresholds(iou: Any) -> Thresholds:
+    """Read the ``iou`` argument of :func:`~obbiou.evaluation.evaluate`.
+
+    A number, a sequence, a ``"start:stop:step"`` string (stop included within rounding), a
+    comma list ``"0.5,0.7"``, or a mapping label -> any of these (key ``None``: the default
+    for other labels).
+
+    Examples
+    --------
+    >>> parse_thresholds("0.5:0.95:0.05").values
+    (0.5, 0.55, 0.6, 0.65, 0.7, 0.75, 0.8, 0.85, 0.9, 0.95)
+    >>> t = parse_thresholds({"car": 0.7, "person": 0.5})
+    >>> t.values, t.of("car")
+    ((0.5, 0.7), (0.7,))
+    >>> parse_thresholds(1.5)
+    Traceback (most recent call last):
+    ...
+    ValueError: iou: a threshold must lie in (0, 1], got 1.5
+    """
+    if isinstance(iou, Thresholds):
+        return iou
+    if isinstance(iou, Mapping):
+        if not iou:
+            raise ValueError("iou: empty mapping")
+        per_label = {str(k): _parse_one(v) for k, v in iou.items() if k is not None}
+        default = _parse_one(iou[None]) if None in iou else None
+        union = set().union(*per_label.values(), default or ())
+        return Thresholds(tuple(sorted(union)), per_label, default)
+    return Thresholds(_parse_one(iou))
+
+
+@dataclass(frozen=True)
+class MatchRecords:
+    """Compact per-detection and per-truth outcomes of matching (the map step's output).
+
+    Detections (one row each): ``det_frame`` (frame id), ``det_rank`` (position among the
+    frame's detections in input order), ``det_label``, ``det_score``, ``det_size``
+    (area / volume), ``det_range`` (ground distance of the centre from the origin, 3D;
+    NaN in 2D), ``det_angle`` (orientation, NaN for axis-aligned layouts), and per threshold
+    (columns of ``thresholds``): ``det_outcome`` (0 FP, 1 TP, 2 ignored, 3 capped),
+    ``det_truth`` (rank within the frame of the matched truth, or of the ignore truth that
+    absorbed it; -1 if none) and ``det_iou`` (its IoU); ``det_best_same`` / ``det_best_other``
+    (highest IoU with any non-ignore truth of the same / another label in the frame).
+
+    Truths (one row each): ``truth_frame``, ``truth_rank``, ``truth_label``,
+    ``truth_ignore``, ``truth_size``, ``truth_range``, ``truth_angle`` and
+    ``truth_matched`` (per threshold), ``truth_best_same`` / ``truth_best_other`` (highest IoU
+    with any evaluated detection of the same / another label in the frame).
+    """
+
+    thresholds: np.ndarray
+    shape: str
+    det_frame: np.ndarray
+    det_rank: np.ndarray
+    det_label: np.ndarray
+    det_score: np.ndarray
+    det_size: np.ndarray
+    det_range: np.ndarray
+    det_angle: np.ndarray
+    det_outcome: np.ndarray
+    det_truth: np.ndarray
+    det_iou: np.ndarray
+    det_best_same: np.ndarray
+    det_best_other: np.ndarray
+    truth_frame: np.ndarray
+    truth_rank: np.ndarray
+    truth_label: np.ndarray
+    truth_ignore: np.ndarray
+    truth_size: np.ndarray
+    truth_range: np.ndarray
+    truth_angle: np.ndarray
+    truth_matched: np.ndarray
+    truth_best_same: np.ndarray
+    truth_best_other: np.ndarray
+
+    @property
+    def n_detections(self) -> int:
+        return int(self.det_score.shape[0])
+
+    @property
+    def n_truths(self) -> int:
+        return int(self.truth_ignore.shape[0])
+
+    @classmethod
+    def concat(cls, parts: Sequence[MatchRecords]) -> MatchRecords:
+        """Join the records of disjoint sets of frames (same thresholds and shape).
+
+        Examples
+        --------
+        >>> t = {"frame": [0, 1], "label": ["a", "a"], "x_min": [0, 0], "y_min": [0, 0],
+        ...      "x_max": [1, 1], "y_max": [1, 1]}
+        >>> d = dict(t, score=[0.9, 0.8])
+        >>> r = match_frames(t, d, thresholds=[0.5])
+        >>> MatchRecords.concat([r, r]).n_detections
+        4
+        """
+        parts = list(parts)
+        if not parts:
+            raise ValueError("concat: no records given")
+        first = parts[0]
+        for p in parts[1:]:
+            if not np.array_equal(p.thresholds, first.thresholds):
+                raise ValueError("concat: records were matched at different thresholds")
+            if p.shape != first.shape:
+                raise ValueError(f"concat: records of shapes {first.shape!r} and {p.shape!r}")
+        values = {}
+        for f in fields(cls):
+            if f.name in ("thresholds", "shape"):
+                continue
+            arrays = [getattr(p, f.name) for p in parts]
+            if f.name in ("det_frame", "truth_frame"):
+                arrays = _common_ids(arrays)
+            values[f.name] = np.concatenate(arrays)
+        return cls(first.thresholds, first.shape, **values)
+
+    def canonical(self) -> MatchRecords:
+        """The same records sorted by (frame, rank): one order however they were split."""
+        frames = _common_ids([self.det_frame, self.truth_frame])
+        both = np.concatenate(frames)
+        _, codes = sorted_codes(both)
+        dcode, tcode = codes[: self.n_detections], codes[self.n_detections :]
+        d = np.lexsort((self.det_rank, dcode))
+        t = np.lexsort((self.truth_rank, tcode))
+        values = {}
+        for f in fields(self):
+            v = getattr(self, f.name)
+            if f.name.startswith("det_"):
+                v = (frames[0] if f.name == "det_frame" else v)[d]
+            elif f.name.startswith("truth_"):
+                v = (frames[1] if f.name == "truth_frame" else v)[t]
+            values[f.name] = v
+        return MatchRecords(**values)
+
+
+def sorted_codes(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Sorted distinct values and the code (index into them) of each value.
+
+    Same result as ``np.unique(values, return_inverse=True)``, by hashing (fast for text).
+
+    Examples
+    --------
+    >>> u, c = sorted_codes(np.array(["b", "a", "b"], dtype=object))
+    >>> u.tolist(), c.tolist()
+    (['a', 'b'], [1, 0, 1])
+    """
+    import pandas as pd
+
+    codes, uniques = pd.factorize(values, sort=False)
+    uniques = np.asarray(uniques, dtype=values.dtype if values.dtype.kind != "U" else object)
+    order = np.argsort(uniques, kind="stable")
+    rank = np.empty(len(order), dtype=np.int64)
+    rank[order] = np.arange(len(order))
+    return uniques[order], rank[codes] if len(codes) else np.zeros(0, dtype=np.int64)
+
+
+def _common_ids(arrays: list[np.ndarray]) -> list[np.ndarray]:
+    """Frame id arrays in one kind: int64 if all are integer, else str."""
+    if all(a.dtype.kind in "iu" for a in arrays):
+        return [a.astype(np.int64) for a in arrays]
+    return [np.array([str(v) for v in a], dtype=object) for a in arrays]
+
+
+def _orientation(boxes: np.ndarray, shape: str) -> np.ndarray:
+    """Orientation per box: long-axis angle (rotated, polygon), yaw (upright), NaN (axis)."""
+    n = boxes.shape[0]
+    if shape == "rotated":
+        a = boxes[:, 4].copy()
+        # a rectangle taller than wide points along its own y axis
+        return np.where(boxes[:, 2] < boxes[:, 3], a + np.pi / 2, a)
+    if shape == "upright":
+        return boxes[:, 6].copy()
+    if shape == "polygon":
+        # direction of the longest edge: the long axis of a rectangle given by its corners
+        edges = np.roll(boxes, -1, axis=1) - boxes
+        lengths = np.hypot(edges[..., 0], edges[..., 1])
+        k = np.argmax(lengths, axis=1) if n else np.zeros(0, dtype=np.int64)
+        e = edges[np.arange(n), k]
+        return np.arctan2(e[:, 1], e[:, 0])
+    return np.full(n, np.nan)
+
+
+def _ranges(boxes: np.ndarray, shape: str) -> np.ndarray:
+    if shape == "upright":
+        return np.hypot(boxes[:, 0], boxes[:, 1])
+    if shape == "axis3":
+        return np.hypot((boxes[:, 0] + boxes[:, 3]) / 2, (boxes[:, 1] + boxes[:, 4]) / 2)
+    return np.full(boxes.shape[0], np.nan)
+
+
+def _rank_in_group(codes: np.ndarray) -> np.ndarray:
+    """Position of each row among the rows with the same code, in input order."""
+    order = np.argsort(codes, kind="stable")
+    sorted_codes = codes[order]
+    starts = np.r_[0, np.flatnonzero(np.diff(sorted_codes)) + 1]
+    first = np.repeat(starts, np.diff(np.r_[starts, len(codes)]))
+    rank = np.empty(len(codes), dtype=np.int64)
+    rank[order] = np.arange(len(codes)) - first
+    return rank
+
+
+def _pair_iou(det: np.ndarray, truth: np.ndarray, shape: str, first, second) -> np.ndarray:
+    from obbiou.measures import pair_values
+    from obbiou.shapes import Boxes
+
+    return pair_values(Boxes(det, shape, False), Boxes(truth, shape, False), first, second)
+
+
+def match_frames(
+    truth: Any,
+    detections: Any,
+    *,
+    thresholds: Any = 0.5,
+    shape: str | None = None,
+    max_detections: int | None = None,
+    degrees: bool = False,
+    progress: bool = False,
+    chunk: int = 200_000,
+) -> MatchRecords:
+    """Match detections to truths in every frame at every threshold (the map step).
+
+    Follows the protocol of :func:`~obbiou.evaluation.evaluate`: per frame and label,
+    detections in descending score (ties: input order) each take the unmatched non-ignore
+    truth of highest IoU >= threshold (ties: the earlier truth) and are TPs; failing that, a
+    detection with IoU >= threshold to an ignore truth of its label is ignored; otherwise it
+    is an FP. With ``max_detections``, only the highest-scoring that many detections of each
+    frame (all labels together; ties: input order) are evaluated, the rest are "capped".
+
+    The IoU of all (detection, truth) pairs of a frame whose axis-aligned envelopes touch is
+    computed in one batched call per chunk of frames; pairs whose envelopes are apart have
+    IoU 0 and cannot match at any threshold > 0.
+
+    Parameters
+    ----------
+    truth, detections : Table or anything :func:`~obbiou.evaluation.read_table` reads
+    thresholds : float, sequence, str or Thresholds
+        IoU thresholds (all of them are matched in one pass).
+    shape : str, optional
+        Box layout; inferred from the columns when ``None``.
+    max_detections : int, optional
+        Cap per frame.
+    degrees : bool
+        Angle columns in degrees.
+    progress : bool
+        Show a progress bar (tqdm).
+    chunk : int
+        About this many detections per batched IoU call (bounds memory).
+
+    Returns
+    -------
+    MatchRecords
+
+    Examples
+    --------
+    Two detections of one truth: the higher score is the TP, the other a duplicate (FP).
+
+    >>> t = {"frame": [7], "label": ["crate"], "x_min": [0], "y_min": [0], "x_max": [2],
+    ...      "y_max": [2]}
+    >>> d = {"frame": [7, 7], "label": ["crate"] * 2, "score": [0.6, 0.9],
+    ...      "x_min": [0, 0], "y_min": [0, 0], "x_max": [2, 2], "y_max": [2, 1.9]}
+    >>> r = match_frames(t, d, thresholds=[0.5, 0.97])
+    >>> r.det_outcome.tolist()  # rows in input order; columns: 0.5, 0.97
+    [[0, 1], [1, 0]]
+    """
+    truth = read_table(truth, role="truth", shape=shape, degrees=degrees)
+    detections = read_table(detections, role="detections", shape=shape, degrees=degrees)
+    if truth.shape != detections.shape:
+        raise ValueError(
+            f"detections have shape {detections.shape!r} but truth has {truth.shape!r}"
+        )
+    layout = truth.shape
+    thr = np.asarray(parse_thresholds(thresholds).values, dtype=np.float64)
+    if max_detections is not None and (int(max_detections) != max_detections or max_detections < 1):
+        raise ValueError(f"max_detections: expected a positive integer, got {max_detections!r}")
+    return _match_tables(truth, detections, thr, layout, max_detections, progress, chunk)
+
+
+def _match_tables(
+    truth: Table, dets: Table, thr: np.ndarray, layout: str, max_detections, progress, chunk
+) -> MatchRecords:
+    from obbiou._kernels import match as kern
+    from obbiou.boxes import envelope, size
+
+    n, m, nk = len(dets), len(truth), len(thr)
+    tframe, dframe = _common_ids([truth.frame, dets.frame])
+    uniq, codes = sorted_codes(np.concatenate([dframe, tframe]))
+    dcode, tcode = codes[:n].astype(np.int64), codes[n:].astype(np.int64)
+    nframes = len(uniq)
+    _, lcodes = sorted_codes(np.concatenate([dets.label, truth.label]).astype(object))
+    dlab, tlab = lcodes[:n].astype(np.int64), lcodes[n:].astype(np.int64)
+    drank, trank = _rank_in_group(dcode), _rank_in_group(tcode)
+
+    # Processing order: frame, then descending score, ties by input order.
+    dorder = np.lexsort((drank, -dets.score, dcode))
+    torder = np.lexsort((trank, tcode))
+    det_ptr = np.r_[0, np.cumsum(np.bincount(dcode, minlength=nframes))].astype(np.int64)
+    truth_ptr = np.r_[0, np.cumsum(np.bincount(tcode, minlength=nframes))].astype(np.int64)
+    dbox = np.ascontiguousarray(dets.boxes.data[dorder])
+    tbox = np.ascontiguousarray(truth.boxes.data[torder])
+    live = np.ones(n, dtype=bool)
+    if max_detections is not None:
+        pos = np.arange(n) - np.repeat(det_ptr[:-1], np.diff(det_ptr))
+        live = pos < max_detections
+    denv = np.ascontiguousarray(envelope(dbox, shape=layout)) if n else np.zeros((0, 4))
+    tenv = np.ascontiguousarray(envelope(tbox, shape=layout)) if m else np.zeros((0, 4))
+    if denv.shape[1] != tenv.shape[1]:  # empty side: match the other's dimension
+        width = max(denv.shape[1], tenv.shape[1])
+        denv = denv if denv.shape[1] == width else np.zeros((n, width))
+        tenv = tenv if tenv.shape[1] == width else np.zeros((m, width))
+
+    outcome = np.full((n, nk), CAPPED, dtype=np.int8)
+    mtruth = np.full((n, nk), -1, dtype=np.int64)
+    miou = np.zeros((n, nk))
+    best_same = np.zeros(n)
+    best_other = np.zeros(n)
+    taken = np.zeros((m, nk), dtype=bool)
+    tsame = np.zeros(m)
+    tother = np.zeros(m)
+    tign = truth.ignore[torder]
+    tlab_s, dlab_s = tlab[torder], dlab[dorder]
+    trank_sorted = trank[torder]
+
+    # Chunks of whole frames of about `chunk` detections each.
+    bounds = [0]
+    target = chunk
+    for f in range(1, nframes + 1):
+        if det_ptr[f] >= target or f == nframes:
+            bounds.append(f)
+            target = det_ptr[f] + chunk
+    bounds = sorted(set(bounds))
+    steps = list(zip(bounds[:-1], bounds[1:], strict=False))
+    bar = None
+    if progress:
+        from tqdm.auto import tqdm
+
+        bar = tqdm(total=n, desc="matching", unit="det")
+    for f0, f1 in steps:
+        d0, d1 = det_ptr[f0], det_ptr[f1]
+        t0, t1 = truth_ptr[f0], truth_ptr[f1]
+        dp = det_ptr[f0 : f1 + 1] - d0
+        tp = truth_ptr[f0 : f1 + 1] - t0
+        ptr, first, second = kern.candidate_pairs(
+            dp, tp, denv[d0:d1], tenv[t0:t1], np.ascontiguousarray(live[d0:d1])
+        )
+        if len(first):
+            ious = _pair_iou(dbox[d0:d1], tbox[t0:t1], layout, first, second)
+        else:
+            ious = np.zeros(0)
+        o, mt, mi, bs, bo, tk, ts, to = kern.greedy_match(
+            dp,
+            dlab_s[d0:d1],
+            np.ascontiguousarray(live[d0:d1]),
+            tp,
+            tlab_s[t0:t1],
+            np.ascontiguousarray(tign[t0:t1]),
+            ptr,
+            second,
+            np.asarray(ious, dtype=np.float64),
+            thr,
+        )
+        outcome[d0:d1] = o
+        # global sorted truth index -> rank within its frame
+        if t1 > t0:
+            mtruth[d0:d1] = np.where(mt >= 0, trank_sorted[np.maximum(mt, 0) + t0], -1)
+        miou[d0:d1] = mi
+        best_same[d0:d1] = bs
+        best_other[d0:d1] = bo
+        taken[t0:t1] = tk
+        tsame[t0:t1] = ts
+        tother[t0:t1] = to
+        if bar is not None:
+            bar.update(int(d1 - d0))
+    if bar is not None:
+        bar.close()
+
+    # Back to input order.
+    dinv = np.empty(n, dtype=np.int64)
+    dinv[dorder] = np.arange(n)
+    tinv = np.empty(m, dtype=np.int64)
+    tinv[torder] = np.arange(m)
+    dsize = size(dets.boxes.data, shape=layout) if n else np.zeros(0)
+    tsize = size(truth.boxes.data, shape=layout) if m else np.zeros(0)
+    return MatchRecords(
+        thresholds=thr,
+        shape=layout,
+        det_frame=dframe,
+        det_rank=drank,
+        det_label=dets.label.astype(object),
+        det_score=dets.score.astype(np.float64),
+        det_size=np.asarray(dsize, dtype=np.float64),
+        det_range=_ranges(dets.boxes.data, layout),
+        det_angle=_orientation(dets.boxes.data, layout),
+        det_outcome=outcome[dinv],
+        det_truth=mtruth[dinv],
+        det_iou=miou[dinv],
+        det_best_same=best_same[dinv],
+        det_best_other=best_other[dinv],
+        truth_frame=tframe,
+        truth_rank=trank,
+        truth_label=truth.label.astype(object),
+        truth_ignore=truth.ignore.astype(bool),
+        truth_size=np.asarray(tsize, dtype=np.float64),
+        truth_range=_ranges(truth.boxes.data, layout),
+        truth_angle=_orientation(truth.boxes.data, layout),
+        truth_matched=taken[tinv],
+        truth_best_same=tsame[tinv],
+        truth_best_other=tother[tinv],
+    )

@@ -1,0 +1,876 @@
+"""The reduce step and the result objects: :class:`Evaluation` and :class:`Comparison`."""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Mapping, Sequence
+from typing import Any, NamedTuple
+
+import numpy as np
+
+from obbiou.evaluation import ap as _ap
+from obbiou.evaluation import breakdown as _bd
+from obbiou.evaluation.bootstrap import (
+    LabelRanking,
+    frame_weights,
+    percentile_interval,
+    resampled_ap,
+)
+from obbiou.evaluation.matching import (
+    CAPPED,
+    FP,
+    IGNORED,
+    TP,
+    MatchRecords,
+    Thresholds,
+    _common_ids,
+    match_frames,
+    parse_thresholds,
+    sorted_codes,
+)
+from obbiou.evaluation.tables import Table, read_table
+
+__all__ = ["Counts", "Evaluation", "Comparison", "evaluate", "compare", "reduce_records"]
+
+SAFETY_NOTE = (
+    "Detection metrics only: they do not establish that a vehicle, robot or any other system "
+    "is safe. Defer to the applicable safety standards, local regulation and qualified "
+    "engineers."
+)
+
+
+class Counts(NamedTuple):
+    """Accounting of one label at one threshold.
+
+    ``tp + fp + ignored == detections`` (the evaluated detections) and
+    ``tp + missed == truths`` (the non-ignored truths). ``capped`` detections (beyond
+    ``max_detections`` in their frame) are outside ``detections``; in a size or range bucket,
+    detections and truths outside the bucket count as ignored and are outside ``truths``.
+    """
+
+    tp: int
+    fp: int
+    ignored: int
+    missed: int
+    capped: int
+    detections: int
+    truths: int
+
+
+def _key(t: float) -> str:
+    return f"{t:g}"
+
+
+def _parse_buckets(spec: Any, what: str) -> dict[str, tuple[float, float]]:
+    """Buckets from edges ``[e0, e1, ...]`` or a mapping name -> (low, high); low <= v < high."""
+    if spec is None:
+        return {}
+    if isinstance(spec, Mapping):
+        out = {}
+        for name, pair in spec.items():
+            try:
+                lo, hi = (float(v) for v in pair)
+            except (TypeError, ValueError):
+                raise ValueError(
+                    f"{what}: bucket {name!r} needs (low, high), got {pair!r}"
+                ) from None
+            if not lo < hi:
+                raise ValueError(f"{what}: bucket {name!r} needs low < high, got {pair!r}")
+            out[str(name)] = (lo, hi)
+        return out
+    edges = [float(e) for e in spec]
+    if len(edges) < 2 or any(b <= a for a, b in zip(edges, edges[1:], strict=False)):
+        raise ValueError(f"{what}: expected increasing edges (at least two), got {spec!r}")
+    return {f"{a:g}-{b:g}": (a, b) for a, b in zip(edges, edges[1:], strict=False)}
+
+
+class Evaluation:
+    """Result of :func:`evaluate` (built by :func:`reduce_records`).
+
+    Attributes
+    ----------
+    thresholds : tuple of float
+        All IoU thresholds evaluated.
+    labels : tuple of str
+        Every label seen in the truth or the detections, sorted.
+    frames : numpy.ndarray
+        The frame ids (sorted), the units the bootstrap resamples.
+    records : MatchRecords
+        The match records (canonical order).
+    """
+
+    def __init__(
+        self,
+        records: MatchRecords,
+        spec: Thresholds,
+        *,
+        ap: str = "all-points",
+        recall_points: int | None = None,
+        options: dict | None = None,
+        bucket: tuple[str, str, float, float] | None = None,
+        localisation_floor: float = 0.1,
+    ):
+        self.records = records
+        self._spec = spec
+        self._ap = ap
+        self._recall_points = recall_points
+        self._kind = _ap.ap_kind(ap, recall_points)
+        self._floor = float(localisation_floor)
+        self.options = dict(options or {})
+        self.bucket = bucket
+        self.buckets: dict[str, dict[str, Evaluation]] = {}
+        r = records
+        frames = _common_ids([r.det_frame, r.truth_frame])
+        self.frames, codes = sorted_codes(np.concatenate(frames))
+        self._dcode = codes[: r.n_detections].astype(np.int64)
+        self._tcode = codes[r.n_detections :].astype(np.int64)
+        names, lcodes = sorted_codes(np.concatenate([r.det_label, r.truth_label]).astype(object))
+        self.labels: tuple[str, ...] = tuple(str(v) for v in names)
+        self._dlabel = lcodes[: r.n_detections]
+        self._tlabel = lcodes[r.n_detections :]
+        self.thresholds: tuple[float, ...] = tuple(spec.values)
+        self._column = {}
+        for t in spec.values:
+            hit = np.flatnonzero(np.abs(r.thresholds - t) < 1e-9)
+            if not len(hit):
+                raise ValueError(
+                    f"iou: threshold {t:g} was not matched; records hold "
+                    f"{', '.join(_key(v) for v in r.thresholds)}"
+                )
+            self._column[t] = int(hit[0])
+        for lab in self.labels:
+            spec.of(lab)  # every label needs thresholds
+        # truth index of each match: truths are sorted by (frame, rank)
+        self._truth_ptr = np.r_[0, np.cumsum(np.bincount(self._tcode, minlength=len(self.frames)))]
+        self._prepare_slice()
+        self._order = np.lexsort((r.det_rank, self._dcode, -r.det_score))
+        ranked = self._dlabel[self._order]
+        self._by_label = {lab: self._order[ranked == i] for i, lab in enumerate(self.labels)}
+        self._truths_of = {
+            lab: np.flatnonzero(self._tlabel == i) for i, lab in enumerate(self.labels)
+        }
+        self._cells: dict[tuple[str, float], tuple[float | None, Counts]] = {}
+        for lab in self.labels:
+            for t in spec.of(lab):
+                self._cells[(lab, t)] = self._cell(lab, t)
+        self._weights_cache: dict[tuple[int, Any], np.ndarray] = {}
+
+    # -- slices (buckets) --------------------------------------------------------------------
+    def _prepare_slice(self) -> None:
+        r = self.records
+        self._outcome = r.det_outcome.copy()
+        self._positive = ~r.truth_ignore
+        matched_index = self._truth_ptr[self._dcode][:, None] + np.maximum(r.det_truth, 0)
+        self._matched_index = np.where(r.det_truth >= 0, matched_index, -1)
+        if self.bucket is None:
+            return
+        _, attr, lo, hi = self.bucket
+        tval = r.truth_size if attr == "size" else r.truth_range
+        dval = r.det_size if attr == "size" else r.det_range
+        t_in = (tval >= lo) & (tval < hi)
+        d_in = (dval >= lo) & (dval < hi)
+        self._positive = self._positive & t_in
+        out = self._outcome
+        tp = out == TP
+        # a TP of a truth outside the bucket is ignored; so is an FP outside the bucket
+        truth_in = t_in[np.maximum(self._matched_index, 0)] if len(t_in) else np.zeros_like(tp)
+        out[tp & ~truth_in] = IGNORED
+        out[(out == FP) & ~d_in[:, None]] = IGNORED
+
+    # -- core numbers ------------------------------------------------------------------------
+    def _col(self, t: float) -> int:
+        for v, c in self._column.items():
+            if abs(v - float(t)) < 1e-9:
+                return c
+        raise ValueError(
+            f"iou: {t!r} is not among the thresholds evaluated "
+            f"({', '.join(_key(v) for v in self.thresholds)})"
+        )
+
+    def _threshold(self, t: float) -> float:
+        for v in self._column:
+            if abs(v - float(t)) < 1e-9:
+                return v
+        self._col(t)
+        raise AssertionError  # pragma: no cover
+
+    def _label(self, label: Any) -> str:
+        lab = str(label)
+        if lab not in self.labels:
+            raise ValueError(
+                f"label: {label!r} is not in the evaluation ({', '.join(self.labels)})"
+            )
+        return lab
+
+    def _cell(self, lab: str, t: float) -> tuple[float | None, Counts]:
+        k = self._col(t)
+        idx = self._by_label[lab]
+        out = self._outcome[idx, k]
+        tidx = self._truths_of[lab]
+        pos = self._positive[tidx]
+        npos = int(pos.sum())
+        hit = int((self.records.truth_matched[tidx, k] & pos).sum())
+        tp, fp = int((out == TP).sum()), int((out == FP).sum())
+        ign, cap = int((out == IGNORED).sum()), int((out == CAPPED).sum())
+        counts = Counts(tp, fp, ign, npos - hit, cap, tp + fp + ign, npos)
+        # the accounting identity, from two independent sides of the records
+        if tp != hit or tp + fp + ign + cap != len(idx):
+            raise RuntimeError(
+                f"accounting identity broken for label {lab!r} at IoU {t:g}: "
+                f"{tp} TP among detections vs {hit} matched truths"
+            )
+        keep = (out == TP) | (out == FP)
+        value = _ap.average_precision(
+            out[keep] == TP,
+            npos,
+            kind=self._ap if self._recall_points is None else "all-points",
+            recall_points=self._recall_points,
+        )
+        return value, counts
+
+    def _thresholds_of(self, lab: str, iou: float | None) -> tuple[float, ...]:
+        if iou is None:
+            return self._spec.of(lab)
+        t = self._threshold(iou)
+        return (t,) if t in self._spec.of(lab) else ()
+
+    def ap(self, label: Any, iou: float | None = None) -> float | None:
+        """AP of ``label`` at threshold ``iou`` (None: mean over the label's thresholds).
+
+        Returns ``None`` when the label has no non-ignored truths (AP undefined), 0.0 when it
+        has truths and no detections.
+        """
+        lab = self._label(label)
+        ts = self._thresholds_of(lab, iou)
+        if not ts:
+            raise ValueError(f"iou: label {lab!r} is not evaluated at {iou!r}")
+        values = [self._cells[(lab, t)][0] for t in ts]
+        if any(v is None for v in values):
+            return None
+        return float(np.mean(values))
+
+    def mean_ap(self, iou: float | None = None) -> float | None:
+        """Mean AP over the labels with truths, at ``iou`` (None: over all thresholds).
+
+        With ``iou=None`` each label contributes the mean of its AP over its thresholds.
+        Labels without non-ignored truths are left out; ``None`` if no label has any.
+        """
+        values = []
+        for lab in self.labels:
+            if iou is not None and not self._thresholds_of(lab, iou):
+                continue
+            v = self.ap(lab, iou)
+            if v is not None:
+                values.append(v)
+        return float(np.mean(values)) if values else None
+
+    def counts(self, label: Any, iou: float | None = None) -> Counts:
+        """TP, FP, ignored, missed (and capped, detections, truths) of ``label`` at ``iou``.
+
+        ``iou`` may be left out when the label has one threshold.
+        """
+        lab = self._label(label)
+        ts = self._spec.of(lab) if iou is None else (self._threshold(iou),)
+        if len(ts) != 1:
+            raise ValueError("iou: several thresholds were evaluated; name one")
+        if (lab, ts[0]) not in self._cells:
+            raise ValueError(f"iou: label {lab!r} is not evaluated at {iou!r}")
+        return self._cells[(lab, ts[0])][1]
+
+    def curve(self, label: Any, iou: float | None = None) -> _ap.Curve:
+        """Precision, recall and score after each ranked (non-ignored) detection of ``label``.
+
+        Recall is NaN throughout when the label has no non-ignored truths.
+        """
+        lab = self._label(label)
+        ts = self._spec.of(lab) if iou is None else (self._threshold(iou),)
+        k = self._col(ts[0])
+        idx = self._by_label[lab]
+        out = self._outcome[idx, k]
+        keep = (out == TP) | (out == FP)
+        npos = self._cells[(lab, ts[0])][1].truths
+        return _ap.curve(out[keep] == TP, npos, self.records.det_score[idx][keep])
+
+    # -- bootstrap ---------------------------------------------------------------------------
+    def _weights(self, resamples: int, seed: Any, frames: np.ndarray | None = None) -> np.ndarray:
+        nframes = len(self.frames if frames is None else frames)
+        key = (resamples, seed, nframes)
+        if key not in self._weights_cache:
+            self._weights_cache[key] = frame_weights(nframes, resamples, seed)
+        return self._weights_cache[key]
+
+    def _ranking(
+        self, lab: str, ts: tuple[float, ...], frame_code: np.ndarray, nframes: int
+    ) -> LabelRanking:
+        idx = self._by_label[lab]
+        cols = [self._col(t) for t in ts]
+        out = self._outcome[idx][:, cols]
+        tidx = self._truths_of[lab]
+        tcode = frame_code[1][tidx][self._positive[tidx]]
+        positives = np.bincount(tcode, minlength=nframes).astype(np.float64)
+        return LabelRanking(
+            frame_code[0][idx],
+            np.ascontiguousarray(out == TP),
+            np.ascontiguousarray(out == FP),
+            positives,
+        )
+
+    def _resampled(
+        self, weights: np.ndarray, label: str | None, iou: float | None, frame_code=None
+    ) -> np.ndarray:
+        """(B,) the statistic (AP of a label, or mAP) under each row of frame weights."""
+        if not self.labels:
+            raise ValueError("interval: nothing to resample (no truths and no detections)")
+        if frame_code is None:
+            frame_code = (self._dcode, self._tcode)
+        nframes = weights.shape[1]
+        labels = [self._label(label)] if label is not None else list(self.labels)
+        per_label = []
+        for lab in labels:
+            ts = self._thresholds_of(lab, iou)
+            if not ts:
+                continue
+            r = self._ranking(lab, ts, frame_code, nframes)
+            values = resampled_ap(r, weights, *self._kind)
+            per_label.append(values.mean(axis=1))  # NaN rows: no positives in that resample
+        if not per_label:
+            raise ValueError(f"iou: no label is evaluated at {iou!r}")
+        stacked = np.vstack(per_label)
+        with np.errstate(invalid="ignore"):
+            finite = np.isfinite(stacked)
+            total = np.where(finite, stacked, 0).sum(axis=0)
+            count = finite.sum(axis=0)
+            return np.where(count > 0, total / np.maximum(count, 1), np.nan)
+
+    def interval(
+        self,
+        label: Any = None,
+        iou: float | None = None,
+        *,
+        resamples: int = 1000,
+        level: float = 0.95,
+        seed: Any = 0,
+    ) -> tuple[float, float]:
+        """Bootstrap percentile interval of AP (``label``) or mAP (``label=None``).
+
+        Frames are drawn with replacement (as many as there are); each resample re-weights
+        the match records (no re-matching). A label whose truths all miss a resample is left
+        out of that resample's mAP; resamples where the statistic is undefined are dropped.
+        The same ``seed`` gives the same interval.
+        """
+        w = self._weights(resamples, seed)
+        return percentile_interval(self._resampled(w, label, iou), level)
+
+    # -- breakdowns --------------------------------------------------------------------------
+    def _default_iou(self, iou: float | None) -> float:
+        return min(self.thresholds) if iou is None else self._threshold(iou)
+
+    def false_positives(self, iou: float | None = None) -> dict[str, _bd.FalsePositives]:
+        """False positives by class per label at ``iou`` (default: the lowest threshold).
+
+        Classes, tested in this order (each FP in exactly one):
+        ``duplicate`` — a non-ignore truth of its label has IoU >= iou with it, but all such
+        truths were already taken by higher-scoring detections; ``wrong_label`` — a
+        non-ignore truth of another label has IoU >= iou with it; ``poor_localisation`` — a
+        non-ignore truth of its label has IoU in [0.1, iou) with it (the floor is the
+        ``localisation_floor`` option); ``background`` — none of these.
+        """
+        t = self._default_iou(iou)
+        k = self._col(t)
+        r = self.records
+        cls = _bd.classify_false_positives(
+            self._outcome[:, k] == FP, r.det_best_same, r.det_best_other, t, self._floor
+        )
+        out = {}
+        for lab in self.labels:
+            if t not in self._spec.of(lab):
+                continue
+            c = cls[self._by_label[lab]]
+            n = [int((c == i).sum()) for i in range(4)]
+            out[lab] = _bd.FalsePositives(*n, sum(n))
+        return out
+
+    def misses(self, iou: float | None = None) -> dict[str, _bd.Misses]:
+        """Missed truths by class per label at ``iou`` (default: the lowest threshold).
+
+        Classes, tested in this order: ``crowded`` — a detection of its label has IoU >= iou
+        with it but was matched to another truth; ``wrong_label`` — a detection of another
+        label has IoU >= iou with it; ``poor_localisation`` — a detection of its label has IoU
+        in [0.1, iou); ``not_detected`` — none of these. Capped detections do not count.
+        """
+        t = self._default_iou(iou)
+        k = self._col(t)
+        r = self.records
+        is_miss = self._positive & ~r.truth_matched[:, k]
+        cls = _bd.classify_misses(is_miss, r.truth_best_same, r.truth_best_other, t, self._floor)
+        out = {}
+        for lab in self.labels:
+            if t not in self._spec.of(lab):
+                continue
+            c = cls[self._truths_of[lab]]
+            n = [int((c == i).sum()) for i in range(4)]
+            out[lab] = _bd.Misses(*n, sum(n))
+        return out
+
+    def orientation_error(
+        self, iou: float | None = None, label: Any = None
+    ) -> _bd.OrientationError:
+        """Orientation error of the matched pairs at ``iou`` (default: the lowest threshold).
+
+        Rectangles (rotated; polygons by their longest edge) compare angles modulo π; upright
+        3D boxes compare headings modulo 2π and report the share of flipped headings (more
+        than π/2 off). ``label`` restricts to one label. Axis-aligned layouts raise
+        ``ValueError`` (they carry no orientation).
+        """
+        t = self._default_iou(iou)
+        k = self._col(t)
+        r = self.records
+        sel = self._outcome[:, k] == TP
+        if label is not None:
+            sel &= self._dlabel == self.labels.index(self._label(label))
+        ti = self._matched_index[sel, k]
+        return _bd.orientation_error(r.det_angle[sel], r.truth_angle[ti], r.shape)
+
+    # -- reports -----------------------------------------------------------------------------
+    def summary(self) -> str:
+        """A readable text table: one line per label and threshold, then the means."""
+        kind = self._ap if self._recall_points is None else f"{self._recall_points}-point"
+        head = (
+            f"obbiou evaluation | {self.records.shape} boxes | AP {kind} | "
+            f"{len(self.frames)} frames | {self.records.n_detections} detections | "
+            f"{self.records.n_truths} truths"
+        )
+        if self.bucket is not None:
+            head += f" | {self.bucket[1]} bucket {self.bucket[0]}"
+        cols = ("label", "IoU>=", "AP", "TP", "FP", "ignored", "missed", "capped")
+        width = max([len(c) for c in self.labels] + [5])
+        lines = [head, ""]
+        fmt = f"{{:<{width}}}  {{:>5}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>6}}"
+        lines.append(fmt.format(*cols))
+        lines.append("-" * len(lines[-1]))
+        for lab in self.labels:
+            for t in self._spec.of(lab):
+                v, c = self._cells[(lab, t)]
+                shown = "   n/a" if v is None else f"{v:.4f}"
+                lines.append(
+                    fmt.format(lab, f"{t:.2f}", shown, c.tp, c.fp, c.ignored, c.missed, c.capped)
+                )
+        lines.append("")
+        for t in self.thresholds:
+            m = self.mean_ap(t)
+            lines.append(f"mean AP at IoU>={t:.2f}: " + ("n/a" if m is None else f"{m:.4f}"))
+        if len(self.thresholds) > 1:
+            m = self.mean_ap()
+            lines.append("mean AP over all thresholds: " + ("n/a" if m is None else f"{m:.4f}"))
+        undefined = [lab for lab in self.labels if self.ap(lab) is None]
+        if undefined:
+            lines.append(f"no truths (left out of mean AP): {', '.join(undefined)}")
+        lines.append(SAFETY_NOTE)
+        return "\n".join(lines)
+
+    def to_dict(self, *, breakdowns: bool = True) -> dict:
+        """JSON-safe result: mean AP, per-label AP and counts, thresholds, protocol options.
+
+        Undefined values (a label without truths) are ``None``, never NaN.
+        """
+
+        def num(v):
+            return None if v is None or (isinstance(v, float) and math.isnan(v)) else float(v)
+
+        labels = {}
+        for lab in self.labels:
+            ts = self._spec.of(lab)
+            labels[lab] = {
+                "ap": {_key(t): num(self._cells[(lab, t)][0]) for t in ts},
+                "counts": {_key(t): self._cells[(lab, t)][1]._asdict() for t in ts},
+            }
+        d: dict[str, Any] = {
+            "mean_ap": num(self.mean_ap()),
+            "mean_ap_by_iou": {_key(t): num(self.mean_ap(t)) for t in self.thresholds},
+            "thresholds": [float(t) for t in self.thresholds],
+            "frames": int(len(self.frames)),
+            "detections": self.records.n_detections,
+            "truths": self.records.n_truths,
+            "labels": labels,
+            "protocol": self.protocol(),
+        }
+        if self.bucket is not None:
+            d["bucket"] = {
+                "name": self.bucket[0],
+                "by": self.bucket[1],
+                "low": self.bucket[2],
+                "high": self.bucket[3],
+            }
+        if breakdowns:
+            d["false_positives"] = {k: v._asdict() for k, v in self.false_positives().items()}
+            d["misses"] = {k: v._asdict() for k, v in self.misses().items()}
+            if self.records.shape not in ("axis", "axis3"):
+                d["orientation_error"] = self.orientation_error()._asdict()
+            for by, group in self.buckets.items():
+                d.setdefault("buckets", {})[by] = {
+                    name: ev.to_dict(breakdowns=False) for name, ev in group.items()
+                }
+        d["note"] = SAFETY_NOTE
+        return d
+
+    def protocol(self) -> dict:
+        """The protocol options of this evaluation (JSON-safe)."""
+        per_label = None
+        if self._spec.per_label is not None:
+            per_label = {k: list(v) for k, v in self._spec.per_label.items()}
+        return {
+            "shape": self.records.shape,
+            "ap": self._ap if self._recall_points is None else None,
+            "recall_points": self._recall_points,
+            "thresholds": [float(t) for t in self.thresholds],
+            "thresholds_per_label": per_label,
+            "default_thresholds": list(self._spec.default) if self._spec.default else None,
+            "localisation_floor": self._floor,
+            **self.options,
+            "matching": "greedy by descending score per frame and label; highest IoU >= "
+            "threshold among unmatched non-ignore truths (ties: earlier truth); else ignored if "
+            "IoU >= threshold with an ignore truth; else false positive",
+        }
+
+    def to_json(self, path: str) -> None:
+        """Write :meth:`to_dict` as JSON to ``path``."""
+        with open(path, "w", encoding="utf-8") as fh:
+            json.dump(self.to_dict(), fh, indent=2, allow_nan=False)
+            fh.write("\n")
+
+    def plot(self, path: str, *, iou: float | None = None, title: str | None = None) -> None:
+        """Precision-recall curves per label at ``iou`` (default: the lowest), PNG at ``path``.
+
+        ``title`` (optional) heads the figure, e.g. the data set and model name.
+        """
+        from obbiou.evaluation.plots import plot_curves
+
+        plot_curves(self, path, iou=iou, title=title)
+
+    def __repr__(self) -> str:
+        m = self.mean_ap()
+        shown = "n/a" if m is None else f"{m:.4f}"
+        return (
+            f"<Evaluation {self.records.shape}: {len(self.labels)} labels, "
+            f"{len(self.thresholds)} thresholds, mean AP {shown}>"
+        )
+
+
+def reduce_records(
+    records: MatchRecords | Sequence[MatchRecords],
+    *,
+    iou: Any = None,
+    ap: str = "all-points",
+    recall_points: int | None = None,
+    size_buckets: Any = None,
+    range_buckets: Any = None,
+    localisation_floor: float = 0.1,
+    options: dict | None = None,
+) -> Evaluation:
+    """The reduce step: AP, counts and breakdowns from match records.
+
+    Parameters
+    ----------
+    records : MatchRecords or sequence of them
+        One per partition of the frames (each frame wholly in one); concatenated and sorted
+        into one canonical order first, so the numbers never depend on the partitioning.
+    iou : optional
+        Which thresholds (and per-label thresholds) to report, as for :func:`evaluate`;
+        ``None``: all thresholds in the records.
+    ap, recall_points, size_buckets, range_buckets, localisation_floor
+        As for :func:`evaluate`.
+    options : dict, optional
+        Options of the map step to record in the protocol (``max_detections``, ``degrees``).
+
+    Returns
+    -------
+    Evaluation
+    """
+    if not isinstance(records, MatchRecords):
+        records = MatchRecords.concat(records)
+    rec = records.canonical()
+    _check_whole_frames(rec)
+    spec = parse_thresholds(list(rec.thresholds) if iou is None else iou)
+    opts = {"max_detections": None, "degrees": False, **(options or {})}
+    sizes = _parse_buckets(size_buckets, "size_buckets")
+    ranges = _parse_buckets(range_buckets, "range_buckets")
+    if ranges and rec.shape not in ("upright", "axis3"):
+        raise ValueError(f"range_buckets: need 3D boxes (upright, axis3), got {rec.shape!r}")
+    opts["size_buckets"] = {k: list(v) for k, v in sizes.items()} or None
+    opts["range_buckets"] = {k: list(v) for k, v in ranges.items()} or None
+    kw = dict(
+        ap=ap, recall_points=recall_points, options=opts, localisation_floor=localisation_floor
+    )
+    result = Evaluation(rec, spec, **kw)
+    for by, group in (("size", sizes), ("range", ranges)):
+        if group:
+            result.buckets[by] = {
+                name: Evaluation(rec, spec, bucket=(name, by, lo, hi), **kw)
+                for name, (lo, hi) in group.items()
+            }
+    return result
+
+
+def _check_whole_frames(rec: MatchRecords) -> None:
+    """Ranks within each frame must be 0..n-1: a frame split across parts would repeat them."""
+    for frame, rank, what in (
+        (rec.det_frame, rec.det_rank, "detections"),
+        (rec.truth_frame, rec.truth_rank, "truths"),
+    ):
+        if not len(rank):
+            continue
+        _, codes = sorted_codes(frame)
+        counts = np.bincount(codes)
+        expected = np.arange(len(rank)) - np.repeat(np.r_[0, np.cumsum(counts)[:-1]], counts)
+        if not np.array_equal(rank, expected):
+            bad = frame[int(np.argmax(rank != expected))]
+            raise ValueError(
+                f"records: frame {bad!r} has its {what} in more than one part; match each "
+                "frame in one piece"
+            )
+
+
+def evaluate(
+    truth: Any,
+    detections: Any,
+    *,
+    shape: str | None = None,
+    iou: Any = 0.5,
+    ap: str = "all-points",
+    recall_points: int | None = None,
+    max_detections: int | None = None,
+    size_buckets: Any = None,
+    range_buckets: Any = None,
+    degrees: bool = False,
+    progress: bool = False,
+    localisation_floor: float = 0.1,
+) -> Evaluation:
+    """Evaluate detections against ground truth: match, count, AP per label and threshold.
+
+    The protocol (every choice is an option; defaults shown):
+
+    1. **Frames and labels.** Detections are matched only to truths of the same frame and
+       the same label.
+    2. **Cap** (``max_detections=None``: no cap). With a cap N, only the N highest-scoring
+       detections of each frame (all labels together, ties by input order) are evaluated;
+       the rest are counted as ``capped``.
+    3. **Greedy matching**, per frame and label, at every threshold t of ``iou``:
+       detections in descending score (ties: input order) each take the *unmatched
+       non-ignore* truth with the highest IoU >= t (ties: the truth earlier in the input)
+       and are true positives (TP). Failing that, a detection with IoU >= t to an ``ignore``
+       truth of its label is *ignored* (neither TP nor FP; an ignore truth absorbs any number
+       of detections). Otherwise it is a false positive (FP). Ignore truths never count as
+       misses. IoU is the exact area (2D) or volume (3D) IoU of the layout.
+    4. **Accounting**, per label and threshold: TP + FP + ignored = evaluated detections,
+       TP + missed = non-ignored truths (checked; see :meth:`Evaluation.counts`).
+    5. **Ranking** per label over all frames: descending score, ties by frame id then input
+       order (no grouping of tied scores). Ignored and capped detections are left out.
+    6. **AP** (``ap="all-points"``): area under the monotone precision envelope; or
+       ``"11-point"`` (Everingham et al., IJCV 2010), ``"101-point"`` (recall 0, 0.01, …, 1;
+       common practice), ``recall_points=N`` (N evenly spaced levels from 0 to 1), ``"step"``
+       (plain step sum). A label with truths and no detections has AP 0; a label without
+       non-ignored truths has undefined AP (``None``) and is left out of mAP.
+    7. **mAP**: mean over labels at one threshold; ``mean_ap()`` averages each label's mean
+       over its thresholds.
+    8. **Buckets** (``size_buckets``, ``range_buckets``: edges ``[0, 1024, 9216, inf]`` or a
+       mapping name -> (low, high), low <= value < high; range = ground distance of the box
+       centre from the origin, 3D only): from the same matches, a truth outside the bucket
+       counts as ignore; a TP whose truth is outside, or an FP whose own size / range is
+       outside, is ignored. Results in ``Evaluation.buckets["size" | "range"][name]``.
+
+    Parameters
+    ----------
+    truth, detections : path, DataFrame, mapping or Table
+        Tables as read by :func:`~obbiou.evaluation.read_table` (columns of the layout;
+        detections with ``score``; truth with optional ``ignore``).
+    shape : str, optional
+        Box layout; inferred from the columns when ``None``.
+    iou : float, sequence, str or mapping
+        Threshold(s): ``0.5``, ``[0.5, 0.75]``, ``"0.5:0.95:0.05"`` (stop included within
+        rounding: 10 thresholds), or a mapping label -> threshold(s) (key ``None``: default
+        for unlisted labels).
+    ap : str
+        ``"all-points"``, ``"11-point"``, ``"101-point"`` or ``"step"``.
+    recall_points : int, optional
+        Sample the envelope at N recall levels (overrides ``ap``).
+    max_detections : int, optional
+        Cap of evaluated detections per frame.
+    size_buckets, range_buckets : optional
+        See 8. above.
+    degrees : bool
+        Angle columns in degrees.
+    progress : bool
+        Show a progress bar while matching.
+    localisation_floor : float
+        Lowest IoU that counts as "poor localisation" in the breakdowns (default 0.1).
+
+    Returns
+    -------
+    Evaluation
+
+    Examples
+    --------
+    One frame, one truth, a good detection and a duplicate:
+
+    >>> truth = {"frame": [1], "label": ["van"], "cx": [0.0], "cy": [0.0], "width": [4.0],
+    ...          "height": [2.0], "angle": [0.0]}
+    >>> dets = {"frame": [1, 1], "label": ["van", "van"], "score": [0.9, 0.4],
+    ...         "cx": [0.1, 0.0], "cy": [0.0, 0.1], "width": [4.0, 4.0],
+    ...         "height": [2.0, 2.0], "angle": [0.0, 0.05]}
+    >>> ev = evaluate(truth, dets, iou=0.5)
+    >>> ev.ap("van", 0.5), ev.counts("van", 0.5)[:4]
+    (1.0, (1, 1, 0, 0))
+    >>> ev.false_positives()["van"].duplicate
+    1
+
+    No detections at all: AP 0. A label only in the detections: AP undefined (None).
+
+    >>> empty = {k: [] for k in ("frame", "label", "score", "cx", "cy", "width", "height",
+    ...                          "angle")}
+    >>> evaluate(truth, empty).ap("van")
+    0.0
+    >>> evaluate({k: v[:0] for k, v in truth.items()}, dets).ap("van") is None
+    True
+    """
+    if iou is None:
+        raise ValueError("iou: give a threshold, e.g. 0.5")
+    spec = parse_thresholds(iou)
+    truth_t = read_table(truth, role="truth", shape=shape, degrees=degrees)
+    det_t = read_table(detections, role="detections", shape=shape, degrees=degrees)
+    records = match_frames(
+        truth_t, det_t, thresholds=spec, max_detections=max_detections, progress=progress
+    )
+    return reduce_records(
+        records,
+        iou=spec,
+        ap=ap,
+        recall_points=recall_points,
+        size_buckets=size_buckets,
+        range_buckets=range_buckets,
+        localisation_floor=localisation_floor,
+        options={"max_detections": max_detections, "degrees": degrees},
+    )
+
+
+class Comparison:
+    """Paired bootstrap comparison of two detectors on the same truth (see :func:`compare`)."""
+
+    def __init__(self, a: Evaluation, b: Evaluation, *, resamples: int, level: float, seed: Any):
+        self.a, self.b = a, b
+        self.resamples, self.level, self.seed = resamples, level, seed
+        frames = _common_ids([a.frames, b.frames])
+        self.frames = np.unique(np.concatenate(frames))
+        codes = []
+        for ev, fr in ((a, frames[0]), (b, frames[1])):
+            remap = np.searchsorted(self.frames, fr)
+            codes.append((remap[ev._dcode], remap[ev._tcode]))
+        w = frame_weights(len(self.frames), resamples, seed)
+        da = a._resampled(w, None, None, frame_code=codes[0])
+        db = b._resampled(w, None, None, frame_code=codes[1])
+        ma, mb = a.mean_ap(), b.mean_ap()
+        if ma is None or mb is None:
+            raise ValueError("compare: mean AP is undefined (no truths)")
+        self.mean_ap_a, self.mean_ap_b = ma, mb
+        self.difference = mb - ma
+        diffs = db - da
+        self.resampled = diffs[np.isfinite(diffs)]
+        self.interval = percentile_interval(self.resampled, level)
+        # two-sided bootstrap test of "no difference": centre the resampled differences on
+        # zero and count how often they are at least as far from it as the observed one
+        centred = np.abs(self.resampled - self.difference)
+        extreme = int((centred >= abs(self.difference) - 1e-15).sum())
+        self.p_value = (extreme + 1) / (len(self.resampled) + 1)
+
+    def summary(self) -> str:
+        """A short text report of the comparison."""
+        lo, hi = self.interval
+        return "\n".join(
+            [
+                f"obbiou comparison | {len(self.frames)} frames | "
+                f"{self.resamples} paired resamples",
+                f"mean AP  A: {self.mean_ap_a:.4f}   B: {self.mean_ap_b:.4f}",
+                f"B - A: {self.difference:+.4f}   {self.level:.0%} interval "
+                f"[{lo:+.4f}, {hi:+.4f}]   p = {self.p_value:.4f}",
+                "p: two-sided paired bootstrap test of no difference (resampled differences "
+                "centred on zero).",
+                SAFETY_NOTE,
+            ]
+        )
+
+    def to_dict(self) -> dict:
+        """JSON-safe comparison, with both evaluations' mean AP."""
+        return {
+            "mean_ap_a": self.mean_ap_a,
+            "mean_ap_b": self.mean_ap_b,
+            "difference": self.difference,
+            "interval": list(self.interval),
+            "level": self.level,
+            "p_value": self.p_value,
+            "resamples": self.resamples,
+            "seed": self.seed if isinstance(self.seed, (int, type(None))) else str(self.seed),
+            "frames": int(len(self.frames)),
+            "test": "paired bootstrap over frames; two-sided; p = (1 + #{|d* - d| >= |d|}) / "
+            "(1 + B)",
+            "a": self.a.to_dict(breakdowns=False),
+            "b": self.b.to_dict(breakdowns=False),
+            "note": SAFETY_NOTE,
+        }
+
+
+def compare(
+    truth: Any,
+    detections_a: Any,
+    detections_b: Any,
+    *,
+    shape: str | None = None,
+    iou: Any = 0.5,
+    ap: str = "all-points",
+    resamples: int = 1000,
+    level: float = 0.95,
+    seed: Any = 0,
+    recall_points: int | None = None,
+    max_detections: int | None = None,
+    degrees: bool = False,
+    progress: bool = False,
+) -> Comparison:
+    """Is detector B better than detector A on the same truth? A paired bootstrap.
+
+    Both are evaluated with the protocol of :func:`evaluate`. Then the frames (the union of
+    all frames in the truth and both detection tables) are resampled with replacement
+    ``resamples`` times; each resample weights *both* detectors' match records with the same
+    frame counts, giving a paired difference d* = mAP_B* - mAP_A* (mAP over all thresholds).
+
+    * ``difference``: mAP_B - mAP_A on all frames;
+    * ``interval``: the percentile interval of d* at ``level``;
+    * ``p_value``: two-sided bootstrap test of "no difference" (Efron & Tibshirani, *An
+      Introduction to the Bootstrap*, 1993, ch. 16; from memory): the resampled
+      differences are centred on zero, d* - d, and p = (1 + #{|d* - d| >= |d|}) / (1 + B).
+
+    Examples
+    --------
+    >>> truth = {"frame": [0, 1], "label": ["cone"] * 2, "x_min": [0, 0], "y_min": [0, 0],
+    ...          "x_max": [1, 1], "y_max": [1, 1]}
+    >>> a = dict(truth, score=[0.9, 0.8], x_max=[1, 3])
+    >>> b = dict(truth, score=[0.9, 0.8])
+    >>> c = compare(truth, a, b, resamples=200)
+    >>> c.difference
+    0.5
+    """
+    truth_t = read_table(truth, role="truth", shape=shape, degrees=degrees)
+    kw = dict(
+        shape=truth_t.shape,
+        iou=iou,
+        ap=ap,
+        recall_points=recall_points,
+        max_detections=max_detections,
+        degrees=degrees,
+        progress=progress,
+    )
+    ev_a = evaluate(truth_t, _as_table(detections_a, truth_t.shape, degrees), **kw)
+    ev_b = evaluate(truth_t, _as_table(detections_b, truth_t.shape, degrees), **kw)
+    return Comparison(ev_a, ev_b, resamples=resamples, level=level, seed=seed)
+
+
+def _as_table(source: Any, shape: str, degrees: bool) -> Table:
+    return read_table(source, role="detections", shape=shape, degrees=degrees)

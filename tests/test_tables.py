@@ -1,0 +1,230 @@
+"""Table readers: CSV, Parquet, JSON Lines, DataFrame, mapping; every error names its place."""
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from obbiou.evaluation import evaluate, read_table
+
+ROWS = [
+    {
+        "frame": 3,
+        "label": "vessel",
+        "score": 0.9,
+        "cx": 10.0,
+        "cy": 5.0,
+        "width": 8.0,
+        "height": 3.0,
+        "angle": 0.25,
+        "camera": "north",
+    },
+    {
+        "frame": 3,
+        "label": "crane",
+        "score": 0.4,
+        "cx": 30.0,
+        "cy": 7.5,
+        "width": 2.0,
+        "height": 9.0,
+        "angle": -1.0,
+        "camera": "north",
+    },
+    {
+        "frame": 8,
+        "label": "vessel",
+        "score": 0.7,
+        "cx": 1.0,
+        "cy": 2.0,
+        "width": 4.0,
+        "height": 1.0,
+        "angle": 3.0,
+        "camera": "south",
+    },
+]
+
+
+def write(tmp_path, name, rows):
+    path = tmp_path / name
+    df = pd.DataFrame(rows)
+    if name.endswith(".csv"):
+        df.to_csv(path, index=False)
+    elif name.endswith(".parquet"):
+        df.to_parquet(path)
+    else:
+        path.write_text("".join(json.dumps(r) + "\n" for r in rows))
+    return str(path)
+
+
+def same(a, b):
+    assert a.shape == b.shape
+    assert list(a.frame) == list(b.frame) and list(a.label) == list(b.label)
+    assert np.array_equal(a.boxes.data, b.boxes.data)
+    assert np.array_equal(a.score, b.score)
+    assert list(a.extra) == list(b.extra) == ["camera"]
+    assert list(a.extra["camera"]) == list(b.extra["camera"])
+
+
+@pytest.mark.parametrize("name", ["d.csv", "d.parquet", "d.jsonl"])
+def test_files_dataframe_and_mapping_agree(tmp_path, name):
+    from_file = read_table(write(tmp_path, name, ROWS), role="detections")
+    from_df = read_table(pd.DataFrame(ROWS), role="detections")
+    mapping = {k: [r[k] for r in ROWS] for k in ROWS[0]}
+    from_map = read_table(mapping, role="detections")
+    same(from_file, from_df)
+    same(from_df, from_map)
+    assert from_file.shape == "rotated"
+    assert from_file.frame.dtype == np.int64
+
+
+def test_layouts_are_inferred():
+    base = {"frame": [0], "label": ["pallet"]}
+    up = dict(
+        base, cx=[1.0], cy=[2.0], cz=[0.5], length=[1.2], width=[0.8], height=[1.0], yaw=[0.1]
+    )
+    assert read_table(up, role="truth").shape == "upright"
+    ax3 = dict(base, x_min=[0], y_min=[0], z_min=[0], x_max=[1], y_max=[1], z_max=[1])
+    assert read_table(ax3, role="truth").shape == "axis3"
+    quad = dict(base, px0=[0], py0=[0], px1=[2], py1=[0], px2=[2], py2=[1], px3=[0], py3=[1])
+    t = read_table(quad, role="truth")
+    assert t.shape == "polygon" and t.boxes.data.shape == (1, 4, 2)
+    both = dict(
+        base,
+        x_min=[0],
+        y_min=[0],
+        x_max=[1],
+        y_max=[1],
+        cx=[1.0],
+        cy=[1.0],
+        width=[1.0],
+        height=[1.0],
+        angle=[0.0],
+    )
+    with pytest.raises(ValueError, match="several layouts.*shape="):
+        read_table(both, role="truth")
+    assert read_table(both, role="truth", shape="axis").shape == "axis"
+
+
+def test_degrees_and_ids():
+    t = read_table(
+        {
+            "frame": ["a", "b"],
+            "label": [1, 2],
+            "cx": [0, 0],
+            "cy": [0, 0],
+            "width": [1, 1],
+            "height": [1, 1],
+            "angle": [90, 180],
+        },
+        role="truth",
+        degrees=True,
+    )
+    assert np.allclose(t.boxes.data[:, 4], [np.pi / 2, np.pi])
+    assert list(t.frame) == ["a", "b"] and list(t.label) == ["1", "2"]
+
+
+def test_ignore_column(tmp_path):
+    rows = [dict(r, ignore=v) for r, v in zip(ROWS, ["true", "0", "False"], strict=True)]
+    t = read_table(write(tmp_path, "t.csv", rows), role="truth")
+    assert t.ignore.tolist() == [True, False, False]
+    assert "score" in t.extra  # a score column on truth is passed through
+    rows[1]["ignore"] = "maybe"
+    with pytest.raises(ValueError, match=r"t\.csv, line 3, column 'ignore'"):
+        read_table(write(tmp_path, "t.csv", rows), role="truth")
+
+
+# -- malformed input: each message names the file, the line (or row) and the column -------
+
+
+def test_missing_column(tmp_path):
+    rows = [{k: v for k, v in r.items() if k != "score"} for r in ROWS]
+    path = write(tmp_path, "det.csv", rows)
+    with pytest.raises(ValueError, match=r"det\.csv: missing column 'score'"):
+        read_table(path, role="detections")
+    rows = [{k: v for k, v in r.items() if k != "angle"} for r in ROWS]
+    with pytest.raises(ValueError, match=r"det\.csv: missing column 'angle'"):
+        read_table(write(tmp_path, "det.csv", rows), role="detections")
+
+
+def test_non_numeric_value_names_line_and_column(tmp_path):
+    rows = [dict(r) for r in ROWS]
+    rows[2]["width"] = "wide"
+    path = write(tmp_path, "det.csv", rows)
+    # header is line 1, so the third data row is line 4
+    with pytest.raises(ValueError, match=r"det\.csv, line 4, column 'width': not a number: 'wide'"):
+        read_table(path, role="detections")
+    with pytest.raises(ValueError, match=r"det\.jsonl, line 3, column 'width'"):
+        read_table(write(tmp_path, "det.jsonl", rows), role="detections")
+
+
+def test_nan_and_empty_cells(tmp_path):
+    path = tmp_path / "det.csv"
+    path.write_text(
+        "frame,label,score,cx,cy,width,height,angle\n0,ship,0.5,1,1,2,1,0\n0,ship,,1,1,2,1,0\n"
+    )
+    with pytest.raises(ValueError, match=r"det\.csv, line 3, column 'score': empty value"):
+        read_table(str(path), role="detections")
+    rows = [dict(r) for r in ROWS]
+    rows[1]["cy"] = float("nan")
+    with pytest.raises(ValueError, match=r"d\.parquet, row 1, column 'cy'"):
+        read_table(write(tmp_path, "d.parquet", rows), role="detections")
+    with pytest.raises(ValueError, match=r"<DataFrame>, row 1, column 'cy'"):
+        read_table(pd.DataFrame(rows), role="detections")
+
+
+def test_blank_line_is_not_dropped(tmp_path):
+    path = tmp_path / "t.csv"
+    path.write_text("frame,label,cx,cy,width,height,angle\n0,a,1,1,1,1,0\n\n1,a,1,1,1,1,0\n")
+    with pytest.raises(ValueError, match=r"t\.csv, line 3, column 'frame': empty value"):
+        read_table(str(path), role="truth")
+
+
+def test_negative_size_names_line_and_column(tmp_path):
+    rows = [dict(r) for r in ROWS]
+    rows[1]["height"] = -2.0
+    with pytest.raises(
+        ValueError, match=r"det\.csv, line 3, column 'height': negative height -2\.0"
+    ):
+        read_table(write(tmp_path, "det.csv", rows), role="detections")
+
+
+def test_bad_polygon_and_unknown_shape(tmp_path):
+    rows = [
+        {
+            "frame": 0,
+            "label": "a",
+            "px0": 0,
+            "py0": 0,
+            "px1": 4,
+            "py1": 0,
+            "px2": 1,
+            "py2": 1,
+            "px3": 0,
+            "py3": 4,
+        }
+    ]  # a dart: not convex
+    with pytest.raises(ValueError, match=r"q\.csv, line 2, column .*not convex"):
+        read_table(write(tmp_path, "q.csv", rows), role="truth")
+    with pytest.raises(ValueError, match=r"unknown shape 'hexagon'"):
+        read_table(write(tmp_path, "d.csv", ROWS), role="detections", shape="hexagon")
+    with pytest.raises(ValueError, match=r"no box columns"):
+        read_table({"frame": [0], "label": ["a"], "score": [1.0]}, role="detections")
+    with pytest.raises(ValueError, match=r"unknown table format '\.txt'"):
+        p = tmp_path / "d.txt"
+        p.write_text("x")
+        read_table(str(p), role="detections")
+
+
+def test_bad_json_line(tmp_path):
+    path = tmp_path / "d.jsonl"
+    path.write_text(json.dumps(ROWS[0]) + "\n\n{not json\n")
+    with pytest.raises(ValueError, match=r"d\.jsonl, line 3: not valid JSON"):
+        read_table(str(path), role="detections")
+
+
+def test_evaluate_reads_files(tmp_path):
+    truth = [{k: v for k, v in r.items() if k != "score"} for r in ROWS]
+    ev = evaluate(write(tmp_path, "t.parquet", truth), write(tmp_path, "d.jsonl", ROWS))
+    assert ev.mean_ap() == 1.0
+    assert ev.labels == ("crane", "vessel")
