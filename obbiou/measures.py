@@ -124,14 +124,6 @@ def _polygon_rows(vertices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return np.ascontiguousarray(vertices), rows
 
 
-def _directions(boxes: Boxes) -> tuple[np.ndarray, np.ndarray]:
-    """cos and sin of each box's angle (one place, so every path sees the same bits)."""
-    if boxes.shape in ("axis", "axis3"):
-        return np.ones(len(boxes)), np.zeros(len(boxes))
-    angle = boxes.data[:, 4 if boxes.shape == "rotated" else 6]
-    return np.cos(angle), np.sin(angle)
-
-
 def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
     """Precompute per-box data (frame, cos/sin, size, extent) for :func:`pair_values`.
 
@@ -169,8 +161,7 @@ def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
 
         if kind == "axis":
             return Prepared(kind, boxes.is_3d, geometry.axis_rows(d, layout), empty, boxes)
-        cos, sin = _directions(boxes)
-        rows = geometry.rect_rows(d, layout, cos, sin)
+        rows = geometry.rect_rows(d, layout)
         return Prepared(kind, boxes.is_3d, rows, empty, boxes)
     if kind == "poly":
         if shp == "polygon":
@@ -239,11 +230,9 @@ def _pairs(pa: Prepared, pb: Prepared, first: np.ndarray, second: np.ndarray, co
 
 
 def _rect_elementwise(a: Boxes, b: Boxes, code: int) -> np.ndarray:
-    ca, sa = _directions(a)
-    cb, sb = _directions(b)
     la, lb = _LAYOUT_CODES[a.shape], _LAYOUT_CODES[b.shape]
     return _driver("rect_elementwise", len(a))(
-        a.data, la, ca, sa, b.data, lb, cb, sb, code, a.is_3d, _chunks(len(a))
+        a.data, la, b.data, lb, code, a.is_3d, _chunks(len(a))
     )
 
 
@@ -484,7 +473,6 @@ def warmup() -> None:
                 run = getattr(pairs, p.kind + "_pairs" + suffix)
                 run(p.rows, p.rows, idx, idx, code, p.is_3d, 1)
             if p.kind == "rect":
-                cos, sin = _directions(boxes)
                 lay = _LAYOUT_CODES[boxes.shape]
                 run = getattr(pairs, "rect_elementwise" + suffix)
-                run(boxes.data, lay, cos, sin, boxes.data, lay, cos, sin, code, p.is_3d, 1)
+                run(boxes.data, lay, boxes.data, lay, code, p.is_3d, 1)

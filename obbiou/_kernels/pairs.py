@@ -709,9 +709,9 @@ ELEMENTWISE_BLOCK = 512
 
 
 @njit(error_model="numpy", cache=True, inline="always")
-def rect_column_pair(Da, la, ca, sa, Db, lb, cb, sb, k, is3d, PT, QT, j, size_a, size_b):
-    a = rect_tuple(Da, k, la, ca, sa)
-    b = rect_tuple(Db, k, lb, cb, sb)
+def rect_column_pair(Da, la, Db, lb, k, is3d, PT, QT, j, size_a, size_b):
+    a = rect_tuple(Da, k, la)
+    b = rect_tuple(Db, k, lb)
     swap = rect_before(a, b, is3d)
     rect_store_t(PT, j, pick(swap, a, b))
     rect_store_t(QT, j, pick(swap, b, a))
@@ -720,25 +720,19 @@ def rect_column_pair(Da, la, ca, sa, Db, lb, cb, sb, k, is3d, PT, QT, j, size_a,
 
 
 @njit(error_model="numpy", cache=True)
-def rect_columns(Da, la, ca, sa, Db, lb, cb, sb, lo, hi, is3d, PT, QT, size_a, size_b):
+def rect_columns(Da, la, Db, lb, lo, hi, is3d, PT, QT, size_a, size_b):
     """Prepared rows of pairs lo..hi-1 as columns of PT, QT (16, >= hi - lo), each pair in
     canonical order (so that the loop over them needs no selects), and both sizes. The
     common same-layout cases get loops where the layout is a constant."""
     if la == ROTATED and lb == ROTATED:
         for k in range(lo, hi):
-            rect_column_pair(
-                Da, ROTATED, ca, sa, Db, ROTATED, cb, sb, k, False, PT, QT, k - lo, size_a, size_b
-            )
+            rect_column_pair(Da, ROTATED, Db, ROTATED, k, False, PT, QT, k - lo, size_a, size_b)
     elif la == UPRIGHT and lb == UPRIGHT:
         for k in range(lo, hi):
-            rect_column_pair(
-                Da, UPRIGHT, ca, sa, Db, UPRIGHT, cb, sb, k, True, PT, QT, k - lo, size_a, size_b
-            )
+            rect_column_pair(Da, UPRIGHT, Db, UPRIGHT, k, True, PT, QT, k - lo, size_a, size_b)
     else:
         for k in range(lo, hi):
-            rect_column_pair(
-                Da, la, ca, sa, Db, lb, cb, sb, k, is3d, PT, QT, k - lo, size_a, size_b
-            )
+            rect_column_pair(Da, la, Db, lb, k, is3d, PT, QT, k - lo, size_a, size_b)
 
 
 @njit(error_model="numpy", cache=True)
@@ -760,7 +754,7 @@ def rect_columns_inter3(PT, QT, n, out):
 
 
 @njit(error_model="numpy", cache=True)
-def rect_elementwise_span(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, lo, hi, out):
+def rect_elementwise_span(Da, la, Db, lb, measure, is3d, lo, hi, out):
     """out[k] for k in [lo, hi) for every measure, block by block; scratch per call."""
     buf = np.empty((4, RECT_SCRATCH))
     ra = np.empty((1, RECT_COLUMNS))
@@ -777,22 +771,22 @@ def rect_elementwise_span(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, lo, hi,
         n = stop - start
         part = out[start:stop]
         if fast:
-            rect_columns(Da, la, ca, sa, Db, lb, cb, sb, start, stop, is3d, PT, QT, size_a, size_b)
+            rect_columns(Da, la, Db, lb, start, stop, is3d, PT, QT, size_a, size_b)
             if is3d:
                 rect_columns_inter3(PT, QT, n, part)
             else:
                 rect_columns_inter(PT, QT, n, part)
         for k in range(n):
             if not fast or part[k] < 0.0:
-                rect_row(Da, start + k, la, ca, sa, ra[0])
-                rect_row(Db, start + k, lb, cb, sb, rb[0])
+                rect_row(Da, start + k, la, ra[0])
+                rect_row(Db, start + k, lb, rb[0])
                 part[k] = rect_value(ra, 0, rb, 0, measure, is3d, buf)
             elif measure != INTERSECTION:
                 part[k] = finish(measure, part[k], size_a[k], size_b[k], 0.0, 0.0, 0.0)
 
 
 @njit(error_model="numpy", cache=True, parallel=True)
-def rect_elementwise(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
+def rect_elementwise(Da, la, Db, lb, measure, is3d, chunks):
     """Row k of a with row k of b, straight from the box data: no (N, 16) arrays."""
     n = Da.shape[0]
     out = np.empty(n)
@@ -801,7 +795,7 @@ def rect_elementwise(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
         lo = c * step
         hi = min(n, lo + step)
         if lo < hi:
-            rect_elementwise_span(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, lo, hi, out)
+            rect_elementwise_span(Da, la, Db, lb, measure, is3d, lo, hi, out)
     return out
 
 
@@ -884,9 +878,9 @@ def rect_pairs_serial(A, B, first, second, measure, is3d, chunks):
 
 
 @njit(error_model="numpy", cache=True)
-def rect_elementwise_serial(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
+def rect_elementwise_serial(Da, la, Db, lb, measure, is3d, chunks):
     out = np.empty(Da.shape[0])
-    rect_elementwise_span(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, 0, Da.shape[0], out)
+    rect_elementwise_span(Da, la, Db, lb, measure, is3d, 0, Da.shape[0], out)
     return out
 
 
