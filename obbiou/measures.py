@@ -17,6 +17,10 @@ Mixing layouts: ``axis`` and ``rotated`` boxes mix (axis boxes are rotated boxes
 mixes with ``upright``. 2D boxes never mix with 3D boxes (take
 :func:`obbiou.boxes.footprint` of the 3D ones for bird's-eye-view measures).
 
+Scene-scale code (overlapping pairs, suppression, evaluation) builds on
+:func:`pair_values`: the measure for listed index pairs, bit for bit the all-pairs entries,
+with :func:`prepare` to precompute per-box data once when the same boxes are used again.
+
 Exactness: each pair is computed relative to one of its boxes (coordinates near 1e6 lose
 nothing), in an order fixed by the boxes' data, so ``iou(a, b) == iou(b, a).T`` bit for bit;
 ``iou(x, x) == 1.0`` for every box of positive size; disjoint boxes give exactly 0.0; a box
@@ -112,20 +116,12 @@ def _polygon_rows(vertices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     with np.errstate(invalid="ignore", divide="ignore"):
         gx = ((x + xn) * cross).sum(axis=1) / (3.0 * area2)
         gy = ((y + yn) * cross).sum(axis=1) / (3.0 * area2)
-    flat = area2 == 0
-    gx[flat] = x[flat].mean(axis=1) if flat.any() else gx[flat]
-    gy[flat] = y[flat].mean(axis=1) if flat.any() else gy[flat]
+    flat = area2 == 0  # degenerate polygons: the mean of the vertices instead
+    gx = np.where(flat, x.mean(axis=1), gx)
+    gy = np.where(flat, y.mean(axis=1), gy)
     rows[:, 5] = origin[:, 0, 0] + gx
     rows[:, 6] = origin[:, 0, 1] + gy
     return np.ascontiguousarray(vertices), rows
-
-
-def _directions(boxes: Boxes) -> tuple[np.ndarray, np.ndarray]:
-    """cos and sin of each box's angle (one place, so every path sees the same bits)."""
-    if boxes.shape in ("axis", "axis3"):
-        return np.ones(len(boxes)), np.zeros(len(boxes))
-    angle = boxes.data[:, 4 if boxes.shape == "rotated" else 6]
-    return np.cos(angle), np.sin(angle)
 
 
 def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
@@ -165,8 +161,7 @@ def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
 
         if kind == "axis":
             return Prepared(kind, boxes.is_3d, geometry.axis_rows(d, layout), empty, boxes)
-        cos, sin = _directions(boxes)
-        rows = geometry.rect_rows(d, layout, cos, sin)
+        rows = geometry.rect_rows(d, layout)
         return Prepared(kind, boxes.is_3d, rows, empty, boxes)
     if kind == "poly":
         if shp == "polygon":
@@ -235,11 +230,9 @@ def _pairs(pa: Prepared, pb: Prepared, first: np.ndarray, second: np.ndarray, co
 
 
 def _rect_elementwise(a: Boxes, b: Boxes, code: int) -> np.ndarray:
-    ca, sa = _directions(a)
-    cb, sb = _directions(b)
     la, lb = _LAYOUT_CODES[a.shape], _LAYOUT_CODES[b.shape]
     return _driver("rect_elementwise", len(a))(
-        a.data, la, ca, sa, b.data, lb, cb, sb, code, a.is_3d, _chunks(len(a))
+        a.data, la, b.data, lb, code, a.is_3d, _chunks(len(a))
     )
 
 
@@ -480,7 +473,6 @@ def warmup() -> None:
                 run = getattr(pairs, p.kind + "_pairs" + suffix)
                 run(p.rows, p.rows, idx, idx, code, p.is_3d, 1)
             if p.kind == "rect":
-                cos, sin = _directions(boxes)
                 lay = _LAYOUT_CODES[boxes.shape]
                 run = getattr(pairs, "rect_elementwise" + suffix)
-                run(boxes.data, lay, cos, sin, boxes.data, lay, cos, sin, code, p.is_3d, 1)
+                run(boxes.data, lay, boxes.data, lay, code, p.is_3d, 1)

@@ -354,3 +354,16 @@ def test_invalid_options():
         pair_values(a, a, np.array([0, 1]), np.array([0]))
     with pytest.raises(ValueError, match=r"^first: expected a 1-D array of integer indices"):
         pair_values(a, a, np.array([0.5]), np.array([0]))
+
+
+def test_polygons_with_different_vertex_counts_against_shapely():
+    rng = np.random.default_rng(8)
+    tri = np.array([[[0, 0], [3, 0], [0, 3]], [[1, 1], [4, 1], [1, 4]]], dtype=float)
+    hexa = np.array(
+        [[[2 + np.cos(t), 1 + np.sin(t)] for t in np.arange(6) * np.pi / 3 + rng.uniform()]]
+    )
+    inter, union, hull = shapely_reference(shapely.polygons(tri), shapely.polygons(hexa))
+    # shapely is the reference.
+    np.testing.assert_allclose(iou(tri, hexa), inter / union, atol=1e-12)
+    np.testing.assert_allclose(giou(tri, hexa), inter / union - (hull - union) / hull, atol=1e-12)
+    assert np.array_equal(iou(hexa, tri), iou(tri, hexa).T)

@@ -6,6 +6,8 @@ lists and elementwise values see bit-identical per-box data.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from numba import njit
 
@@ -40,11 +42,12 @@ def axis_rows(data, layout):
     return rows
 
 
-@njit(error_model="numpy", cache=True)
-def rect_row(data, i, layout, cos, sin, row):
-    """Fill ``row`` with ``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1,
-    size, 1/hw, 1/hh`` of box ``data[i]`` (rotated, axis, or the footprint of an upright /
-    axis3 box). ``cos``, ``sin`` hold the per-box direction, computed once by numpy."""
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_tuple(data, i, layout):
+    """``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1, size, 1/hw, 1/hh``
+    of box ``data[i]`` (rotated, axis, or the footprint of an upright / axis3 box) as a
+    tuple. cos and sin are computed here, the one place for every path (scalar libm calls:
+    all-pairs, pair lists and elementwise values see the same bits)."""
     z0 = 0.0
     z1 = 0.0
     if layout == ROTATED or layout == UPRIGHT:
@@ -53,13 +56,15 @@ def rect_row(data, i, layout, cos, sin, row):
         if layout == ROTATED:
             w = data[i, 2]
             h = data[i, 3]
+            angle = data[i, 4]
         else:
             w = data[i, 3]
             h = data[i, 4]
+            angle = data[i, 6]
             z0 = data[i, 2] - 0.5 * data[i, 5]
             z1 = data[i, 2] + 0.5 * data[i, 5]
-        c = cos[i]
-        s = sin[i]
+        c = math.cos(angle)
+        s = math.sin(angle)
         hw = 0.5 * w
         hh = 0.5 * h
         ex = abs(c) * hw + abs(s) * hh
@@ -88,29 +93,25 @@ def rect_row(data, i, layout, cos, sin, row):
         c = 1.0
         s = 0.0
     area = w * h
-    row[0] = cx
-    row[1] = cy
-    row[2] = hw
-    row[3] = hh
-    row[4] = c
-    row[5] = s
-    row[6] = area
-    row[7] = xmin
-    row[8] = ymin
-    row[9] = xmax
-    row[10] = ymax
-    row[11] = z0
-    row[12] = z1
-    row[13] = area * (z1 - z0) if layout == UPRIGHT or layout == AXIS3 else area
-    row[14] = 1.0 / hw if hw > 0.0 else np.inf
-    row[15] = 1.0 / hh if hh > 0.0 else np.inf
+    size = area * (z1 - z0) if layout == UPRIGHT or layout == AXIS3 else area
+    ihw = 1.0 / hw if hw > 0.0 else np.inf
+    ihh = 1.0 / hh if hh > 0.0 else np.inf
+    return (cx, cy, hw, hh, c, s, area, xmin, ymin, xmax, ymax, z0, z1, size, ihw, ihh)
 
 
 @njit(error_model="numpy", cache=True)
-def rect_rows(data, layout, cos, sin):
+def rect_row(data, i, layout, row):
+    """Write :func:`rect_tuple` of box ``data[i]`` into ``row``."""
+    t = rect_tuple(data, i, layout)
+    row[0], row[1], row[2], row[3], row[4], row[5], row[6], row[7] = t[:8]
+    row[8], row[9], row[10], row[11], row[12], row[13], row[14], row[15] = t[8:]
+
+
+@njit(error_model="numpy", cache=True)
+def rect_rows(data, layout):
     """Rows of :func:`rect_row` for every box."""
     n = data.shape[0]
     rows = np.empty((n, 16))
     for i in range(n):
-        rect_row(data, i, layout, cos, sin, rows[i])
+        rect_row(data, i, layout, rows[i])
     return rows

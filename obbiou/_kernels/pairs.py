@@ -12,7 +12,14 @@ kinds:
 Exactness (DESIGN section 4): each pair is computed in a canonical order decided by the
 boxes' data, never by argument position, so ``f(a, b) == f(b, a)`` bit for bit; geometry is
 done relative to one box of the pair; identical and nested boxes short-cut to exact sizes;
-results are clamped to their ranges; zero-size boxes overlap nothing and no 0/0 happens.
+results are clamped to their ranges; zero-size boxes overlap nothing and no NaN escapes
+(branch-free code may divide by zero in a value it then discards).
+
+Rectangles (the common case) take a branch-free path that vectorises across pairs: the
+boundary-integral area of :func:`rect_area`, with separating-axis tests for disjoint and
+nested pairs. Near-parallel pairs are flagged and clipped polygon-wise instead
+(:func:`rect_slow`). Every driver of a measure ends in the same arithmetic per pair, so
+all-pairs matrices, pair lists and elementwise values agree bit for bit.
 """
 
 from __future__ import annotations
@@ -21,7 +28,7 @@ import numpy as np
 from numba import njit, prange
 
 from obbiou._kernels.clip import clip_axis, clip_line, hull_area, shoelace
-from obbiou._kernels.geometry import rect_row
+from obbiou._kernels.geometry import ROTATED, UPRIGHT, rect_row, rect_tuple
 
 # Measure codes (the public layer maps names to these).
 INTERSECTION = 0
@@ -49,13 +56,11 @@ def finish(measure, inter, sa, sb, hull, d2, c2):
     if measure == INTERSECTION:
         return inter
     if measure == COVERAGE:
-        if sa <= 0.0:
-            return 0.0
-        return min(max(inter / sa, 0.0), 1.0)
+        share = min(max(inter / sa, 0.0), 1.0)
+        return share if sa > 0.0 else 0.0
     union = sa + sb - inter
-    iou = 0.0
-    if union > 0.0 and inter > 0.0:
-        iou = min(max(inter / union, 0.0), 1.0)
+    iou = min(max(inter / union, 0.0), 1.0)  # a select below, not a branch: loops vectorise
+    iou = iou if (union > 0.0) & (inter > 0.0) else 0.0
     if measure == IOU:
         return iou
     if measure == GIOU:
@@ -156,12 +161,6 @@ def axis_hull(P, p, Q, q, is3d, buf):
 # rotated rectangles (rotated, upright footprints)
 
 
-@njit(error_model="numpy", cache=True)
-def rect_less(A, i, B, j, is3d):
-    """True when row B[j] sorts before row A[i] (lexicographic on centre, size, direction)."""
-    return rect_before(rect_load(A, i), rect_load(B, j), is3d)
-
-
 @njit(error_model="numpy", cache=True, inline="always")
 def rect_load(R, i):
     """Row i of prepared rectangles (N, 16) as a tuple."""
@@ -178,6 +177,15 @@ def rect_load_t(RT, j):
         RT[0, j], RT[1, j], RT[2, j], RT[3, j], RT[4, j], RT[5, j], RT[6, j], RT[7, j],
         RT[8, j], RT[9, j], RT[10, j], RT[11, j], RT[12, j], RT[13, j], RT[14, j], RT[15, j],
     )  # fmt: skip
+
+
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_store_t(RT, j, t):
+    """Write row tuple t into column j of transposed rows RT (16, M)."""
+    RT[0, j], RT[1, j], RT[2, j], RT[3, j] = t[0], t[1], t[2], t[3]
+    RT[4, j], RT[5, j], RT[6, j], RT[7, j] = t[4], t[5], t[6], t[7]
+    RT[8, j], RT[9, j], RT[10, j], RT[11, j] = t[8], t[9], t[10], t[11]
+    RT[12, j], RT[13, j], RT[14, j], RT[15, j] = t[12], t[13], t[14], t[15]
 
 
 @njit(error_model="numpy", cache=True, inline="always")
@@ -336,17 +344,23 @@ def rect_intersection(a, b, is3d):
 
     Branch-free; ``redo`` asks the caller to recompute the pair with :func:`rect_slow`.
     """
-    sa = a[R_SIZE]
-    sb = b[R_SIZE]
-    separate = (a[R_XMAX] <= b[R_XMIN]) | (b[R_XMAX] <= a[R_XMIN])
-    separate = separate | (a[R_YMAX] <= b[R_YMIN]) | (b[R_YMAX] <= a[R_YMIN])
+    swap = rect_before(a, b, is3d)
+    return rect_ordered(pick(swap, a, b), pick(swap, b, a), is3d)
+
+
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_ordered(p, q, is3d):
+    """:func:`rect_intersection` of p and q already in canonical order (p first)."""
+    sa = p[R_SIZE]
+    sb = q[R_SIZE]
+    separate = (p[R_XMAX] <= q[R_XMIN]) | (q[R_XMAX] <= p[R_XMIN])
+    separate = separate | (p[R_YMAX] <= q[R_YMIN]) | (q[R_YMAX] <= p[R_YMIN])
     separate = separate | (sa <= 0.0) | (sb <= 0.0)
     dz = 1.0
     if is3d:
-        dz = min(a[R_Z1], b[R_Z1]) - max(a[R_Z0], b[R_Z0])
+        dz = min(p[R_Z1], q[R_Z1]) - max(p[R_Z0], q[R_Z0])
         separate = separate | (dz <= 0.0)
-    swap = rect_before(a, b, is3d)
-    area, redo = rect_area(pick(swap, a, b), pick(swap, b, a))
+    area, redo = rect_area(p, q)
     inter = min(area * dz, sa, sb) if is3d else area
     inter = 0.0 if separate else inter
     return inter, redo & ~separate
@@ -487,27 +501,26 @@ def rect_value(A, i, B, j, measure, is3d, buf):
 
 
 @njit(error_model="numpy", cache=True)
-def rect_row_fast(A, i, BT, out, redo):
-    """Intersection sizes of A[i] with every column of BT (transposed rows), vectorisable;
-    marks in ``redo`` the pairs to recompute with :func:`rect_value`."""
+def rect_row_fast(A, i, BT, m, out):
+    """Intersection sizes of A[i] with every column of BT (transposed rows), or -1 for the
+    pairs to recompute with :func:`rect_value`; a vectorisable loop."""
     a = rect_load(A, i)
-    for j in range(BT.shape[1]):
+    for j in range(m):
         inter, again = rect_intersection(a, rect_load_t(BT, j), False)
-        out[j] = inter
-        redo[j] = again
+        out[j] = -1.0 if again else inter
 
 
 @njit(error_model="numpy", cache=True)
-def rect_row_fast3(A, i, BT, out, redo):
+def rect_row_fast3(A, i, BT, m, out):
+    """:func:`rect_row_fast` for upright 3D boxes."""
     a = rect_load(A, i)
-    for j in range(BT.shape[1]):
+    for j in range(m):
         inter, again = rect_intersection(a, rect_load_t(BT, j), True)
-        out[j] = inter
-        redo[j] = again
+        out[j] = -1.0 if again else inter
 
 
 @njit(error_model="numpy", cache=True)
-def rect_matrix_row(A, i, B, BT, measure, is3d, out, redo, buf):
+def rect_matrix_row(A, i, B, BT, measure, is3d, out, buf):
     """Row i of an all-pairs matrix of rectangles."""
     m = B.shape[0]
     if measure == GIOU or measure == DIOU:
@@ -515,12 +528,12 @@ def rect_matrix_row(A, i, B, BT, measure, is3d, out, redo, buf):
             out[j] = rect_value(A, i, B, j, measure, is3d, buf)
         return
     if is3d:
-        rect_row_fast3(A, i, BT, out, redo)
+        rect_row_fast3(A, i, BT, m, out)
     else:
-        rect_row_fast(A, i, BT, out, redo)
+        rect_row_fast(A, i, BT, m, out)
     sa = A[i, R_SIZE]
     for j in range(m):
-        if redo[j]:
+        if out[j] < 0.0:
             out[j] = rect_value(A, i, B, j, measure, is3d, buf)
         elif measure != INTERSECTION:
             out[j] = finish(measure, out[j], sa, B[j, R_SIZE], 0.0, 0.0, 0.0)
@@ -672,11 +685,11 @@ def rect_matrix(A, B, measure, is3d):
     n = A.shape[0]
     m = B.shape[0]
     out = np.empty((n, m))
-    BT = np.ascontiguousarray(B.T)
+    BT = np.empty((RECT_COLUMNS, m + 8))  # padded: rows not a multiple of 4 KiB apart
+    BT[:, :m] = B.T
     for i in prange(n):
         buf = np.empty((4, RECT_SCRATCH))
-        redo = np.empty(m, dtype=np.bool_)
-        rect_matrix_row(A, i, B, BT, measure, is3d, out[i], redo, buf)
+        rect_matrix_row(A, i, B, BT, measure, is3d, out[i], buf)
     return out
 
 
@@ -692,21 +705,97 @@ def rect_pairs(A, B, first, second, measure, is3d, chunks):
     return out
 
 
+ELEMENTWISE_BLOCK = 512
+
+
+@njit(error_model="numpy", cache=True, inline="always")
+def rect_column_pair(Da, la, Db, lb, k, is3d, PT, QT, j, size_a, size_b):
+    a = rect_tuple(Da, k, la)
+    b = rect_tuple(Db, k, lb)
+    swap = rect_before(a, b, is3d)
+    rect_store_t(PT, j, pick(swap, a, b))
+    rect_store_t(QT, j, pick(swap, b, a))
+    size_a[j] = a[R_SIZE]
+    size_b[j] = b[R_SIZE]
+
+
+@njit(error_model="numpy", cache=True)
+def rect_columns(Da, la, Db, lb, lo, hi, is3d, PT, QT, size_a, size_b):
+    """Prepared rows of pairs lo..hi-1 as columns of PT, QT (16, >= hi - lo), each pair in
+    canonical order (so that the loop over them needs no selects), and both sizes. The
+    common same-layout cases get loops where the layout is a constant."""
+    if la == ROTATED and lb == ROTATED:
+        for k in range(lo, hi):
+            rect_column_pair(Da, ROTATED, Db, ROTATED, k, False, PT, QT, k - lo, size_a, size_b)
+    elif la == UPRIGHT and lb == UPRIGHT:
+        for k in range(lo, hi):
+            rect_column_pair(Da, UPRIGHT, Db, UPRIGHT, k, True, PT, QT, k - lo, size_a, size_b)
+    else:
+        for k in range(lo, hi):
+            rect_column_pair(Da, la, Db, lb, k, is3d, PT, QT, k - lo, size_a, size_b)
+
+
+@njit(error_model="numpy", cache=True)
+def rect_columns_inter(PT, QT, n, out):
+    """out[k] = intersection of column k of PT with column k of QT (2D, ordered pairs), or
+    -1 for a pair to recompute with :func:`rect_value`. A vectorisable loop: the 2D / 3D
+    choice is a constant here so that it folds, and the flag rides in the value."""
+    for k in range(n):
+        inter, again = rect_ordered(rect_load_t(PT, k), rect_load_t(QT, k), False)
+        out[k] = -1.0 if again else inter
+
+
+@njit(error_model="numpy", cache=True)
+def rect_columns_inter3(PT, QT, n, out):
+    """:func:`rect_columns_inter` for upright 3D boxes."""
+    for k in range(n):
+        inter, again = rect_ordered(rect_load_t(PT, k), rect_load_t(QT, k), True)
+        out[k] = -1.0 if again else inter
+
+
+@njit(error_model="numpy", cache=True)
+def rect_elementwise_span(Da, la, Db, lb, measure, is3d, lo, hi, out):
+    """out[k] for k in [lo, hi) for every measure, block by block; scratch per call."""
+    buf = np.empty((4, RECT_SCRATCH))
+    ra = np.empty((1, RECT_COLUMNS))
+    rb = np.empty((1, RECT_COLUMNS))
+    fast = measure == INTERSECTION or measure == IOU or measure == COVERAGE
+    # Rows of the scratch columns are padded off a multiple of 4096 bytes apart: sixteen
+    # streams exactly 4 KiB apart would fight over the same L1 cache sets.
+    PT = np.empty((RECT_COLUMNS, ELEMENTWISE_BLOCK + 8))
+    QT = np.empty((RECT_COLUMNS, ELEMENTWISE_BLOCK + 8))
+    size_a = np.empty(ELEMENTWISE_BLOCK)
+    size_b = np.empty(ELEMENTWISE_BLOCK)
+    for start in range(lo, hi, ELEMENTWISE_BLOCK):
+        stop = min(hi, start + ELEMENTWISE_BLOCK)
+        n = stop - start
+        part = out[start:stop]
+        if fast:
+            rect_columns(Da, la, Db, lb, start, stop, is3d, PT, QT, size_a, size_b)
+            if is3d:
+                rect_columns_inter3(PT, QT, n, part)
+            else:
+                rect_columns_inter(PT, QT, n, part)
+        for k in range(n):
+            if not fast or part[k] < 0.0:
+                rect_row(Da, start + k, la, ra[0])
+                rect_row(Db, start + k, lb, rb[0])
+                part[k] = rect_value(ra, 0, rb, 0, measure, is3d, buf)
+            elif measure != INTERSECTION:
+                part[k] = finish(measure, part[k], size_a[k], size_b[k], 0.0, 0.0, 0.0)
+
+
 @njit(error_model="numpy", cache=True, parallel=True)
-def rect_elementwise(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
-    """Row k of a with row k of b, straight from the box data: the per-box rows are built
-    in scratch (the same code as ``rect_rows``), so no (N, 16) arrays are materialised."""
+def rect_elementwise(Da, la, Db, lb, measure, is3d, chunks):
+    """Row k of a with row k of b, straight from the box data: no (N, 16) arrays."""
     n = Da.shape[0]
     out = np.empty(n)
     step = (n + chunks - 1) // chunks
     for c in prange(chunks):
-        buf = np.empty((4, RECT_SCRATCH))
-        ra = np.empty((1, RECT_COLUMNS))
-        rb = np.empty((1, RECT_COLUMNS))
-        for k in range(c * step, min(n, (c + 1) * step)):
-            rect_row(Da, k, la, ca, sa, ra[0])
-            rect_row(Db, k, lb, cb, sb, rb[0])
-            out[k] = rect_value(ra, 0, rb, 0, measure, is3d, buf)
+        lo = c * step
+        hi = min(n, lo + step)
+        if lo < hi:
+            rect_elementwise_span(Da, la, Db, lb, measure, is3d, lo, hi, out)
     return out
 
 
@@ -789,18 +878,9 @@ def rect_pairs_serial(A, B, first, second, measure, is3d, chunks):
 
 
 @njit(error_model="numpy", cache=True)
-def rect_elementwise_serial(Da, la, ca, sa, Db, lb, cb, sb, measure, is3d, chunks):
-    n = Da.shape[0]
-    out = np.empty(n)
-    step = (n + chunks - 1) // chunks
-    for c in range(chunks):
-        buf = np.empty((4, RECT_SCRATCH))
-        ra = np.empty((1, RECT_COLUMNS))
-        rb = np.empty((1, RECT_COLUMNS))
-        for k in range(c * step, min(n, (c + 1) * step)):
-            rect_row(Da, k, la, ca, sa, ra[0])
-            rect_row(Db, k, lb, cb, sb, rb[0])
-            out[k] = rect_value(ra, 0, rb, 0, measure, is3d, buf)
+def rect_elementwise_serial(Da, la, Db, lb, measure, is3d, chunks):
+    out = np.empty(Da.shape[0])
+    rect_elementwise_span(Da, la, Db, lb, measure, is3d, 0, Da.shape[0], out)
     return out
 
 
