@@ -555,7 +555,13 @@ def _cmd_warmup(args: argparse.Namespace) -> int:
             result = evaluate(truth, dets, shape=shape, iou="0.5:0.95:0.05")
             result.interval(resamples=20, seed=0)
 
+    def box_tools() -> None:
+        from obbiou.boxes import fit_rotated
+
+        fit_rotated(np.zeros((1, 3, 2)))
+
     step("overlap measures (iou, giou, diou, intersection, coverage)", measures)
+    step("box tools (fit_rotated)", box_tools)
     step("scene (overlapping_pairs, suppress: hard, linear, gaussian)", scene)
     step("evaluation (matching, AP, bootstrap; every layout)", evaluation)
     print(f"done in {time.perf_counter() - start:.1f} s")
