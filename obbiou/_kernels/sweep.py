@@ -13,8 +13,8 @@ sweep 0.23 s vs grid 0.047 s at N = 5e4, 52.8 s vs 1.19 s at N = 1e6.
 One grid level per size class (cell size s0 * 2**L) keeps it robust when box sizes vary
 widely: every box is stored at the level whose cell is at least its own extent, so it
 occupies at most 2 x 2 cells there, and a query visits each non-empty level. Each pair is
-reported exactly once, in the cell that holds the lower-left corner of the intersection of
-the two extents (the "reference point"), so no de-duplication pass is needed.
+reported exactly once, in the first cell (lowest column and row) that both boxes cover, an
+integer test, so no de-duplication pass is needed.
 
 Extents are padded by a few ulps of the coordinates so that the exact clip in the measure
 kernels (which works in its own local frame and rounds differently) can never see an
@@ -82,7 +82,8 @@ def build_grid(ext, base):
     cell size, cells along x, cells along y (0 for an empty level), index of the level's
     first cell; ``bounds`` (L, 4): extent of the level's boxes; ``cell_ptr``, ``items``: the
     boxes of each cell in CSR form; ``item_ext``: their x-y extents in the same order (read
-    in sequence by the queries instead of jumping around ``ext``).
+    in sequence by the queries instead of jumping around ``ext``); ``item_lo``: the first
+    cell (x, y) of each item's box on its level.
     """
     m = ext.shape[0]
     level = np.zeros(m, np.int64)
@@ -155,6 +156,7 @@ def build_grid(ext, base):
     fill = cell_ptr[:-1].copy()
     items = np.empty(cell_ptr[ncells], np.int64)
     item_ext = np.empty((cell_ptr[ncells], 4))
+    item_lo = np.empty((cell_ptr[ncells], 2), np.int64)  # the box's first cell along x, y
     for j in range(m):
         lv = level[j]
         gx, gy, s = levels[lv, 0], levels[lv, 1], levels[lv, 2]
@@ -167,8 +169,10 @@ def build_grid(ext, base):
                 items[fill[c]] = j
                 for q in range(4):
                     item_ext[fill[c], q] = ext[j, q]
+                item_lo[fill[c], 0] = cx0
+                item_lo[fill[c], 1] = cy0
                 fill[c] += 1
-    return levels, bounds, cell_ptr, items, item_ext
+    return levels, bounds, cell_ptr, items, item_ext, item_lo
 
 
 # Prepared-row kinds (see obbiou._kernels.pairs): the measure of a pair is the very kernel
@@ -310,24 +314,24 @@ def _scratch(VA, VB):
 def _walk(i, scene, grid, kept, out):
     """Candidates of a's row i, by a walk over the grid cells that its extent covers.
 
-    Counts them (``out`` empty) or writes them (b's rows, spatial order) to ``out``; with
+    Counts them and writes the first ``len(out)`` (b's rows, spatial order) to ``out``; with
     a non-empty ``kept``, only boxes j with ``kept[j]`` != 0, other than i itself.
 
     A candidate: strictly overlapping padded extents (x, y, z), the same label when labels
     are given (non-empty arrays), for self-pairs a later row in input order, and, when the
     threshold is > 0, an IoU upper bound above it: IoU <= m / (sa + sb - m) with
-    m = min(extent overlap, sa, sb). Each pair is met once, in the cell of its reference
-    point (the lower-left corner of the overlap of the extents). The walk is one function
+    m = min(extent overlap, sa, sb). Each pair is met once (see the module docstring). The
+    walk is one function
     with the measure kept out of it: measured, a measure call inside this loop (or a helper
     for the tests) made the walk two to three times slower.
     """
-    levels, bounds, cell_ptr, items, item_ext = grid
+    levels, bounds, cell_ptr, items, item_ext, item_lo = grid
     ea, sa, oa = scene[3], scene[4], scene[5]
     eb, sb, ob, same, labels_a, labels_b, thr, is3d = scene[8:]
     x0, y0, x1, y1, z0, z1 = ea[i, 0], ea[i, 1], ea[i, 2], ea[i, 3], ea[i, 4], ea[i, 5]
     use_labels = labels_a.shape[0] > 0
     use_kept = kept.shape[0] > 0
-    write = out.shape[0] > 0
+    cap = out.shape[0]
     me = oa[i]
     n = 0
     for lv in range(levels.shape[0]):
@@ -344,18 +348,24 @@ def _walk(i, scene, grid, kept, out):
             for cx in range(cx0, cx1 + 1):
                 c = c0 + cy * nx + cx
                 for k in range(cell_ptr[c], cell_ptr[c + 1]):
-                    bx0, by0 = item_ext[k, 0], item_ext[k, 1]
-                    if bx0 >= x1 or item_ext[k, 2] <= x0 or by0 >= y1 or item_ext[k, 3] <= y0:
-                        continue
                     j = items[k]
+                    if use_kept and kept[j] == 0:
+                        continue
+                    if (
+                        item_ext[k, 0] >= x1
+                        or item_ext[k, 2] <= x0
+                        or item_ext[k, 1] >= y1
+                        or item_ext[k, 3] <= y0
+                    ):
+                        continue
                     if use_kept:
-                        if kept[j] == 0 or j == i:
+                        if j == i:
                             continue
                     elif same and ob[j] <= me:
                         continue
-                    if _cell(max(x0, bx0), gx, s, nx) != cx:
-                        continue
-                    if _cell(max(y0, by0), gy, s, ny) != cy:
+                    # report the pair only in the first cell that both boxes cover (integer
+                    # test, the same cells as the grid's own: no rounding can differ)
+                    if max(cx0, item_lo[k, 0]) != cx or max(cy0, item_lo[k, 1]) != cy:
                         continue
                     if is3d and (eb[j, 4] >= z1 or eb[j, 5] <= z0):
                         continue
@@ -371,7 +381,7 @@ def _walk(i, scene, grid, kept, out):
                         u = sa[i] + sb[j] - m
                         if u > 0.0 and m * (1.0 + 1e-9) <= thr * u:
                             continue
-                    if write:
+                    if n < cap:
                         out[n] = j
                     n += 1
     return n
@@ -558,7 +568,7 @@ def suppress_hard(kind, A, VA, labels, order, thr, is3d, limit):
         where[oa[i]] = i
     flag = np.zeros(n, np.int64)  # kept, in spatial order
     buf = _scratch(VA, VA)
-    near = np.empty(16, np.int64)
+    near = np.empty(64, np.int64)
     kept = np.empty(order.shape[0], np.int64)
     nk = 0
     for p in range(order.shape[0]):
@@ -567,12 +577,12 @@ def suppress_hard(kind, A, VA, labels, order, thr, is3d, limit):
         i = where[order[p]]
         m = 0
         if nk > 0:
-            m = _walk(i, scene, grid, flag, near[:0])
+            m = _walk(i, scene, grid, flag, near)
         suppressed = False
         if m > 0:
-            if m > near.shape[0]:
+            if m > near.shape[0]:  # rare: more kept neighbours than the buffer holds
                 near = np.empty(2 * m, np.int64)
-            _walk(i, scene, grid, flag, near[:m])
+                _walk(i, scene, grid, flag, near)
             for k in range(m):
                 if _value(kind, A, VA, i, A, VA, near[k], is3d, buf) > thr:
                     suppressed = True
