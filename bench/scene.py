@@ -279,6 +279,8 @@ def index_comparison() -> None:
     from numba import njit, prange
 
     from obbiou._kernels import sweep
+    from obbiou.measures import prepare
+    from obbiou.shapes import read_boxes
 
     @njit(parallel=True)
     def sweep_count(ext, order, xs, wmax):
@@ -306,29 +308,19 @@ def index_comparison() -> None:
         wmax = float((ext[:, 2] - ext[:, 0]).max())
         return int(sweep_count(ext, order, xs, wmax).sum())
 
-    def run_grid(ext, size):
-        f, _ = sweep.candidates(
-            ext,
-            size,
-            ext,
-            size,
-            obbiou.scene._base_cell(ext),
-            True,
-            np.zeros(0, np.int64),
-            np.zeros(0, np.int64),
-            0.0,
-            False,
-        )
-        return len(f)
+    def run_grid(rows):
+        return int(sweep.candidate_count(1, rows, none, rows, none, True, 0.0, False))
 
     print("\nindex: candidate search for self-pairs (extents only), constant density")
+    none = np.zeros((0, 0, 2))
     for n in (50_000, 1_000_000):
         a = mosaic(n, 10_000.0 * np.sqrt(n / 50_000), seed=7)
-        ext, size = sweep.flat_extents(a, 1)
+        rows = prepare(read_boxes(a)).rows
+        ext, _ = sweep._extents(1, rows, False)
         run_sweep(ext[:100])
-        run_grid(ext[:100], size[:100])
+        run_grid(rows[:100])
         t_s, c_s = timed(lambda e=ext: run_sweep(e), 2, warmup=0)
-        t_g, c_g = timed(lambda e=ext, s=size: run_grid(e, s), 2, warmup=0)
+        t_g, c_g = timed(lambda r=rows: run_grid(r), 2, warmup=0)
         print(f"N={n:>8}: sweep {t_s:7.3f} s ({c_s} cand.)   grid {t_g:7.3f} s ({c_g} cand.)")
 
 

@@ -108,33 +108,26 @@ class Kept:
 _SERIAL_BELOW = 20_000
 
 
-def _extents(b: Boxes, serial: bool) -> tuple[np.ndarray, np.ndarray]:
-    from obbiou._kernels import sweep
-
-    if b.shape == "polygon":
-        return (sweep.polygon_extents_serial if serial else sweep.polygon_extents)(b.data)
-    kernel = sweep.flat_extents_serial if serial else sweep.flat_extents
-    return kernel(b.data, _KIND[b.shape])
+_KINDS = {"axis": 0, "rect": 1, "poly": 2}  # prepared-row kinds of obbiou._kernels.sweep
 
 
-def _base_cell(ext: np.ndarray) -> float:
-    """Level-0 cell size: twice the median extent of the indexed boxes, bounded below so
-    that the size levels stay few whatever the spread of sizes. Measured on self-pairs of
-    1e5 rotated boxes 8-40 px long (one thread, CPU time): 0.7x the median 60 ms, 1x 68 ms,
-    1.5x 49 ms, 2x 43 ms, 3x 51 ms, the largest extent 45 ms."""
-    d = np.maximum(ext[:, 2] - ext[:, 0], ext[:, 3] - ext[:, 1])
-    top = float(d.max())
-    return max(2.0 * float(np.median(d)), top * 2.0**-40, 1e-300)
-
-
-def _pair_iou(a: Boxes, b: Boxes | None, first: np.ndarray, second: np.ndarray) -> np.ndarray:
-    """Exact IoU of the listed pairs (b=None: pairs of a with itself, prepared once)."""
-    from obbiou.measures import pair_values, prepare
+def _prepared(a: Boxes, b: Boxes | None):
+    """Both sides prepared once for the pair kernels, in their common kind (b=None: a)."""
+    from obbiou.measures import _prepared_pair, prepare
 
     if b is None:
         pa = prepare(a)
-        return pair_values(pa, pa, first, second, measure="iou")
-    return pair_values(a, b, first, second, measure="iou")
+        return _KINDS[pa.kind], pa, pa
+    pa, pb = _prepared_pair(a, b)
+    return _KINDS[pa.kind], pa, pb
+
+
+def _vertices(p) -> np.ndarray:
+    return p.vertices if p.kind == "poly" else np.zeros((0, 0, 2))
+
+
+def _serial(n: int) -> bool:
+    return n < _SERIAL_BELOW
 
 
 def _label_codes(labels: Any, n: int) -> np.ndarray:
@@ -174,19 +167,29 @@ def _pairs(
     if len(a) == 0 or len(other) == 0:
         return np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0)
     if serial is None:
-        serial = len(a) + (0 if b is None else len(b)) < _SERIAL_BELOW
-    ea, sa = _extents(a, serial)
-    eb, sb = (ea, sa) if b is None else _extents(b, serial)
+        serial = _serial(len(a) + (0 if b is None else len(b)))
+    kind, pa, pb = _prepared(a, b)
     if codes is None:
         codes = np.zeros(0, np.int64)
-    kernel = sweep.candidates_serial if serial else sweep.candidates
-    first, second = kernel(
-        ea, sa, eb, sb, _base_cell(eb), b is None, codes, codes, float(threshold), a.is_3d
+    if serial:
+        kernel, chunks = sweep.scene_pairs_serial, 1
+    else:
+        from numba import get_num_threads
+
+        kernel, chunks = sweep.scene_pairs, 8 * get_num_threads()
+    return kernel(
+        kind,
+        pa.rows,
+        _vertices(pa),
+        pb.rows,
+        _vertices(pb),
+        b is None,
+        codes,
+        codes,
+        float(threshold),
+        a.is_3d,
+        chunks,
     )
-    if first.shape[0] == 0:
-        return first, second, np.zeros(0)
-    iou = _pair_iou(a, b, first, second)
-    return sweep.keep_above(first, second, np.ascontiguousarray(iou, np.float64), threshold)
 
 
 def _unit_interval(value: Any, name: str) -> float:
@@ -435,10 +438,21 @@ def suppress(
         return Kept(np.zeros(0, np.int64), np.zeros(0))
 
     if decay is None:
-        first, second, _ = _pairs(b, None, thr, codes)
-        ptr, nbr, _ = nms.neighbours(len(b), first, second, np.zeros(first.shape[0]))
+        from obbiou._kernels import sweep
+
+        kind, pb, _ = _prepared(b, None)
         order = np.argsort(-s, kind="stable")  # descending score, ties by input order
-        kept = nms.hard(order, ptr, nbr, cap)
+        no_labels = np.zeros(0, np.int64)
+        kept = sweep.suppress_hard(
+            kind,
+            pb.rows,
+            _vertices(pb),
+            no_labels if codes is None else codes,
+            order,
+            thr,
+            b.is_3d,
+            cap,
+        )
         kept_scores = s[kept]
     else:
         # Linear decay touches only pairs above max_iou; gaussian every overlapping pair.
