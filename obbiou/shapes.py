@@ -297,16 +297,23 @@ def _validate(arr: np.ndarray, layout: str, name: str) -> None:
     # Each check finds its own first failing row; the earliest row wins (for one row, the
     # checks' order decides), so the message always names the first offending row.
     finite = np.isfinite(arr)
-    failures = [_non_finite(arr, finite, layout)]
+    all_finite = bool(finite.all())
+    failures = [None if all_finite else _non_finite(arr, finite, layout)]
     if layout in _SIZE_COLUMNS:
         failures.append(_negative_size(arr, layout))
     elif layout in _EXTENT_COLUMNS:
         failures.extend(_inverted_extent(arr, layout, lo, hi) for lo, hi in _EXTENT_COLUMNS[layout])
     elif layout == "polygon":
-        rows_ok = finite.reshape(arr.shape[0], -1).all(axis=1)
+        if not all_finite:
+            rows_ok = finite.reshape(arr.shape[0], -1).all(axis=1)
+            arr = np.where(rows_ok[:, None, None], arr, 0.0)
         with np.errstate(over="ignore", invalid="ignore"):  # huge ones fail _too_large below
-            failures.extend(_bad_polygons(np.where(rows_ok[:, None, None], arr, 0.0)))
-    failures.append(_too_large(np.where(finite, arr, 0.0), layout))
+            failures.extend(_bad_polygons(arr))
+    clean = arr if all_finite else np.where(finite, arr, 0.0)
+    # Sizes and spans of coordinates below 1e100 cannot overflow an area or a volume: one
+    # cheap pass spares the exact test for nearly all inputs.
+    if max(float(clean.max()), -float(clean.min())) >= 1e100:
+        failures.append(_too_large(clean, layout))
     found = [f for f in failures if f is not None]
     if found:
         row, reason = min(found, key=lambda f: f[0])
@@ -332,11 +339,14 @@ def _non_finite(arr: np.ndarray, finite: np.ndarray, layout: str) -> Failure:
 
 def _negative_size(arr: np.ndarray, layout: str) -> Failure:
     cols = list(_SIZE_COLUMNS[layout])
-    neg = arr[:, cols] < 0
+    sizes = arr[:, cols[0] : cols[-1] + 1]  # the size columns are adjacent: a view, no copy
+    if sizes.size and sizes.min() >= 0:  # the common case: one pass, no mask
+        return None
+    neg = sizes < 0  # NaN compares False here: the non-finite check reports those
     if not neg.any():
         return None
     row = _first_bad(neg)
-    col = cols[int(np.argmax(neg[row]))]
+    col = cols[0] + int(np.argmax(neg[row]))
     return row, f"negative {_column_name(layout, col)} {float(arr[row, col])!r}"
 
 
