@@ -185,22 +185,47 @@ def _extents(kind, R, is3d):
     ext = np.empty((n, 6))
     size = np.empty(n)
     for i in range(n):
-        if kind == AXIS:
-            x0, y0, x1, y1 = R[i, AX_X0], R[i, AX_Y0], R[i, AX_X1], R[i, AX_Y1]
-            z0, z1, s = R[i, AX_Z0], R[i, AX_Z1], R[i, AX_SIZE]
-        elif kind == RECT:
-            x0, y0, x1, y1 = R[i, R_XMIN], R[i, R_YMIN], R[i, R_XMAX], R[i, R_YMAX]
-            z0, z1, s = R[i, R_Z0], R[i, R_Z1], R[i, R_SIZE]
-        else:
-            x0, y0, x1, y1 = R[i, P_XMIN], R[i, P_YMIN], R[i, P_XMAX], R[i, P_YMAX]
-            z0, z1, s = -1.0, 1.0, R[i, P_AREA]
-        if not is3d:
-            z0, z1 = -1.0, 1.0
-        ext[i, X0], ext[i, X1] = _pad(x0, x1)
-        ext[i, Y0], ext[i, Y1] = _pad(y0, y1)
-        ext[i, Z0], ext[i, Z1] = _pad(z0, z1)
-        size[i] = s
+        _extent_row(kind, R, i, is3d, ext, size)
     return ext, size
+
+
+@njit(cache=True, inline="always")
+def _extent_row(kind, R, i, is3d, ext, size):
+    """Padded extent and size of prepared row ``R[i]`` into ``ext[i]``, ``size[i]``."""
+    if kind == AXIS:
+        x0, y0, x1, y1 = R[i, AX_X0], R[i, AX_Y0], R[i, AX_X1], R[i, AX_Y1]
+        z0, z1, s = R[i, AX_Z0], R[i, AX_Z1], R[i, AX_SIZE]
+    elif kind == RECT:
+        x0, y0, x1, y1 = R[i, R_XMIN], R[i, R_YMIN], R[i, R_XMAX], R[i, R_YMAX]
+        z0, z1, s = R[i, R_Z0], R[i, R_Z1], R[i, R_SIZE]
+    else:
+        x0, y0, x1, y1 = R[i, P_XMIN], R[i, P_YMIN], R[i, P_XMAX], R[i, P_YMAX]
+        z0, z1, s = -1.0, 1.0, R[i, P_AREA]
+    if not is3d:
+        z0, z1 = -1.0, 1.0
+    ext[i, X0], ext[i, X1] = _pad(x0, x1)
+    ext[i, Y0], ext[i, Y1] = _pad(y0, y1)
+    ext[i, Z0], ext[i, Z1] = _pad(z0, z1)
+    size[i] = s
+
+
+@njit(cache=True, parallel=True)
+def _side_parallel(kind, R, V, is3d, order, labels):
+    """:func:`_side` on all threads (rows copied and extents computed in one pass): the
+    scene's largest fresh arrays are then filled (and their pages touched) in parallel."""
+    n = order.shape[0]
+    Rs = np.empty((n,) + R.shape[1:])
+    ext = np.empty((n, 6))
+    size = np.empty(n)
+    w = R.shape[1]
+    for i in prange(n):
+        src = order[i]
+        for c in range(w):
+            Rs[i, c] = R[src, c]
+        _extent_row(kind, Rs, i, is3d, ext, size)
+    Vs = _take(V, order) if kind == POLY else V
+    ls = labels[order] if labels.shape[0] > 0 else labels
+    return Rs, Vs, ext, size, ls
 
 
 @njit(cache=True, inline="always")
@@ -447,13 +472,18 @@ def _fill(i, scene, grid, out_j, out_v, buf):
 
 
 @njit(cache=True)
-def _prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d):
+def _prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, parallel=False):
     """Spatially ordered scene and grid over b. Returns (scene, grid)."""
     base = base_cell(kind, B)
     oa, ob = _orders(kind, A, B, base, same)
-    A, VA, ea, sa, la = _side(kind, A, VA, is3d, oa, labels_a)
+    if parallel:
+        A, VA, ea, sa, la = _side_parallel(kind, A, VA, is3d, oa, labels_a)
+    else:
+        A, VA, ea, sa, la = _side(kind, A, VA, is3d, oa, labels_a)
     if same:
         B, VB, eb, sb, lb = A, VA, ea, sa, la
+    elif parallel:
+        B, VB, eb, sb, lb = _side_parallel(kind, B, VB, is3d, ob, labels_b)
     else:
         B, VB, eb, sb, lb = _side(kind, B, VB, is3d, ob, labels_b)
     scene = (kind, A, VA, ea, sa, oa, B, VB, eb, sb, ob, same, la, lb, thr, is3d)
@@ -582,7 +612,7 @@ def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, chunks)
     into per-row slots keeping those above thr; one copy gives exactly sized outputs.
     Memory grows with the number of candidates (extents overlapping, IoU bound above thr).
     """
-    scene, grid = _prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d)
+    scene, grid = _prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, True)
     n = A.shape[0]
     step = (n + chunks - 1) // chunks
     count = np.zeros(n + 1, np.int64)
