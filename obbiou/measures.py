@@ -161,7 +161,9 @@ def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
 
         if kind == "axis":
             return Prepared(kind, boxes.is_3d, geometry.axis_rows(d, layout), empty, boxes)
-        rows = geometry.rect_rows(d, layout)
+        # large inputs on all threads (same per-box code, same bits); below, threads cost more
+        big = len(d) >= _PARALLEL_ROWS
+        rows = (geometry.rect_rows_parallel if big else geometry.rect_rows)(d, layout)
         return Prepared(kind, boxes.is_3d, rows, empty, boxes)
     if kind == "poly":
         if shp == "polygon":
@@ -175,6 +177,11 @@ def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
         verts, rows = _polygon_rows(np.ascontiguousarray(verts, dtype=np.float64))
         return Prepared("poly", False, rows, verts, boxes)
     raise ValueError(f"unknown kind {kind!r}; expected 'axis', 'rect' or 'poly'")
+
+
+#: From this many boxes :func:`prepare` computes rectangle rows on all threads (measured,
+#: 50 000 rotated boxes: 1.6 ms on one thread, 0.8 ms wall on two).
+_PARALLEL_ROWS = 20_000
 
 
 def _prepared_pair(a: Boxes | Prepared, b: Boxes | Prepared) -> tuple[Prepared, Prepared]:

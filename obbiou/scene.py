@@ -476,6 +476,9 @@ def warmup() -> None:
         "axis3": [[0, 0, 0, 2, 2, 2], [1, 1, 1, 3, 3, 3]],
         "upright": [[0, 0, 0, 2, 1, 1, 0.1], [0.5, 0, 0, 2, 1, 1, 0.2]],
     }
+    from obbiou._kernels import geometry
+
+    geometry.rect_rows_parallel(np.asarray(tiny["rotated"], np.float64), geometry.ROTATED)
     codes = np.zeros(2, np.int64)
     for name, boxes in tiny.items():
         bx = read_boxes(boxes, name)
