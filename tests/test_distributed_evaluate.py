@@ -3,9 +3,10 @@
 Equal, not approximately equal: the whole result (``to_dict``: AP, counts, breakdowns,
 buckets), the match records, the curves and the bootstrap intervals are compared exactly.
 The cluster is a ``LocalCluster`` of 2 worker processes on loopback, started and stopped by
-a module-scoped fixture. The data is synthetic (invented frames and a simulated detector),
-seeded, with frames split across partitions, empty partitions, ignore truths, duplicate
-detections and score ties across frames (so the tie-break order is tested too).
+the session fixture ``client`` of ``tests/conftest.py``. The data is synthetic (invented
+frames and a simulated detector), seeded, with frames split across partitions, empty
+partitions, ignore truths, duplicate detections and score ties across
+frames (so the tie-break order is tested too).
 """
 
 from __future__ import annotations
@@ -29,28 +30,6 @@ BOX = ["cx", "cy", "width", "height", "angle"]
 
 # Another local cluster on this machine may hold the default HTTP port: not a problem.
 pytestmark = pytest.mark.filterwarnings("ignore:Port .* is already in use")
-
-
-@pytest.fixture(scope="module")
-def client():
-    from distributed import Client, LocalCluster
-
-    # Compile the kernels once here (numba caches them on disk) so that the worker processes
-    # load them instead of each compiling the same code at the same time.
-    truth, dets = synthetic_tables(3, seed=0)
-    evaluation.evaluate(truth, dets)
-    with (
-        LocalCluster(
-            n_workers=2,
-            threads_per_worker=1,
-            processes=True,
-            host="127.0.0.1",
-            dashboard_address=None,
-            env={"NUMBA_NUM_THREADS": "1"},  # one thread per worker process, as obbiou does
-        ) as cluster,
-        Client(cluster) as cl,
-    ):
-        yield cl
 
 
 def synthetic_tables(frames: int, seed: int) -> tuple[pd.DataFrame, pd.DataFrame]:

@@ -1,8 +1,8 @@
 """Tiled scene overlap on a Dask cluster equals the in-process ``overlapping_pairs``.
 
 The cluster is a ``LocalCluster`` of 2 worker processes on loopback, started and stopped by
-a module-scoped fixture (in ``conftest``-free form so this file stands alone). All data is
-generated here (synthetic scenes, labelled as such), seeded.
+the session fixture ``client`` of ``tests/conftest.py`` (shared with the evaluation tests).
+All data is generated here (synthetic scenes, labelled as such), seeded.
 """
 
 from __future__ import annotations
@@ -26,27 +26,6 @@ COLUMNS = ["cx", "cy", "width", "height", "angle"]
 
 # Another local cluster on this machine may hold the default HTTP port: not a problem.
 pytestmark = pytest.mark.filterwarnings("ignore:Port .* is already in use")
-
-
-@pytest.fixture(scope="module")
-def client():
-    from distributed import Client, LocalCluster
-
-    # Compile the kernels once here (numba caches them on disk) so that the worker processes
-    # load them instead of each compiling the same code at the same time.
-    overlapping_pairs(synthetic_scene(50, seed=0))
-    with (
-        LocalCluster(
-            n_workers=2,
-            threads_per_worker=1,
-            processes=True,
-            host="127.0.0.1",
-            dashboard_address=None,
-            env={"NUMBA_NUM_THREADS": "1"},  # one thread per worker process, as obbiou does
-        ) as cluster,
-        Client(cluster) as cl,
-    ):
-        yield cl
 
 
 def synthetic_scene(n: int, seed: int, *, offset: float = 0.0) -> np.ndarray:
