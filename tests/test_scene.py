@@ -279,3 +279,27 @@ def test_parallel_and_serial_kernels_agree(monkeypatch):
         np.testing.assert_array_equal(x.first, y.first)
         np.testing.assert_array_equal(x.second, y.second)
         np.testing.assert_array_equal(x.iou, y.iou)
+
+
+@pytest.mark.parametrize("parallel", [True, False])
+def test_chunks_that_outgrow_their_sampled_room_lose_nothing(parallel):
+    # Each chunk of rows sizes its candidate buffer from a sample of its rows; with no
+    # margin over the estimate, the dense chunks overflow and must be walked again with
+    # exact room. Reference: the public result (its own margin) and the dense matrix.
+    from obbiou._kernels import sweep
+    from obbiou.scene import _prepared, _vertices
+    from obbiou.shapes import read_boxes
+
+    rng = np.random.default_rng(5)
+    a = make_scene(rng, "clusters", "rotated", 600)
+    kind, pa, _ = _prepared(read_boxes(a), None)
+    none = np.zeros(0, np.int64)
+    kernel = sweep.scene_pairs if parallel else sweep.scene_pairs_serial
+    v = _vertices(pa)
+    first, second, iou = kernel(kind, pa.rows, v, pa.rows, v, True, none, none, 0.0, False, 4, 0.0)
+    want = overlapping_pairs(a)
+    assert len(want) > 4 * 64  # more candidates than the rooms hold without margin
+    np.testing.assert_array_equal(first, want.first)
+    np.testing.assert_array_equal(second, want.second)
+    np.testing.assert_array_equal(iou, want.iou)
+    check_against_own_matrix(want, a, a, "rotated", 0.0, self_pairs=True)

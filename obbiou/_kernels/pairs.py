@@ -754,6 +754,37 @@ def rect_columns_inter3(PT, QT, n, out):
 
 
 @njit(error_model="numpy", cache=True)
+def rect_list_iou(A, first, B, second, n, is3d, out, PT, QT):
+    """IoU of the prepared rectangles A[first[k]], B[second[k]] for k < n into out[k], in
+    blocks of PT.shape[1] pairs: each block is gathered into columns (canonical order) and
+    measured by the vectorised loop of :func:`rect_columns_inter`; near-parallel pairs are
+    redone by :func:`rect_value`. Bit for bit the values of :func:`rect_value`.
+    ``PT``, ``QT``: scratch (16, block)."""
+    block = PT.shape[1]
+    buf = np.empty((4, RECT_SCRATCH))
+    for start in range(0, n, block):
+        m = min(block, n - start)
+        for k in range(m):
+            a = rect_load(A, first[start + k])
+            b = rect_load(B, second[start + k])
+            swap = rect_before(a, b, is3d)
+            rect_store_t(PT, k, pick(swap, a, b))
+            rect_store_t(QT, k, pick(swap, b, a))
+        part = out[start : start + m]
+        if is3d:
+            rect_columns_inter3(PT, QT, m, part)
+        else:
+            rect_columns_inter(PT, QT, m, part)
+        for k in range(m):
+            i = first[start + k]
+            j = second[start + k]
+            if part[k] < 0.0:
+                part[k] = rect_value(A, i, B, j, IOU, is3d, buf)
+            else:
+                part[k] = finish(IOU, part[k], A[i, R_SIZE], B[j, R_SIZE], 0.0, 0.0, 0.0)
+
+
+@njit(error_model="numpy", cache=True)
 def rect_elementwise_span(Da, la, Db, lb, measure, is3d, lo, hi, out):
     """out[k] for k in [lo, hi) for every measure, block by block; scratch per call."""
     buf = np.empty((4, RECT_SCRATCH))

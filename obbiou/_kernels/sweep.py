@@ -48,9 +48,11 @@ from obbiou._kernels.pairs import (
     R_YMIN,
     R_Z0,
     R_Z1,
+    RECT_COLUMNS,
     RECT_SCRATCH,
     axis_pair,
     poly_pair,
+    rect_list_iou,
     rect_value,
 )
 
@@ -81,9 +83,10 @@ def build_grid(ext, base):
     ``base`` is the level-0 cell size (> 0). Returns ``levels`` (L, 6): origin x, origin y,
     cell size, cells along x, cells along y (0 for an empty level), index of the level's
     first cell; ``bounds`` (L, 4): extent of the level's boxes; ``cell_ptr``, ``items``: the
-    boxes of each cell in CSR form (ascending within a cell); ``box_lo`` (M, 2): the first
-    cell (x, y) of each box on its level. The queries read the extents from ``ext`` itself
-    (in spatial order, so a cell's boxes sit close together): measured, dropping a per-item
+    boxes of each cell in CSR form (ascending within a cell); ``box_lo`` (M, 3): the first
+    cell (x, y) of each box on its level, and that level. The queries read the extents
+    from ``ext`` itself (in spatial order, so a cell's boxes sit close together): measured,
+    dropping a per-item
     copy of the extents saved 10-20 % on 10 000 clustered detections (fewer fresh pages).
     """
     m = ext.shape[0]
@@ -156,7 +159,7 @@ def build_grid(ext, base):
         cell_ptr[c + 1] += cell_ptr[c]
     fill = cell_ptr[:-1].copy()
     items = np.empty(cell_ptr[ncells], np.int64)
-    box_lo = np.empty((m, 2), np.int64)  # each box's first cell along x, y on its level
+    box_lo = np.empty((m, 3), np.int64)  # each box's first cell along x, y; its level
     for j in range(m):
         lv = level[j]
         gx, gy, s = levels[lv, 0], levels[lv, 1], levels[lv, 2]
@@ -170,6 +173,7 @@ def build_grid(ext, base):
                 fill[c] += 1
         box_lo[j, 0] = cx0
         box_lo[j, 1] = cy0
+        box_lo[j, 2] = lv
     return levels, bounds, cell_ptr, items, box_lo
 
 
@@ -350,28 +354,30 @@ def _scratch(VA, VB):
 
 
 @njit(cache=True, inline="always")
-def _walk(i, scene, grid, kept, out):
+def _walk(i, scene, grid, items, ends, growing, out):
     """Candidates of a's row i, by a walk over the grid cells that its extent covers.
 
-    Counts them and writes the first ``len(out)`` (b's rows, spatial order) to ``out``; with
-    a non-empty ``kept``, only boxes j with ``kept[j]`` != 0, other than i itself.
+    Cell c holds ``items[cell_ptr[c]:ends[c]]``: the static grid passes its own items and
+    ``cell_ptr[1:]``; hard suppression passes a growing grid of the kept boxes only
+    (``growing``), so a walk never visits a box that cannot suppress. Counts the candidates
+    and writes the first ``len(out)`` (b's rows, spatial order) to ``out``.
 
     A candidate: strictly overlapping padded extents (x, y, z), the same label when labels
-    are given (non-empty arrays), for self-pairs a later row in spatial order (each pair is
-    met from one side only, its input order restored when gathered), and, when the
-    threshold is > 0, an IoU upper bound above it: IoU <= m / (sa + sb - m) with
-    m = min(extent overlap, sa, sb). Each pair is met once (see the module docstring). The
-    walk is one function with the measure kept out of it: measured, a measure call inside
-    this loop (or a helper for the tests) made the walk two to three times slower. Inlined
-    into its callers: measured 175 against 210 ns per walk (10 000 clustered detections).
+    are given (non-empty arrays), for self-pairs of the static grid a later row in spatial
+    order (each pair is met from one side only, its input order restored when gathered),
+    and, when the threshold is > 0, an IoU upper bound above it: IoU <= m / (sa + sb - m)
+    with m = min(extent overlap, sa, sb). Each pair is met once (see the module docstring).
+    The walk is one function with the measure kept out of it: measured, a measure call
+    inside this loop (or a helper for the tests) made the walk two to three times slower.
+    Inlined into its callers: measured 175 against 210 ns per walk (10 000 clustered
+    detections).
     """
-    levels, bounds, cell_ptr, items, box_lo = grid
+    levels, bounds, cell_ptr, _, box_lo = grid
     ea, sa = scene[3], scene[4]
     eb, sb, _, same, labels_a, labels_b, thr, is3d = scene[8:]
     x0, y0, x1, y1, z0, z1 = ea[i, 0], ea[i, 1], ea[i, 2], ea[i, 3], ea[i, 4], ea[i, 5]
     use_labels = labels_a.shape[0] > 0
-    use_kept = kept.shape[0] > 0
-    forward = same and not use_kept
+    forward = same and not growing
     cap = out.shape[0]
     n = 0
     for lv in range(levels.shape[0]):
@@ -387,15 +393,11 @@ def _walk(i, scene, grid, kept, out):
         for cy in range(cy0, cy1 + 1):
             for cx in range(cx0, cx1 + 1):
                 c = c0 + cy * nx + cx
-                for k in range(cell_ptr[c], cell_ptr[c + 1]):
+                for k in range(cell_ptr[c], ends[c]):
                     j = items[k]
                     if forward and j <= i:  # a cell's items ascend: a predictable skip
                         continue
-                    if use_kept and kept[j] == 0:
-                        continue
                     if eb[j, 0] >= x1 or eb[j, 2] <= x0 or eb[j, 1] >= y1 or eb[j, 3] <= y0:
-                        continue
-                    if use_kept and j == i:
                         continue
                     # report the pair only in the first cell that both boxes cover (integer
                     # test, the same cells as the grid's own: no rounding can differ)
@@ -421,54 +423,21 @@ def _walk(i, scene, grid, kept, out):
     return n
 
 
-@njit(cache=True)
-def _values(kind, A, VA, i, B, VB, js, out, is3d, buf):
-    """IoU of A[i] with each B[js[k]] into out[k]: the measure kernels' own per-pair code,
-    so values are bit for bit the all-pairs matrix entries."""
-    if kind == AXIS:
-        for k in range(js.shape[0]):
-            out[k] = axis_pair(A, i, B, js[k], IOU, is3d, buf)
-    elif kind == RECT:
-        for k in range(js.shape[0]):
-            out[k] = rect_value(A, i, B, js[k], IOU, is3d, buf)
-    else:
-        for k in range(js.shape[0]):
-            out[k] = poly_pair(VA, A, i, VB, B, js[k], IOU, buf)
-
-
-@njit(cache=True)
-def _fill(i, scene, grid, out_j, out_v, buf):
-    """The candidates of a's row i (``out_j`` holds exactly their number) with IoU above
-    the threshold: (b's input row, IoU) compacted to the front of ``out_j``, ``out_v``;
-    returns how many."""
-    kind, A, VA, B, VB, ob, thr, is3d = (
-        scene[0],
-        scene[1],
-        scene[2],
-        scene[6],
-        scene[7],
-        scene[10],
-        scene[14],
-        scene[15],
-    )
-    _walk(i, scene, grid, out_j[:0], out_j)
-    if scene[11]:  # self-pairs: each pair in input order (first, second), as the matrix does
-        oa = scene[5]
-        for k in range(out_j.shape[0]):
-            j = out_j[k]
-            if oa[i] < oa[j]:
-                out_v[k] = _value(kind, A, VA, i, A, VA, j, is3d, buf)
-            else:
-                out_v[k] = _value(kind, A, VA, j, A, VA, i, is3d, buf)
-    else:
-        _values(kind, A, VA, i, B, VB, out_j, out_v, is3d, buf)
-    n = 0
-    for k in range(out_j.shape[0]):
-        if out_v[k] > thr:
-            out_j[n] = ob[out_j[k]]
-            out_v[n] = out_v[k]
-            n += 1
-    return n
+@njit(cache=True, inline="always")
+def _insert(i, scene, grid, items, ends):
+    """Add b's row i to the growing grid (``items``, ``ends``): the cells that
+    :func:`build_grid` gave it, on its own level."""
+    levels, _, _, _, box_lo = grid
+    eb = scene[8]
+    lv = box_lo[i, 2]
+    gx, gy, s = levels[lv, 0], levels[lv, 1], levels[lv, 2]
+    nx, ny, c0 = int(levels[lv, 3]), int(levels[lv, 4]), int(levels[lv, 5])
+    cx1, cy1 = _cell(eb[i, X1], gx, s, nx), _cell(eb[i, Y1], gy, s, ny)
+    for cy in range(box_lo[i, 1], cy1 + 1):
+        for cx in range(box_lo[i, 0], cx1 + 1):
+            c = c0 + cy * nx + cx
+            items[ends[c]] = i
+            ends[c] += 1
 
 
 @njit(cache=True)
@@ -490,69 +459,132 @@ def _prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, para
     return scene, build_grid(eb, base)
 
 
-@njit(cache=True)
-def _chunk_count(c, step, scene, grid, count):
-    """Candidates of a's rows c * step ... (spatial order) into count[row + 1]."""
-    n = count.shape[0] - 1
-    for i in range(c * step, min(n, (c + 1) * step)):
-        count[i + 1] = _walk(i, scene, grid, count[:0], count[:0])
+# Pairs per block of the vectorised IoU loop: two (16, 128) scratch arrays per chunk
+# (32 KiB), small enough to come from the allocator's free lists rather than fresh pages.
+LIST_BLOCK = 128
+
+# One row in this many (per chunk) is walked ahead to size the chunk's candidate buffer.
+SAMPLE_STRIDE = 16
 
 
 @njit(cache=True)
-def _chunk_fill(c, step, scene, grid, slot, slot_j, slot_v, kept, buf):
-    """Pairs above the threshold of the same rows, compacted at the front of their slots;
-    their number into kept[input row + 1] (self-pairs: kept[spatial row + 1])."""
+def _list_values(scene, ci, cj, n, out):
+    """IoU of the candidate pairs (a's row ci[k], b's row cj[k], spatial order), k < n, into
+    out[k]: the measure kernels' own per-pair code, so values are bit for bit the all-pairs
+    matrix entries. Rectangles take the vectorised loop over blocks of pairs."""
+    kind, A, VA, B, VB, is3d = scene[0], scene[1], scene[2], scene[6], scene[7], scene[15]
+    if kind == RECT:
+        PT = np.empty((RECT_COLUMNS, LIST_BLOCK))
+        QT = np.empty((RECT_COLUMNS, LIST_BLOCK))
+        rect_list_iou(A, ci, B, cj, n, is3d, out, PT, QT)
+        return
+    buf = _scratch(VA, VB)
     oa, same = scene[5], scene[11]
-    n = slot.shape[0] - 1
+    for k in range(n):
+        i, j = ci[k], cj[k]
+        if same and oa[j] < oa[i]:  # self-pairs: each pair in input order, as the matrix
+            i, j = j, i
+        out[k] = _value(kind, A, VA, i, B, VB, j, is3d, buf)
+
+
+@njit(cache=True)
+def _chunk_estimate(c, step, scene, grid, margin, est):
+    """Room for the candidates of a's rows c * step ...: those of every SAMPLE_STRIDE-th
+    row, scaled up by ``margin``, plus 64, into est[c]. Only sizes a buffer: a chunk that
+    overflows it is walked again with exact room."""
+    n = scene[1].shape[0]
+    cell_ptr, items = grid[2], grid[3]
+    none = cell_ptr[:0]
+    lo, hi = c * step, min(n, (c + 1) * step)
+    found = 0
+    for i in range(lo, hi, SAMPLE_STRIDE):
+        found += _walk(i, scene, grid, items, cell_ptr[1:], False, none)
+    est[c] = int(margin * found * SAMPLE_STRIDE) + 64 if hi > lo else 0
+
+
+@njit(cache=True)
+def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got):
+    """The pairs of a's rows c * step ... (spatial order) with IoU above the threshold:
+    candidates from one walk each into ci, cj [lo, hi), all of them counted into need[c];
+    when they fit, their IoU into cv, and the pairs above the threshold compacted to the
+    front, their number into got[c]."""
+    ci, cj, cv = ci[lo:hi], cj[lo:hi], cv[lo:hi]
+    n = scene[1].shape[0]
+    cell_ptr, items = grid[2], grid[3]
+    cap = cj.shape[0]
+    pos = 0
     for i in range(c * step, min(n, (c + 1) * step)):
-        lo, hi = slot[i], slot[i + 1]
-        if hi > lo:
-            r = i if same else oa[i]
-            kept[r + 1] = _fill(i, scene, grid, slot_j[lo:hi], slot_v[lo:hi], buf)
+        m = _walk(i, scene, grid, items, cell_ptr[1:], False, cj[min(pos, cap) :])
+        for k in range(pos, min(pos + m, cap)):
+            ci[k] = i
+        pos += m
+    need[c] = pos
+    if pos > cap:
+        return
+    _list_values(scene, ci, cj, pos, cv)
+    thr = scene[14]
+    kept = 0
+    for k in range(pos):
+        if cv[k] > thr:
+            ci[kept], cj[kept], cv[kept] = ci[k], cj[k], cv[k]
+            kept += 1
+    got[c] = kept
 
 
 @njit(cache=True)
-def _gather(scene, slot, slot_j, slot_v, kept):
-    """Exact-size outputs from the per-row slots (spatial order), in input order; second
-    sorted within a row."""
-    oa = scene[5]
-    n = oa.shape[0]
-    where = np.empty(n, np.int64)
-    for i in range(n):
-        where[oa[i]] = i
-    for r in range(n):
-        kept[r + 1] += kept[r]
-    total = kept[n]
-    first = np.empty(total, np.int64)
-    second = np.empty(total, np.int64)
-    iou = np.empty(total)
-    for r in range(n):
-        p, q = kept[r], kept[r + 1]
-        if q == p:
-            continue
-        lo = slot[where[r]]
-        for k in range(q - p):
-            first[p + k] = r
-            second[p + k] = slot_j[lo + k]
-            iou[p + k] = slot_v[lo + k]
-        if q - p > 1:
-            _sort_small(second[p:q], iou[p:q])
-    return first, second, iou
+def _chunk_room(est):
+    """Each chunk's buffer span [lo[c], hi[c]) for the room ``est[c]``, and buffers of the
+    total size for ci, cj (int64) and cv (float64)."""
+    chunks = est.shape[0]
+    lo = np.zeros(chunks, np.int64)
+    hi = np.zeros(chunks, np.int64)
+    end = 0
+    for c in range(chunks):
+        lo[c] = end
+        end += est[c]
+        hi[c] = end
+    return lo, hi, np.empty(end, np.int64), np.empty(end, np.int64), np.empty(end)
 
 
 @njit(cache=True)
-def _gather_same(scene, slot, slot_j, slot_v, kept):
-    """Self-pairs: the slots of spatial row i hold (partner's input row, IoU) of pairs met
-    from i; each pair goes to the row of its smaller input index, second sorted within a
-    row (a counting scatter: exact-size outputs, no pair list sort)."""
-    oa = scene[5]
+def _regrow(lo, hi, need, ci, cj, cv):
+    """After a pass in which some chunks overflowed (need[c] > hi[c] - lo[c]): buffers with
+    exactly the room they need at the end, the other chunks' pairs copied over. Returns
+    (ci, cj, cv, redo): redo[c] for the chunks to walk again."""
+    redo = need > hi - lo
+    extra = 0
+    for c in range(need.shape[0]):
+        if redo[c]:
+            extra += need[c]
+    if extra == 0:
+        return ci, cj, cv, redo
+    end = ci.shape[0]
+    ci2 = np.empty(end + extra, np.int64)
+    cj2 = np.empty(end + extra, np.int64)
+    cv2 = np.empty(end + extra)
+    ci2[:end], cj2[:end], cv2[:end] = ci, cj, cv
+    for c in range(need.shape[0]):
+        if redo[c]:
+            lo[c], hi[c] = end, end + need[c]
+            end += need[c]
+    return ci2, cj2, cv2, redo
+
+
+@njit(cache=True)
+def _gather(scene, ci, cj, cv, lo, got):
+    """Exact-size outputs (first, second, iou) in input order from the chunks' pairs (a's
+    and b's spatial rows, chunk c's at ci[lo[c]:lo[c] + got[c]]), sorted by (first,
+    second): a counting scatter by first (for self-pairs the smaller input row of the
+    two), then a short sort within each row."""
+    oa, ob, same = scene[5], scene[10], scene[11]
     n = oa.shape[0]
     ptr = np.zeros(n + 1, np.int64)
-    for i in range(n):
-        me = oa[i]
-        lo = slot[i]
-        for k in range(kept[i + 1]):
-            ptr[min(me, slot_j[lo + k]) + 1] += 1
+    for c in range(got.shape[0]):
+        for k in range(lo[c], lo[c] + got[c]):
+            r = oa[ci[k]]
+            if same:
+                r = min(r, ob[cj[k]])
+            ptr[r + 1] += 1
     for r in range(n):
         ptr[r + 1] += ptr[r]
     total = ptr[n]
@@ -560,17 +592,16 @@ def _gather_same(scene, slot, slot_j, slot_v, kept):
     second = np.empty(total, np.int64)
     iou = np.empty(total)
     fill = ptr[:-1].copy()
-    for i in range(n):
-        me = oa[i]
-        lo = slot[i]
-        for k in range(kept[i + 1]):
-            q = slot_j[lo + k]
-            r = min(me, q)
-            p = fill[r]
-            first[p] = r
-            second[p] = max(me, q)
-            iou[p] = slot_v[lo + k]
-            fill[r] = p + 1
+    for c in range(got.shape[0]):
+        for k in range(lo[c], lo[c] + got[c]):
+            p, q = oa[ci[k]], ob[cj[k]]
+            if same and q < p:
+                p, q = q, p
+            d = fill[p]
+            first[d] = p
+            second[d] = q
+            iou[d] = cv[k]
+            fill[p] = d + 1
     for r in range(n):
         if ptr[r + 1] - ptr[r] > 1:
             _sort_small(second[ptr[r] : ptr[r + 1]], iou[ptr[r] : ptr[r + 1]])
@@ -594,52 +625,55 @@ def _sort_small(keys, values):
         keys[q + 1], values[q + 1] = k, v
 
 
-@njit(cache=True)
-def _slots(count):
-    for i in range(count.shape[0] - 1):
-        count[i + 1] += count[i]
-    total = count[-1]
-    return np.empty(total, np.int64), np.empty(total)
-
-
 @njit(cache=True, parallel=True)
-def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, chunks):
+def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, chunks, margin=1.25):
     """Pairs (first, second, iou) with IoU > thr, sorted by (first, second), of prepared
     boxes A (rows; VA vertices for POLY, else unused) and B; ``same``: B is A and only
-    first < second. ``labels_*``: int64 codes, or empty arrays for no labels.
+    first < second. ``labels_*``: int64 codes, or empty arrays for no labels. ``margin``:
+    room for candidates over the sampled estimate (tests pass 0 to force the redo path).
 
-    Two passes over the grid: count the candidates of each row, then compute their IoU
-    into per-row slots keeping those above thr; one copy gives exactly sized outputs.
+    One walk per row over the grid: each chunk of rows (spatial order) writes its
+    candidates into its own buffer, sized by walking a sample of its rows first, then
+    measures them (rectangles: the vectorised loop) and keeps those above thr; a chunk
+    that overflowed its buffer is redone with exact room. Measured on self-pairs of 50 000
+    rotated boxes: the former count-then-fill passes walked the grid twice per row.
     Memory grows with the number of candidates (extents overlapping, IoU bound above thr).
     """
     scene, grid = _prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, True)
     n = A.shape[0]
     step = (n + chunks - 1) // chunks
-    count = np.zeros(n + 1, np.int64)
+    est = np.zeros(chunks, np.int64)
     for c in prange(chunks):
-        _chunk_count(c, step, scene, grid, count)
-    slot_j, slot_v = _slots(count)
-    kept = np.zeros(n + 1, np.int64)
+        _chunk_estimate(c, step, scene, grid, margin, est)
+    lo, hi, ci, cj, cv = _chunk_room(est)
+    need = np.zeros(chunks, np.int64)
+    got = np.zeros(chunks, np.int64)
     for c in prange(chunks):
-        _chunk_fill(c, step, scene, grid, count, slot_j, slot_v, kept, _scratch(VA, VB))
-    if same:
-        return _gather_same(scene, count, slot_j, slot_v, kept)
-    return _gather(scene, count, slot_j, slot_v, kept)
+        _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo[c], hi[c], need, got)
+    ci, cj, cv, redo = _regrow(lo, hi, need, ci, cj, cv)
+    for c in prange(chunks):
+        if redo[c]:
+            _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo[c], hi[c], need, got)
+    return _gather(scene, ci, cj, cv, lo, got)
 
 
 @njit(cache=True)
-def scene_pairs_serial(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, chunks):
+def scene_pairs_serial(
+    kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, chunks, margin=1.25
+):
+    """:func:`scene_pairs` on one thread (one chunk)."""
     scene, grid = _prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d)
     n = A.shape[0]
-    count = np.zeros(n + 1, np.int64)
-    buf = _scratch(VA, VB)
-    _chunk_count(0, n, scene, grid, count)
-    slot_j, slot_v = _slots(count)
-    kept = np.zeros(n + 1, np.int64)
-    _chunk_fill(0, n, scene, grid, count, slot_j, slot_v, kept, buf)
-    if same:
-        return _gather_same(scene, count, slot_j, slot_v, kept)
-    return _gather(scene, count, slot_j, slot_v, kept)
+    est = np.zeros(1, np.int64)
+    _chunk_estimate(0, n, scene, grid, margin, est)
+    lo, hi, ci, cj, cv = _chunk_room(est)
+    need = np.zeros(1, np.int64)
+    got = np.zeros(1, np.int64)
+    _chunk_pairs(0, n, scene, grid, ci, cj, cv, lo[0], hi[0], need, got)
+    ci, cj, cv, redo = _regrow(lo, hi, need, ci, cj, cv)
+    if redo[0]:
+        _chunk_pairs(0, n, scene, grid, ci, cj, cv, lo[0], hi[0], need, got)
+    return _gather(scene, ci, cj, cv, lo, got)
 
 
 @njit(cache=True)
@@ -647,14 +681,21 @@ def suppress_hard(kind, A, VA, labels, order, thr, is3d, limit):
     """Greedy hard suppression, lazily: walk ``order`` (input rows, best first); a box is
     kept unless an already kept box overlaps it with IoU > thr, found through the grid.
     IoU is computed only between a box and the kept boxes near it, and a box stops at the
-    first kept box that suppresses it. Stops after ``limit`` kept boxes (< 0: no limit)."""
+    first kept box that suppresses it. Stops after ``limit`` kept boxes (< 0: no limit).
+
+    The walks read a grid that holds the kept boxes only: each kept box is added to its
+    cells (the static grid's layout, filled as boxes are kept). Measured on 10 000
+    clustered detections: walks over the full grid with a per-item "is it kept" test
+    took 2.3 ms before any IoU (the test mispredicts), this one a fraction of it."""
     scene, grid = _prepare_scene(kind, A, VA, A, VA, True, labels, labels, thr, is3d)
     A, VA, oa = scene[1], scene[2], scene[5]
     n = oa.shape[0]
     where = np.empty(n, np.int64)
     for i in range(n):
         where[oa[i]] = i
-    flag = np.zeros(n, np.int64)  # kept, in spatial order
+    cell_ptr = grid[2]
+    items = np.empty(grid[3].shape[0], np.int64)  # kept boxes, cell by cell
+    ends = cell_ptr[:-1].copy()  # end of each cell's kept boxes in ``items``
     buf = _scratch(VA, VA)
     near = np.empty(64, np.int64)
     kept = np.empty(order.shape[0], np.int64)
@@ -663,20 +704,18 @@ def suppress_hard(kind, A, VA, labels, order, thr, is3d, limit):
         if nk == limit:
             break
         i = where[order[p]]
-        m = 0
-        if nk > 0:
-            m = _walk(i, scene, grid, flag, near)
+        m = _walk(i, scene, grid, items, ends, True, near)
         suppressed = False
         if m > 0:
             if m > near.shape[0]:  # rare: more kept neighbours than the buffer holds
                 near = np.empty(2 * m, np.int64)
-                _walk(i, scene, grid, flag, near)
+                _walk(i, scene, grid, items, ends, True, near)
             for k in range(m):
                 if _value(kind, A, VA, i, A, VA, near[k], is3d, buf) > thr:
                     suppressed = True
                     break
         if not suppressed:
-            flag[i] = 1
+            _insert(i, scene, grid, items, ends)
             kept[nk] = order[p]
             nk += 1
     return kept[:nk]
@@ -687,7 +726,8 @@ def candidate_count(kind, A, VA, B, VB, same, thr, is3d):
     """Number of candidate pairs (the index alone, no measure): for benchmarks."""
     none = np.zeros(0, np.int64)
     scene, grid = _prepare_scene(kind, A, VA, B, VB, same, none, none, thr, is3d)
-    n = A.shape[0]
-    count = np.zeros(n + 1, np.int64)
-    _chunk_count(0, n, scene, grid, count)
-    return count.sum()
+    cell_ptr, items = grid[2], grid[3]
+    total = 0
+    for i in range(A.shape[0]):
+        total += _walk(i, scene, grid, items, cell_ptr[1:], False, none)
+    return total
