@@ -32,29 +32,35 @@ from _util import peak_rss_mb, report  # noqa: E402
 import obbiou  # noqa: E402
 from obbiou.boxes import corners  # noqa: E402
 
-CPU: dict[str, float] = {}  # CPU seconds of the last timed() call
+CPU: dict[str, float] = {}  # CPU seconds and page faults per call of the last timed() call
 
 
 def timed(fn, repeat: int, warmup: int = 1) -> tuple[float, object]:
     """Median wall time of ``repeat`` calls of ``fn()`` after ``warmup`` calls, and the
     last result; the median CPU time of the process (all threads) goes to ``CPU["last"]``.
-    CPU time is far less disturbed than wall time when other jobs share the machine."""
+    CPU time is far less disturbed than wall time when other jobs share the machine. Minor
+    page faults per call (fresh memory pages touched) go to ``CPU["faults"]``."""
+    import resource
+
     for _ in range(warmup):
         fn()
     walls, cpus, out = [], [], None
+    faults = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
     for _ in range(repeat):
         c, t = time.process_time(), time.perf_counter()
         out = fn()
         walls.append(time.perf_counter() - t)
         cpus.append(time.process_time() - c)
     CPU["last"] = statistics.median(cpus)
+    CPU["faults"] = (resource.getrusage(resource.RUSAGE_SELF).ru_minflt - faults) / repeat
     return statistics.median(walls), out
 
 
-def cpu_line(ours_cpu: float, theirs_cpu: float) -> None:
+def cpu_line(ours_cpu: float, theirs_cpu: float, ours_faults: float) -> None:
     print(
         f"    CPU time: obbiou {ours_cpu * 1e3:.1f} ms (all threads), shapely "
-        f"{theirs_cpu * 1e3:.1f} ms, ratio {theirs_cpu / ours_cpu:.0f}x"
+        f"{theirs_cpu * 1e3:.1f} ms, ratio {theirs_cpu / ours_cpu:.0f}x; obbiou page faults "
+        f"per call: {ours_faults:.0f}"
     )
 
 
@@ -185,7 +191,7 @@ def main_runs(quick: bool) -> None:
     )
 
     t_ours, p = timed(lambda: obbiou.overlapping_pairs(a, b), 5)
-    c_ours = CPU["last"]
+    c_ours, f_ours = CPU["last"], CPU["faults"]
     t_shp, cnt = timed(lambda: shapely_pairs(a, b), 1, warmup=0)
     c_shp = CPU["last"]
     note = f"{len(p)} pairs, shapely finds {cnt}"
@@ -196,21 +202,21 @@ def main_runs(quick: bool) -> None:
         50,
         note,
     )
-    cpu_line(c_ours, c_shp)
+    cpu_line(c_ours, c_shp, f_ours)
 
     t_ours, p = timed(lambda: obbiou.overlapping_pairs(a), 5)
-    c_ours = CPU["last"]
+    c_ours, f_ours = CPU["last"], CPU["faults"]
     t_shp, cnt = timed(lambda: shapely_pairs(a, None), 1, warmup=0)
     c_shp = CPU["last"]
     report(
         f"self-pairs: the same {n} boxes", t_ours, t_shp, 50, f"{len(p)} pairs, shapely finds {cnt}"
     )
-    cpu_line(c_ours, c_shp)
+    cpu_line(c_ours, c_shp, f_ours)
 
     nd = 2_000 if quick else 10_000
     dets, scores = detections(nd)
     t_ours, k = timed(lambda: obbiou.suppress(dets, scores, max_iou=0.5), 9)
-    c_ours = CPU["last"]
+    c_ours, f_ours = CPU["last"], CPU["faults"]
     t_shp, kk = timed(lambda: shapely_greedy(dets, scores, 0.5), 1, warmup=0)
     c_shp = CPU["last"]
     same = "same kept boxes" if np.array_equal(k.indices, kk) else "kept boxes DIFFER"
@@ -221,7 +227,7 @@ def main_runs(quick: bool) -> None:
         60,
         f"kept {len(k)}, {same} as the shapely loop",
     )
-    cpu_line(c_ours, c_shp)
+    cpu_line(c_ours, c_shp, f_ours)
     t_soft, ks = timed(lambda: obbiou.suppress(dets, scores, decay="gaussian"), 5)
     print(
         f"soft (gaussian) suppression of the same: obbiou {t_soft * 1e3:.2f} ms "
@@ -231,7 +237,7 @@ def main_runs(quick: bool) -> None:
     nl = 4_000 if quick else 20_000
     lid, ls = lidar_proposals(nl)
     t_ours, k = timed(lambda: obbiou.suppress(lid, ls, max_iou=0.5), 5)
-    c_ours = CPU["last"]
+    c_ours, f_ours = CPU["last"], CPU["faults"]
     t_shp, kk = timed(lambda: shapely_greedy(lid, ls, 0.5, bev3d=True), 1, warmup=0)
     c_shp = CPU["last"]
     same = "same kept boxes" if np.array_equal(k.indices, kk) else "kept boxes DIFFER"
@@ -242,7 +248,7 @@ def main_runs(quick: bool) -> None:
         None,
         f"kept {len(k)}, {same} as the shapely loop",
     )
-    cpu_line(c_ours, c_shp)
+    cpu_line(c_ours, c_shp, f_ours)
 
 
 def scaling_one(n: int) -> dict:

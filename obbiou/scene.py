@@ -441,7 +441,8 @@ def suppress(
         from obbiou._kernels import sweep
 
         kind, pb, _ = _prepared(b, None)
-        order = np.argsort(-s, kind="stable")  # descending score, ties by input order
+        neg = -s
+        order = nms.stable_ties(neg, np.argsort(neg))  # descending score, ties: input order
         no_labels = np.zeros(0, np.int64)
         kept = sweep.suppress_hard(
             kind,

@@ -247,6 +247,26 @@ def test_hard_min_score_equals_filtering_first():
     assert len(everything) == 50
 
 
+@settings(max_examples=80, deadline=None)
+@given(
+    st.lists(
+        st.one_of(
+            st.sampled_from([0.0, -0.0, 0.25, 0.5, 1.0, -3.0]),
+            st.floats(-1e300, 1e300, allow_nan=False),
+        ),
+        max_size=400,
+    )
+)
+def test_score_order_equals_a_stable_sort(values):
+    # suppression's score order: numpy's quicksort argsort, then runs of equal scores put
+    # in index order; reference: numpy's stable (merge) argsort
+    from obbiou._kernels import nms
+
+    keys = np.array(values, dtype=np.float64)
+    order = nms.stable_ties(keys, np.argsort(keys))
+    np.testing.assert_array_equal(order, np.argsort(keys, kind="stable"))
+
+
 def test_ties_are_broken_by_input_order_deterministically():
     # five identical vessels with equal scores: the first row wins, whatever the run
     box = [50.0, 20.0, 30.0, 8.0, 0.4]
