@@ -17,6 +17,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from obbiou.scene import suppress
+from tests.strategies import FAR, FAR_SIZES, rotated_pair, upright_pair
 from tests.test_scene import make_scene, shapely_iou_matrix
 
 LAYOUTS = ("rotated", "axis", "polygon", "upright")
@@ -265,6 +266,66 @@ def test_score_order_equals_a_stable_sort(values):
     keys = np.array(values, dtype=np.float64)
     order = nms.stable_ties(keys, np.argsort(keys))
     np.testing.assert_array_equal(order, np.argsort(keys, kind="stable"))
+
+
+def exact_iou(a: np.ndarray, b: np.ndarray) -> Fraction:
+    """Exact rational IoU of two rotated (or upright: footprint x z) boxes, from their
+    float corners, by exact Sutherland-Hodgman clipping (tests/test_exact.py)."""
+    from obbiou.boxes import corners
+    from tests.test_exact import exact_measures
+
+    if a.shape[-1] == 5:
+        return exact_measures(corners(a), corners(b))[1]
+    fa, fb = corners(a[[0, 1, 3, 4, 6]]), corners(b[[0, 1, 3, 4, 6]])
+    inter, _ = exact_measures(fa, fb)
+    za = (Fraction(a[2]) - Fraction(a[5]) / 2, Fraction(a[2]) + Fraction(a[5]) / 2)
+    zb = (Fraction(b[2]) - Fraction(b[5]) / 2, Fraction(b[2]) + Fraction(b[5]) / 2)
+    dz = max(min(za[1], zb[1]) - max(za[0], zb[0]), Fraction(0))
+    va = exact_measures(fa, fa)[0] * (za[1] - za[0])
+    vb = exact_measures(fb, fb)[0] * (zb[1] - zb[0])
+    union = va + vb - inter * dz
+    return inter * dz / union if union else Fraction(0)
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    pair=st.one_of(rotated_pair(), rotated_pair(centre=FAR, sizes=FAR_SIZES), upright_pair()),
+    thr=st.sampled_from([0.0, 0.1, 0.3, 0.5, 0.7, 0.9, 0.99]),
+)
+def test_cheap_iou_bounds_never_contradict_the_exact_iou(pair, thr):
+    # Hard suppression decides "IoU > thr" from cheap bounds where they suffice; the
+    # verdict must be the one the exact IoU gives, away from rounding of the threshold.
+    # Reference: exact rational arithmetic (fractions) on the boxes' float corners. (Not
+    # shapely here: hypothesis found a pair of squares sharing an edge, turned by -pi, for
+    # which shapely 2.2 reports the full square as their intersection.)
+    from obbiou._kernels.pairs import rect_iou_verdict
+    from obbiou.measures import prepare
+    from obbiou.shapes import read_boxes
+
+    a, b, _ = pair
+    layout = "upright" if a.shape[-1] == 7 else "rotated"
+    rows = prepare(read_boxes(np.stack([a, b]), layout)).rows
+    ref = exact_iou(a, b)
+    for i, j in ((0, 1), (1, 0)):
+        verdict = rect_iou_verdict(rows, i, rows, j, thr, layout == "upright")
+        if verdict == 1:
+            assert ref > thr - BAND
+        elif verdict == 0:
+            assert ref <= thr + BAND
+
+
+def test_cheap_iou_bounds_decide_clear_cases():
+    # clear cases on either side of the threshold are decided without the exact value: a
+    # box and a slightly moved and turned copy, and a box moved out by three quarters of
+    # its length
+    from obbiou._kernels.pairs import rect_iou_verdict
+    from obbiou.measures import prepare
+    from obbiou.shapes import read_boxes
+
+    boxes = [[0, 0, 20, 10, 0.3], [0.5, 0.2, 20, 10, 0.31], [15, 0, 20, 10, 0.3]]
+    rows = prepare(read_boxes(boxes)).rows
+    assert rect_iou_verdict(rows, 0, rows, 1, 0.5, False) == 1  # near duplicates
+    assert rect_iou_verdict(rows, 0, rows, 2, 0.5, False) == 0  # overlap a small part
 
 
 def test_ties_are_broken_by_input_order_deterministically():

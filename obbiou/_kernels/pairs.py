@@ -500,6 +500,76 @@ def rect_value(A, i, B, j, measure, is3d, buf):
     return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
 
 
+@njit(error_model="numpy", cache=True, inline="always")
+def _overlap(lo0, hi0, lo1, hi1):
+    return max(min(hi0, hi1) - max(lo0, lo1), 0.0)
+
+
+@njit(error_model="numpy", cache=True)
+def rect_iou_verdict(A, i, B, j, thr, is3d):
+    """Whether IoU(A[i], B[j]) > thr for prepared rectangles, from cheap bounds: 1 (above),
+    0 (not above) or -1 (undecided: compute it). For hard suppression, which needs only
+    the verdict.
+
+    In A[i]'s frame (p = [-hw, hw] x [-hh, hh]; q the other box) the intersection lies
+    within p and q's bounding box there (upper bound), and contains the intersection of p
+    with the largest rectangle aligned with p, centred on q's centre, that the two
+    constraints |c| u + |s| v <= q.hw, |s| u + |c| v <= q.hh put inside q (c, s: cosine
+    and sine of the angle between them; lower bound). With union = sa + sb - inter, a
+    bound on inter bounds the IoU. Margins of 1e-9 (relative) keep every verdict the
+    one the exact value gives: rounding of either is ~1e-15.
+    """
+    pcx, pcy, phw, phh, pc, ps = (
+        A[i, R_CX],
+        A[i, R_CY],
+        A[i, R_HW],
+        A[i, R_HH],
+        A[i, R_C],
+        A[i, R_S],
+    )
+    qcx, qcy, qhw, qhh, qc, qs = (
+        B[j, R_CX],
+        B[j, R_CY],
+        B[j, R_HW],
+        B[j, R_HH],
+        B[j, R_C],
+        B[j, R_S],
+    )
+    sa = A[i, R_SIZE]
+    sb = B[j, R_SIZE]
+    if not (sa > 0.0 and sb > 0.0):
+        return -1
+    dz = 1.0
+    if is3d:
+        dz = min(A[i, R_Z1], B[j, R_Z1]) - max(A[i, R_Z0], B[j, R_Z0])
+        if not dz > 0.0:
+            return -1
+    dx = qcx - pcx
+    dy = qcy - pcy
+    px = pc * dx + ps * dy
+    py = pc * dy - ps * dx
+    c = abs(qc * pc + qs * ps)
+    s = abs(qs * pc - qc * ps)
+    ex = c * qhw + s * qhh
+    ey = s * qhw + c * qhh
+    up = _overlap(-phw, phw, px - ex, px + ex) * _overlap(-phh, phh, py - ey, py + ey) * dz
+    up = up * (1.0 + 1e-9)
+    if up <= thr * (sa + sb - up):
+        return 0
+    det = c * c - s * s
+    if abs(det) < 0.25:  # near 45 degrees: no useful inscribed rectangle
+        return -1
+    u = (c * qhw - s * qhh) / det
+    v = (c * qhh - s * qhw) / det
+    if not (u > 0.0 and v > 0.0):
+        return -1
+    lo = _overlap(-phw, phw, px - u, px + u) * _overlap(-phh, phh, py - v, py + v) * dz
+    lo = lo * (1.0 - 1e-9)
+    if lo > thr * (sa + sb - lo):
+        return 1
+    return -1
+
+
 @njit(error_model="numpy", cache=True)
 def rect_row_fast(A, i, BT, m, out):
     """Intersection sizes of A[i] with every column of BT (transposed rows), or -1 for the
