@@ -431,7 +431,8 @@ def _cmd_suppress(args: argparse.Namespace) -> int:
     idx = np.concatenate(keep) if keep else np.zeros(0, dtype=np.int64)
     out = _table_frame(table.take(idx))
     out["score"] = np.concatenate(scores) if scores else np.zeros(0)
-    _emit(out, args.out, f"kept {len(out)} of {len(table)} boxes in {len(keep)} frames")
+    frames = f"{len(keep)} frame" + ("" if len(keep) == 1 else "s")
+    _emit(out, args.out, f"kept {len(out)} of {len(table)} boxes in {frames}")
     return 0
 
 
