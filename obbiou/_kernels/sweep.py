@@ -7,8 +7,8 @@ query spans, whatever its y, so on a 2-D scene of uniform density its cost grows
 N^1.5 (every row scans about sqrt(N) boxes of its strip). A grid touches only the few
 cells a box covers: cost ~ N + candidates. Measured on this machine with
 ``python bench/scene.py --index`` (candidate search only, self-pairs of rotated boxes
-8-40 px long at the density of 50 000 on a 10 000 px mosaic, 2 threads, busy machine):
-sweep 0.23 s vs grid 0.047 s at N = 5e4, 52.8 s vs 1.19 s at N = 1e6.
+8-40 px long at the density of 50 000 on a 10 000 px mosaic; the sweep on 2 threads, the
+grid on one): sweep 0.124 s vs grid 0.011 s at N = 5e4, 21.3 s vs 0.34 s at N = 1e6.
 
 One grid level per size class (cell size s0 * 2**L) keeps it robust when box sizes vary
 widely: every box belongs to the level whose cell is at least its own extent and is stored
