@@ -17,7 +17,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from obbiou.scene import suppress
-from tests.strategies import FAR, FAR_SIZES, rotated_pair, upright_pair
+from tests.strategies import FAR, FAR_SIZES, HUGE, TINY, rotated_pair, upright_pair
 from tests.test_scene import make_scene, shapely_iou_matrix
 
 LAYOUTS = ("rotated", "axis", "polygon", "upright")
@@ -289,7 +289,13 @@ def exact_iou(a: np.ndarray, b: np.ndarray) -> Fraction:
 
 @settings(max_examples=300, deadline=None)
 @given(
-    pair=st.one_of(rotated_pair(), rotated_pair(centre=FAR, sizes=FAR_SIZES), upright_pair()),
+    pair=st.one_of(
+        rotated_pair(),
+        rotated_pair(sizes=TINY),
+        rotated_pair(sizes=HUGE),
+        rotated_pair(centre=FAR, sizes=FAR_SIZES),
+        upright_pair(),
+    ),
     thr=st.sampled_from([0.0, 0.1, 0.3, 0.5, 0.7, 0.9, 0.99]),
 )
 def test_cheap_iou_bounds_never_contradict_the_exact_iou(pair, thr):
