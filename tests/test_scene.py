@@ -285,7 +285,7 @@ def test_parallel_and_serial_kernels_agree(monkeypatch):
 def test_chunks_that_outgrow_their_sampled_room_lose_nothing(parallel):
     # Each chunk of rows sizes its candidate buffer from a sample of its rows; with no
     # margin over the estimate, the dense chunks overflow and must be walked again with
-    # exact room. Reference: the public result (its own margin) and the dense matrix.
+    # exact room.
     from obbiou._kernels import sweep
     from obbiou.scene import _prepared, _vertices
     from obbiou.shapes import read_boxes
@@ -297,12 +297,14 @@ def test_chunks_that_outgrow_their_sampled_room_lose_nothing(parallel):
     kernel = sweep.scene_pairs if parallel else sweep.scene_pairs_serial
     v = _vertices(pa)
     first, second, iou = kernel(kind, pa.rows, v, pa.rows, v, True, none, none, 0.0, False, 4, 0.0)
-    want = overlapping_pairs(a)
-    assert len(want) > 4 * 64  # more candidates than the rooms hold without margin
+    got = Pairs(first, second, iou, len(a), len(a))
+    assert len(got) > 4 * 64  # more candidates than the rooms hold without margin
+    # reference: shapely's dense IoU matrix, thresholded
+    check_against_dense(got, shapely_iou_matrix(a, a, "rotated"), 0.0, self_pairs=True)
+    want = overlapping_pairs(a)  # and the same as with room to spare
     np.testing.assert_array_equal(first, want.first)
     np.testing.assert_array_equal(second, want.second)
     np.testing.assert_array_equal(iou, want.iou)
-    check_against_own_matrix(want, a, a, "rotated", 0.0, self_pairs=True)
 
 
 @pytest.mark.parametrize("layout", LAYOUTS)

@@ -217,19 +217,15 @@ def _extents(kind, R, is3d):
 @njit(cache=True, inline="always")
 def _extent_row(kind, R, i, is3d, ext, size):
     """Padded extent and size of prepared row ``R[i]`` into ``ext[i]``, ``size[i]``."""
+    ext[i, X0], ext[i, Y0], ext[i, X1], ext[i, Y1] = _padded_xy(kind, R, i)
     if kind == AXIS:
-        x0, y0, x1, y1 = R[i, AX_X0], R[i, AX_Y0], R[i, AX_X1], R[i, AX_Y1]
         z0, z1, s = R[i, AX_Z0], R[i, AX_Z1], R[i, AX_SIZE]
     elif kind == RECT:
-        x0, y0, x1, y1 = R[i, R_XMIN], R[i, R_YMIN], R[i, R_XMAX], R[i, R_YMAX]
         z0, z1, s = R[i, R_Z0], R[i, R_Z1], R[i, R_SIZE]
     else:
-        x0, y0, x1, y1 = R[i, P_XMIN], R[i, P_YMIN], R[i, P_XMAX], R[i, P_YMAX]
         z0, z1, s = -1.0, 1.0, R[i, P_AREA]
     if not is3d:
         z0, z1 = -1.0, 1.0
-    ext[i, X0], ext[i, X1] = _pad(x0, x1)
-    ext[i, Y0], ext[i, Y1] = _pad(y0, y1)
     ext[i, Z0], ext[i, Z1] = _pad(z0, z1)
     size[i] = s
 
