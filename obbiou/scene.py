@@ -438,12 +438,12 @@ def suppress(
     if len(b) == 0 or cap == 0:
         return Kept(np.zeros(0, np.int64), np.zeros(0))
 
+    neg = -s
+    order = nms.stable_ties(neg, np.argsort(neg))  # descending score, ties: input order
     if decay is None:
         from obbiou._kernels import sweep
 
         kind, pb, _ = _prepared(b, None)
-        neg = -s
-        order = nms.stable_ties(neg, np.argsort(neg))  # descending score, ties: input order
         no_labels = np.zeros(0, np.int64)
         kept = sweep.suppress_hard(
             kind,
@@ -460,7 +460,9 @@ def suppress(
         # Linear decay touches only pairs above max_iou; gaussian every overlapping pair.
         first, second, iou = _pairs(b, None, thr if decay == "linear" else 0.0, codes)
         ptr, nbr, val = nms.neighbours(len(b), first, second, iou)
-        kept, kept_scores = nms.soft(s, ptr, nbr, val, decay == "gaussian", thr, sig, floor, cap)
+        kept, kept_scores = nms.soft(
+            s, order, ptr, nbr, val, decay == "gaussian", thr, sig, floor, cap
+        )
     return Kept(rows[kept].astype(np.int64), kept_scores)
 
 

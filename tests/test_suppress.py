@@ -122,6 +122,22 @@ def test_soft_equals_algorithm_1_of_bodla(
     assert np.all(np.diff(kept.scores) <= 0)
 
 
+@pytest.mark.parametrize("decay", ["linear", "gaussian"])
+@pytest.mark.parametrize("min_score", [0.0, 0.2])
+def test_soft_on_a_crowded_scene_equals_algorithm_1(decay, min_score):
+    # 400 boxes in tight clusters: many decays per selection and, with min_score, many
+    # boxes dropped from the middle of the selection order. Reference: Algorithm 1 of
+    # Bodla et al. (2017) on shapely's IoU matrix.
+    rng = np.random.default_rng(17)
+    boxes = make_scene(rng, "clusters", "rotated", 400)
+    scores = rng.random(400)
+    iou = shapely_iou_matrix(boxes, boxes, "rotated")
+    kept = suppress(boxes, scores, decay=decay, max_iou=0.3, min_score=min_score)
+    ref = soft_reference(iou, scores, decay, 0.3, 0.5, min_score)
+    assert kept.indices.tolist() == [i for i, _ in ref]
+    np.testing.assert_allclose(kept.scores, [v for _, v in ref], rtol=1e-9, atol=1e-12)
+
+
 # Hand-worked example (axis boxes, invented): exact IoUs by rational arithmetic.
 A, B, C, D = [0, 0, 10, 10], [0, 0, 10, 8], [5, 0, 15, 10], [20, 0, 30, 10]
 HAND = np.array([A, B, C, D], float)
