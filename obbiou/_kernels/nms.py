@@ -1,9 +1,10 @@
-"""Non-maximum suppression over a neighbour list: hard greedy and soft (decaying) variants.
+"""Soft (decaying) non-maximum suppression over a neighbour list, and the score order.
 
 Numba kernels only: no validation, no Python objects. The public layer
 (:func:`obbiou.scene.suppress`) finds the overlapping pairs with the spatial index and hands
 them here as a symmetric CSR neighbour list, so the cost follows the number of overlapping
-pairs, never N^2.
+pairs, never N^2. Hard suppression needs no pair list: it runs on the grid itself
+(:func:`obbiou._kernels.sweep.suppress_hard`).
 """
 
 from __future__ import annotations
@@ -50,28 +51,6 @@ def stable_ties(keys, order):
             order[a:b] = np.sort(order[a:b])
         a = b
     return order
-
-
-@njit(cache=True)
-def hard(order, ptr, nbr, limit):
-    """Greedy suppression: walk ``order`` (best first); keep a box unless a kept box is its
-    neighbour, and then remove all its neighbours. Stops after ``limit`` kept boxes
-    (limit < 0: no limit). The neighbour list holds only pairs above the IoU threshold."""
-    n = ptr.shape[0] - 1
-    removed = np.zeros(n, np.bool_)
-    kept = np.empty(order.shape[0], np.int64)
-    nk = 0
-    for p in range(order.shape[0]):
-        if nk == limit:
-            break
-        i = order[p]
-        if removed[i]:
-            continue
-        kept[nk] = i
-        nk += 1
-        for k in range(ptr[i], ptr[i + 1]):
-            removed[nbr[k]] = True
-    return kept[:nk]
 
 
 @njit(cache=True, inline="always")
