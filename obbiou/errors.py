@@ -1,0 +1,111 @@
+"""The errors obbiou raises for bad input and for failed cluster tasks.
+
+Bad input is an :class:`InvalidInput` (a ``ValueError``) that carries where the problem is
+as fields, so that callers never parse the message: the argument, the row and the column,
+and the reason. Its ``str()`` is the one line users read, e.g. ``a[17]: negative width
+-3.0``. A bad table adds the file (or other source) and the line: :class:`InvalidTable`,
+``det.csv, line 4, column 'width': not a number: 'wide'``.
+
+Anything else that goes wrong inside obbiou is a bug and surfaces as its own exception
+type, never as one of these; a task that failed on a cluster worker is :class:`TaskFailed`.
+
+Examples
+--------
+>>> err = InvalidInput("a", "negative width -3.0", row=17)
+>>> str(err), err.argument, err.row, err.column
+('a[17]: negative width -3.0', 'a', 17, None)
+>>> isinstance(err, ValueError)
+True
+>>> str(InvalidTable("det.csv", "not a number: 'wide'", line=4, column="width"))
+"det.csv, line 4, column 'width': not a number: 'wide'"
+>>> str(InvalidInput("min_iou", "expected a number in [0, 1], got 2.0"))
+'min_iou: expected a number in [0, 1], got 2.0'
+"""
+
+from __future__ import annotations
+
+__all__ = ["InvalidInput", "InvalidTable", "TaskFailed"]
+
+
+class InvalidInput(ValueError):
+    """Bad input: an argument (and, where it applies, a row and a column) and the reason.
+
+    Parameters
+    ----------
+    argument : str
+        The argument's name as the caller wrote it (``"a"``, ``"scores"``, ``"labels"``).
+    reason : str
+        What is wrong, in words, without the location.
+    row : int, optional
+        The first offending row (0-based, as numpy indexes it).
+    column : str or int, optional
+        The offending column: a name for tables, a position for arrays.
+    """
+
+    def __init__(
+        self, argument: str, reason: str, *, row: int | None = None, column: str | int | None = None
+    ) -> None:
+        self.argument = argument
+        self.reason = reason
+        self.row = None if row is None else int(row)
+        self.column = column
+        super().__init__(self._where() + ": " + reason)
+
+    def _where(self) -> str:
+        where = self.argument if self.row is None else f"{self.argument}[{self.row}]"
+        if self.column is not None:
+            where += f", column {self.column!r}"
+        return where
+
+    def __str__(self) -> str:
+        return self._where() + ": " + self.reason
+
+    def __reduce__(self):  # keep the fields across pickling (cluster tasks)
+        return (_rebuild, (type(self), self.__dict__.copy()))
+
+
+class InvalidTable(InvalidInput):
+    """Bad input in a table: the source (file name or ``"truth"``/``"detections"`` for
+    in-memory tables), the line of a file or the row of a table, the column, the reason.
+
+    ``line`` counts as editors do (1-based, the header is line 1); ``row`` is the 0-based
+    data row. Either may be None when the problem is not in one row (a missing column).
+    """
+
+    def __init__(
+        self,
+        source: str,
+        reason: str,
+        *,
+        line: int | None = None,
+        row: int | None = None,
+        column: str | int | None = None,
+    ) -> None:
+        self.source = str(source)
+        self.line = None if line is None else int(line)
+        super().__init__(self.source, reason, row=row, column=column)
+
+    def _where(self) -> str:
+        where = self.source
+        if self.line is not None:
+            where += f", line {self.line}"
+        elif self.row is not None:
+            where += f", row {self.row}"
+        if self.column is not None:
+            where += f", column {self.column!r}"
+        return where
+
+
+class TaskFailed(RuntimeError):
+    """A task of a distributed run failed for a reason other than bad input.
+
+    The message names the task (partition, file) and the original error, whose traceback
+    is chained as ``__cause__`` when it could be carried back from the worker.
+    """
+
+
+def _rebuild(cls: type, state: dict) -> InvalidInput:
+    err = cls.__new__(cls)
+    err.__dict__.update(state)
+    ValueError.__init__(err, str(err))
+    return err
