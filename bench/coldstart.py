@@ -1,0 +1,261 @@
+"""Cold start: what a first call costs in compiling, in fresh processes with an empty cache.
+
+Every row runs in a fresh Python process with an empty ``NUMBA_CACHE_DIR``, so it pays
+every compile a new user, a CI run or a fresh Dask worker pays. Times are printed in
+seconds and in units of numba's compile of a trivial ``prange`` kernel, measured in a fresh
+process of the same run (the first parallel kernel of a process, thread-pool start
+included), so the multiples hold from machine to machine.
+
+    python bench/coldstart.py              # the table (about 4 minutes on 2 cores)
+    python bench/coldstart.py --profile    # and the compile time of every kernel per row
+    python bench/coldstart.py --only iou   # rows whose name contains "iou"
+
+The kernel table lists, per row, each compiled function (``module.function``) with its
+exclusive compile time (its own typing, lowering and LLVM work, without the functions it
+calls) and its inclusive time; ``n`` counts compiles (two means two signatures).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+
+from _util import ROOT
+
+# The snippet each row runs after ``import obbiou`` (timed from the start of the snippet).
+# ``first`` is what the goal counts; every row ends by printing its timings as JSON.
+TRIVIAL_PARALLEL = """
+from numba import njit, prange
+@njit(parallel=True)
+def f(n):
+    s = 0.0
+    for i in prange(n):
+        s += i
+    return s
+t0 = time.perf_counter(); f(10); first = time.perf_counter() - t0
+"""
+
+TRIVIAL_SERIAL = """
+from numba import njit
+@njit
+def f(n):
+    s = 0.0
+    for i in range(n):
+        s += i
+    return s
+t0 = time.perf_counter(); f(10); first = time.perf_counter() - t0
+"""
+
+FIRST_IOU = """
+import numpy as np, obbiou
+rng = np.random.default_rng(0)
+def boxes(n):
+    if LAYOUT == "rotated":
+        b = rng.uniform(0, 10, (n, 5)); b[:, 2:4] += 1; return b
+    if LAYOUT == "upright":
+        b = rng.uniform(0, 10, (n, 7)); b[:, 3:6] += 1; return b
+    c = rng.uniform(0, 10, (n, 1, 2)); t = np.linspace(0, 2 * np.pi, 5)[:-1]
+    return c + np.stack([np.cos(t), np.sin(t)], -1)[None] * 2
+small, big = boxes(3), boxes(300)
+t0 = time.perf_counter(); obbiou.iou(small, small); first = time.perf_counter() - t0
+t0 = time.perf_counter(); obbiou.iou(big, big); extra = time.perf_counter() - t0
+"""
+
+FIRST_PAIRS = """
+import numpy as np, obbiou
+rng = np.random.default_rng(0)
+b = rng.uniform(0, 100, (50, 5)); b[:, 2:4] += 1
+t0 = time.perf_counter(); obbiou.overlapping_pairs(b); first = time.perf_counter() - t0
+b = rng.uniform(0, 3000, (30000, 5)); b[:, 2:4] += 5
+t0 = time.perf_counter(); obbiou.overlapping_pairs(b); extra = time.perf_counter() - t0
+"""
+
+FIRST_SUPPRESS = """
+import numpy as np, obbiou
+rng = np.random.default_rng(0)
+b = rng.uniform(0, 100, (50, 5)); b[:, 2:4] += 5
+t0 = time.perf_counter(); obbiou.suppress(b, rng.random(50)); first = time.perf_counter() - t0
+b = rng.uniform(0, 3000, (30000, 5)); b[:, 2:4] += 5
+t0 = time.perf_counter(); obbiou.suppress(b, rng.random(30000)); extra = time.perf_counter() - t0
+"""
+
+FIRST_EVALUATE = """
+import numpy as np
+from obbiou.evaluation import evaluate
+rng = np.random.default_rng(0)
+n = 40
+truth = {"frame": rng.integers(0, 4, n), "label": rng.choice(["vessel", "crane"], n),
+         "cx": rng.uniform(0, 500, n), "cy": rng.uniform(0, 500, n),
+         "width": rng.uniform(20, 60, n), "height": rng.uniform(8, 20, n),
+         "angle": rng.uniform(-1.5, 1.5, n)}
+dets = {k: (v + rng.normal(0, 1, n) if k in ("cx", "cy") else v) for k, v in truth.items()}
+dets["score"] = rng.random(n)
+t0 = time.perf_counter(); evaluate(truth, dets, iou="0.5:0.95:0.05"); first = time.perf_counter() - t0
+"""
+
+WARM_IMPORT = """
+import numpy as np
+t_numpy = time.perf_counter() - T_START
+import obbiou
+obbiou.iou([0, 0, 2, 2, 0.3], [1, 0, 2, 2, 0.0])
+first = time.perf_counter() - T_START
+"""
+
+
+def _snippet(body: str, layout: str = "", profile: bool = False) -> str:
+    """The code of one row: timers, an optional compile recorder, the body, JSON out."""
+    head = f"""
+import time
+T_START = time.perf_counter()
+import json, sys, collections
+LAYOUT = {layout!r}
+extra = 0.0
+kernels = {{}}
+"""
+    if profile:
+        head += textwrap.dedent(
+            """
+            from numba.core import event
+            _stack, _incl, _excl, _count = [], collections.Counter(), collections.Counter(), collections.Counter()
+            class _Listener(event.Listener):
+                def on_start(self, ev):
+                    f = ev.data["dispatcher"].py_func
+                    _stack.append([time.perf_counter(), 0.0, f.__module__.split(".")[-1] + "." + f.__name__])
+                def on_end(self, ev):
+                    t0, child, name = _stack.pop()
+                    d = time.perf_counter() - t0
+                    _incl[name] += d; _excl[name] += d - child; _count[name] += 1
+                    if _stack:
+                        _stack[-1][1] += d
+            event.register("numba:compile", _Listener())
+            """
+        )
+    tail = """
+if "_excl" in globals():
+    kernels = {k: [_excl[k], _incl[k], _count[k]] for k in _excl}
+print("RESULT " + json.dumps({"first": first, "extra": extra, "kernels": kernels,
+                              "numpy": globals().get("t_numpy", 0.0)}))
+"""
+    return head + textwrap.dedent(body) + tail
+
+
+def run_row(body: str, layout: str = "", profile: bool = False, cache: str | None = None) -> dict:
+    """Run one row in a fresh process; a fresh empty cache unless ``cache`` is given."""
+    own = cache is None
+    cache = cache or tempfile.mkdtemp(prefix="obbiou-cold-")
+    env = dict(os.environ, NUMBA_CACHE_DIR=cache)
+    env["PYTHONPATH"] = ROOT + os.pathsep + env.get("PYTHONPATH", "")
+    try:
+        done = subprocess.run(
+            [sys.executable, "-c", _snippet(body, layout, profile)],
+            capture_output=True,
+            text=True,
+            env=env,
+            cwd=ROOT,
+        )
+    finally:
+        if own:
+            shutil.rmtree(cache, ignore_errors=True)
+    for line in done.stdout.splitlines():
+        if line.startswith("RESULT "):
+            return json.loads(line[7:])
+    raise RuntimeError(f"row failed:\n{done.stdout}\n{done.stderr}")
+
+
+def run_command(args: list[str]) -> float:
+    """Wall time of ``python -m obbiou ARGS`` in a fresh process with an empty cache."""
+    cache = tempfile.mkdtemp(prefix="obbiou-cold-")
+    out = tempfile.mkdtemp(prefix="obbiou-cold-out-")
+    env = dict(os.environ, NUMBA_CACHE_DIR=cache)
+    env["PYTHONPATH"] = ROOT + os.pathsep + env.get("PYTHONPATH", "")
+    t0 = time.perf_counter()
+    try:
+        subprocess.run(
+            [sys.executable, "-m", "obbiou", *args],
+            env=env,
+            cwd=out,
+            check=True,
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+        )
+        return time.perf_counter() - t0
+    finally:
+        shutil.rmtree(cache, ignore_errors=True)
+        shutil.rmtree(out, ignore_errors=True)
+
+
+def print_kernels(kernels: dict, top: int = 25) -> None:
+    rows = sorted(kernels.items(), key=lambda kv: -kv[1][0])[:top]
+    for name, (excl, incl, n) in rows:
+        print(f"        {name:<44s} {excl:7.2f} s  (incl. {incl:6.2f} s)  n={n}")
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--profile", action="store_true", help="print each kernel's compile time")
+    parser.add_argument("--only", default="", help="run only rows whose name contains this")
+    args = parser.parse_args()
+
+    unit = run_row(TRIVIAL_PARALLEL)["first"]
+    serial = run_row(TRIVIAL_SERIAL)["first"]
+    print(f"unit: numba's compile of a trivial prange kernel, fresh process: {unit:.2f} s")
+    print(f"      (a trivial serial kernel: {serial:.2f} s)")
+    print()
+    print(f"{'first use, cold cache':<46s} {'seconds':>8s} {'x unit':>7s} {'goal':>6s}")
+
+    def line(name: str, seconds: float, goal: float | None, note: str = "") -> None:
+        mult = seconds / unit
+        verdict = "" if goal is None else ("met" if mult <= goal else "NOT met")
+        goal_s = "" if goal is None else f"<={goal:g}x"
+        print(f"{name:<46s} {seconds:8.2f} {mult:6.1f}x {goal_s:>6s} {verdict} {note}", flush=True)
+
+    rows = [
+        ("iou rotated (3 x 3, then 300 x 300)", FIRST_IOU, "rotated", 4),
+        ("iou polygon (3 x 3, then 300 x 300)", FIRST_IOU, "polygon", 4),
+        ("iou upright (3 x 3, then 300 x 300)", FIRST_IOU, "upright", 4),
+        ("overlapping_pairs rotated (50, then 30 000)", FIRST_PAIRS, "", 6),
+        ("suppress hard rotated (50, then 30 000)", FIRST_SUPPRESS, "", 6),
+        ("evaluate, small rotated table, 10 thresholds", FIRST_EVALUATE, "", 8),
+    ]
+    for name, body, layout, goal in rows:
+        if args.only and args.only not in name:
+            continue
+        r = run_row(body, layout, args.profile)
+        total = r["first"] + r["extra"]
+        note = (
+            f"(first call {r['first']:.2f} s + larger call {r['extra']:.2f} s)"
+            if r["extra"]
+            else ""
+        )
+        line(name, total, goal, note)
+        if args.profile:
+            print_kernels(r["kernels"])
+    for name, cmd, goal in (("obbiou warmup", ["warmup"], 40), ("obbiou demo", ["demo"], 60)):
+        if args.only and args.only not in name:
+            continue
+        line(name, run_command(cmd), goal)
+
+    if not args.only or "import" in args.only:
+        cache = tempfile.mkdtemp(prefix="obbiou-warm-")
+        try:
+            run_row(WARM_IMPORT, cache=cache)  # fills the cache
+            runs = [run_row(WARM_IMPORT, cache=cache) for _ in range(5)]
+        finally:
+            shutil.rmtree(cache, ignore_errors=True)
+        above = sorted(r["first"] - r["numpy"] for r in runs)
+        print(
+            f"{'import + first iou, warm cache, fresh process':<46s} "
+            f"{above[len(above) // 2]:8.2f} s above `import numpy` (goal <= 0.5 s; "
+            f"range {above[0]:.2f} - {above[-1]:.2f} over 5 processes)"
+        )
+
+
+if __name__ == "__main__":
+    main()
