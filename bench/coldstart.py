@@ -97,7 +97,9 @@ truth = {"frame": rng.integers(0, 4, n), "label": rng.choice(["vessel", "crane"]
          "angle": rng.uniform(-1.5, 1.5, n)}
 dets = {k: (v + rng.normal(0, 1, n) if k in ("cx", "cy") else v) for k, v in truth.items()}
 dets["score"] = rng.random(n)
-t0 = time.perf_counter(); evaluate(truth, dets, iou="0.5:0.95:0.05"); first = time.perf_counter() - t0
+t0 = time.perf_counter()
+evaluate(truth, dets, iou="0.5:0.95:0.05")
+first = time.perf_counter() - t0
 """
 
 WARM_IMPORT = """
@@ -123,11 +125,13 @@ kernels = {{}}
         head += textwrap.dedent(
             """
             from numba.core import event
-            _stack, _incl, _excl, _count = [], collections.Counter(), collections.Counter(), collections.Counter()
+            _stack = []
+            _incl, _excl, _count = (collections.Counter() for _ in range(3))
             class _Listener(event.Listener):
                 def on_start(self, ev):
                     f = ev.data["dispatcher"].py_func
-                    _stack.append([time.perf_counter(), 0.0, f.__module__.split(".")[-1] + "." + f.__name__])
+                    name = f.__module__.split(".")[-1] + "." + f.__name__
+                    _stack.append([time.perf_counter(), 0.0, name])
                 def on_end(self, ev):
                     t0, child, name = _stack.pop()
                     d = time.perf_counter() - t0

@@ -2,7 +2,7 @@
 
 Run: ``python bench/scene.py`` (full), ``python bench/scene.py --quick`` (short),
 ``python bench/scene.py --index`` (grid vs 1-D sort-and-sweep candidate search, the
-measurement behind the index choice in ``obbiou/_kernels/sweep.py``).
+measurement behind the index choice in ``obbiou/_kernels/grid.py``).
 
 The shapely way, in the same process on the same arrays: polygons from the corners, an
 ``STRtree`` query for candidate pairs, then ``shapely.intersection`` / ``shapely.area`` on
@@ -185,7 +185,7 @@ def bound_share(boxes: np.ndarray, max_iou: float) -> tuple[float, int]:
     rows = prepare(read_boxes(boxes)).rows
     p = obbiou.overlapping_pairs(boxes)
     pairs = zip(p.first.tolist(), p.second.tolist(), strict=True)
-    decided = sum(rect_iou_verdict(rows, i, rows, j, max_iou, False) >= 0 for i, j in pairs)
+    decided = sum(rect_iou_verdict(rows, i, rows, j, max_iou) >= 0 for i, j in pairs)
     return decided / max(len(p), 1), len(p)
 
 
@@ -300,7 +300,7 @@ def index_comparison() -> None:
     """Candidate search only (extents overlap): grid (ours) vs 1-D sort-and-sweep on x."""
     from numba import njit, prange
 
-    from obbiou._kernels import sweep
+    from obbiou._kernels import grid
     from obbiou.measures import prepare
     from obbiou.shapes import read_boxes
 
@@ -331,14 +331,15 @@ def index_comparison() -> None:
         return int(sweep_count(ext, order, xs, wmax).sum())
 
     def run_grid(rows):
-        return int(sweep.candidate_count(1, rows, none, rows, none, True, 0.0, False))
+        return int(grid.candidate_count(1, rows.copy(), none, rows.copy(), none, True, 0.0, False))
 
     print("\nindex: candidate search for self-pairs (extents only), constant density")
     none = np.zeros((0, 0, 2))
     for n in (50_000, 1_000_000):
         a = mosaic(n, 10_000.0 * np.sqrt(n / 50_000), seed=7)
         rows = prepare(read_boxes(a)).rows
-        ext, _ = sweep._extents(1, rows, False)
+        ext, size = np.empty((n, 6)), np.empty(n)
+        grid.extent_rows(1, rows, False, ext, size, 0, n)
         run_sweep(ext[:100])
         run_grid(rows[:100])
         t_s, c_s = timed(lambda e=ext: run_sweep(e), 2, warmup=0)

@@ -1,7 +1,7 @@
 """Scene scale: the pairs of boxes that overlap, and non-maximum suppression.
 
 Both functions find candidate pairs with a spatial index (a multi-level uniform grid over
-the boxes' axis-aligned extents, see :mod:`obbiou._kernels.sweep`), compute the exact IoU
+the boxes' axis-aligned extents, see :mod:`obbiou._kernels.grid`), compute the exact IoU
 only for pairs whose extents overlap (and, with a threshold, whose IoU can still exceed
 it), and never build an N x M matrix: memory grows with the number of overlapping pairs.
 
@@ -109,18 +109,16 @@ class Kept:
 _SERIAL_BELOW = 20_000
 
 
-_KINDS = {"axis": 0, "rect": 1, "poly": 2}  # prepared-row kinds of obbiou._kernels.sweep
-
-
 def _prepared(a: Boxes, b: Boxes | None):
     """Both sides prepared once for the pair kernels, in their common kind (b=None: a)."""
-    from obbiou.measures import _prepared_pair, prepare
+    from obbiou._kernels.codes import Kind
+    from obbiou.measures import prepare, prepare_pair
 
     if b is None:
         pa = prepare(a)
-        return _KINDS[pa.kind], pa, pa
-    pa, pb = _prepared_pair(a, b)
-    return _KINDS[pa.kind], pa, pb
+        return int(Kind[pa.kind.upper()]), pa, pa
+    pa, pb = prepare_pair(a, b)
+    return int(Kind[pa.kind.upper()]), pa, pb
 
 
 def _vertices(p) -> np.ndarray:
@@ -162,7 +160,7 @@ def _pairs(
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """(first, second, iou) of the pairs with IoU > threshold, sorted; b=None: i < j.
     ``serial``: one-thread kernels; None chooses by the number of boxes."""
-    from obbiou._kernels import sweep
+    from obbiou._kernels import grid
 
     other = a if b is None else b
     if len(a) == 0 or len(other) == 0:
@@ -172,13 +170,7 @@ def _pairs(
     kind, pa, pb = _prepared(a, b)
     if codes is None:
         codes = np.zeros(0, np.int64)
-    if serial:
-        kernel, chunks = sweep.scene_pairs_serial, 1
-    else:
-        from numba import get_num_threads
-
-        kernel, chunks = sweep.scene_pairs, 8 * get_num_threads()
-    return kernel(
+    return grid.scene_pairs(
         kind,
         pa.rows,
         _vertices(pa),
@@ -189,7 +181,7 @@ def _pairs(
         codes,
         float(threshold),
         a.is_3d,
-        chunks,
+        serial,
     )
 
 
@@ -394,7 +386,8 @@ def suppress(
     >>> len(suppress(np.zeros((0, 5)), []))
     0
     """
-    from obbiou._kernels import nms
+    from obbiou._kernels import grid
+    from obbiou._kernels import suppress as kernels
 
     b = read_boxes(boxes, shape, name="boxes")
     n = len(b)
@@ -439,28 +432,21 @@ def suppress(
         return Kept(np.zeros(0, np.int64), np.zeros(0))
 
     neg = -s
-    order = nms.stable_ties(neg, np.argsort(neg))  # descending score, ties: input order
+    order = kernels.stable_ties(neg, np.argsort(neg))  # descending score, ties: input order
     if decay is None:
-        from obbiou._kernels import sweep
-
         kind, pb, _ = _prepared(b, None)
-        no_labels = np.zeros(0, np.int64)
-        kept = sweep.suppress_hard(
-            kind,
-            pb.rows,
-            _vertices(pb),
-            no_labels if codes is None else codes,
-            order,
-            thr,
-            b.is_3d,
-            cap,
+        lab = np.zeros(0, np.int64) if codes is None else codes
+        vert = _vertices(pb)
+        scene, index = grid.prepare_scene(
+            kind, pb.rows, vert, pb.rows, vert, True, lab, lab, thr, b.is_3d, True
         )
+        kept = kernels.suppress_hard(scene, index, order, cap)
         kept_scores = s[kept]
     else:
         # Linear decay touches only pairs above max_iou; gaussian every overlapping pair.
         first, second, iou = _pairs(b, None, thr if decay == "linear" else 0.0, codes)
-        ptr, nbr, val = nms.neighbours(len(b), first, second, iou)
-        kept, kept_scores = nms.soft(
+        ptr, nbr, val = kernels.neighbours(len(b), first, second, iou)
+        kept, kept_scores = kernels.soft(
             s, order, ptr, nbr, val, decay == "gaussian", thr, sig, floor, cap
         )
     return Kept(rows[kept].astype(np.int64), kept_scores)
@@ -480,14 +466,10 @@ def warmup() -> None:
         "axis3": [[0, 0, 0, 2, 2, 2], [1, 1, 1, 3, 3, 3]],
         "upright": [[0, 0, 0, 2, 1, 1, 0.1], [0.5, 0, 0, 2, 1, 1, 0.2]],
     }
-    from obbiou._kernels import geometry
-
-    geometry.rect_rows_parallel(np.asarray(tiny["rotated"], np.float64), geometry.ROTATED)
     codes = np.zeros(2, np.int64)
     for name, boxes in tiny.items():
         bx = read_boxes(boxes, name)
-        for serial in (True, False):  # small inputs take the serial kernels: compile both
-            _pairs(bx, None, 0.0, serial=serial)
-            _pairs(bx, bx, 0.1, codes, serial=serial)
+        _pairs(bx, None, 0.0)  # small and large inputs run the same compiled bodies
+        _pairs(bx, bx, 0.1, codes)
         for decay in _DECAYS:
             suppress(boxes, [0.9, 0.8], shape=name, decay=decay, labels=[1, 1], limit=5)

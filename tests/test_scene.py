@@ -281,12 +281,12 @@ def test_parallel_and_serial_kernels_agree(monkeypatch):
         np.testing.assert_array_equal(x.iou, y.iou)
 
 
-@pytest.mark.parametrize("parallel", [True, False])
-def test_chunks_that_outgrow_their_sampled_room_lose_nothing(parallel):
+@pytest.mark.parametrize("serial", [False, True])
+def test_chunks_that_outgrow_their_sampled_room_lose_nothing(serial):
     # Each chunk of rows sizes its candidate buffer from a sample of its rows; with no
     # margin over the estimate, the dense chunks overflow and must be walked again with
     # exact room.
-    from obbiou._kernels import sweep
+    from obbiou._kernels import grid
     from obbiou.scene import _prepared, _vertices
     from obbiou.shapes import read_boxes
 
@@ -294,9 +294,11 @@ def test_chunks_that_outgrow_their_sampled_room_lose_nothing(parallel):
     a = make_scene(rng, "clusters", "rotated", 600)
     kind, pa, _ = _prepared(read_boxes(a), None)
     none = np.zeros(0, np.int64)
-    kernel = sweep.scene_pairs if parallel else sweep.scene_pairs_serial
     v = _vertices(pa)
-    first, second, iou = kernel(kind, pa.rows, v, pa.rows, v, True, none, none, 0.0, False, 4, 0.0)
+    rows = pa.rows.copy()  # the kernel permutes its rows in place
+    first, second, iou = grid.scene_pairs(
+        kind, rows, v, rows, v, True, none, none, 0.0, False, serial, 0.0
+    )
     got = Pairs(first, second, iou, len(a), len(a))
     assert len(got) > 4 * 64  # more candidates than the rooms hold without margin
     # reference: shapely's dense IoU matrix, thresholded

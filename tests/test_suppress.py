@@ -277,10 +277,10 @@ def test_hard_min_score_equals_filtering_first():
 def test_score_order_equals_a_stable_sort(values):
     # suppression's score order: numpy's quicksort argsort, then runs of equal scores put
     # in index order; reference: numpy's stable (merge) argsort
-    from obbiou._kernels import nms
+    from obbiou._kernels import suppress as kernels
 
     keys = np.array(values, dtype=np.float64)
-    order = nms.stable_ties(keys, np.argsort(keys))
+    order = kernels.stable_ties(keys, np.argsort(keys))
     np.testing.assert_array_equal(order, np.argsort(keys, kind="stable"))
 
 
@@ -329,7 +329,7 @@ def test_cheap_iou_bounds_never_contradict_the_exact_iou(pair, thr):
     rows = prepare(read_boxes(np.stack([a, b]), layout)).rows
     ref = exact_iou(a, b)
     for i, j in ((0, 1), (1, 0)):
-        verdict = rect_iou_verdict(rows, i, rows, j, thr, layout == "upright")
+        verdict = rect_iou_verdict(rows, i, rows, j, thr)
         if verdict == 1:
             assert ref > thr - BAND
         elif verdict == 0:
@@ -346,8 +346,8 @@ def test_cheap_iou_bounds_decide_clear_cases():
 
     boxes = [[0, 0, 20, 10, 0.3], [0.5, 0.2, 20, 10, 0.31], [15, 0, 20, 10, 0.3]]
     rows = prepare(read_boxes(boxes)).rows
-    assert rect_iou_verdict(rows, 0, rows, 1, 0.5, False) == 1  # near duplicates
-    assert rect_iou_verdict(rows, 0, rows, 2, 0.5, False) == 0  # overlap a small part
+    assert rect_iou_verdict(rows, 0, rows, 1, 0.5) == 1  # near duplicates
+    assert rect_iou_verdict(rows, 0, rows, 2, 0.5) == 0  # overlap a small part
 
 
 def test_ties_are_broken_by_input_order_deterministically():

@@ -9,13 +9,15 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
-# Source layout codes.
-AXIS = 0
-ROTATED = 1
-AXIS3 = 2
-UPRIGHT = 3
+from obbiou._kernels.codes import Layout
+
+# Source layout codes (plain ints: numba folds them).
+AXIS = int(Layout.AXIS)
+ROTATED = int(Layout.ROTATED)
+AXIS3 = int(Layout.AXIS3)
+UPRIGHT = int(Layout.UPRIGHT)
 
 
 @njit(error_model="numpy", cache=True)
@@ -42,14 +44,16 @@ def axis_rows(data, layout):
     return rows
 
 
-@njit(error_model="numpy", cache=True, inline="always")
+@njit(error_model="numpy", cache=True, forceinline=True)
 def rect_tuple(data, i, layout):
     """``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1, size, 1/hw, 1/hh``
     of box ``data[i]`` (rotated, axis, or the footprint of an upright / axis3 box) as a
     tuple. cos and sin are computed here, the one place for every path (scalar libm calls:
-    all-pairs, pair lists and elementwise values see the same bits)."""
+    all-pairs, pair lists and elementwise values see the same bits). 2D boxes get the z
+    interval 0..1, so that the pair code multiplies by a z overlap of exactly 1 and needs
+    no 2D / 3D flag."""
     z0 = 0.0
-    z1 = 0.0
+    z1 = 1.0
     if layout == ROTATED or layout == UPRIGHT:
         cx = data[i, 0]
         cy = data[i, 1]
@@ -99,30 +103,10 @@ def rect_tuple(data, i, layout):
     return (cx, cy, hw, hh, c, s, area, xmin, ymin, xmax, ymax, z0, z1, size, ihw, ihh)
 
 
-@njit(error_model="numpy", cache=True)
-def rect_row(data, i, layout, row):
-    """Write :func:`rect_tuple` of box ``data[i]`` into ``row``."""
-    t = rect_tuple(data, i, layout)
-    row[0], row[1], row[2], row[3], row[4], row[5], row[6], row[7] = t[:8]
-    row[8], row[9], row[10], row[11], row[12], row[13], row[14], row[15] = t[8:]
-
-
-@njit(error_model="numpy", cache=True)
-def rect_rows(data, layout):
-    """Rows of :func:`rect_row` for every box."""
-    n = data.shape[0]
-    rows = np.empty((n, 16))
-    for i in range(n):
-        rect_row(data, i, layout, rows[i])
-    return rows
-
-
-@njit(error_model="numpy", cache=True, parallel=True)
-def rect_rows_parallel(data, layout):
-    """:func:`rect_rows` on all threads, for large inputs: the same :func:`rect_row` per box,
-    so the same bits."""
-    n = data.shape[0]
-    rows = np.empty((n, 16))
-    for i in prange(n):
-        rect_row(data, i, layout, rows[i])
-    return rows
+@njit(error_model="numpy", cache=True, nogil=True)
+def rect_rows(data, layout, rows, lo, hi):
+    """Rows of :func:`rect_tuple` for boxes lo..hi-1 into ``rows`` (N, 16)."""
+    for i in range(lo, hi):
+        t = rect_tuple(data, i, layout)
+        for c in range(16):
+            rows[i, c] = t[c]

@@ -1,16 +1,18 @@
-"""Soft (decaying) non-maximum suppression over a neighbour list, and the score order.
+"""Non-maximum suppression: hard on the grid, soft over a neighbour list; the score order.
 
-Numba kernels only: no validation, no Python objects. The public layer
-(:func:`obbiou.scene.suppress`) finds the overlapping pairs with the spatial index and hands
-them here as a symmetric CSR neighbour list, so the cost follows the number of overlapping
-pairs, never N^2. Hard suppression needs no pair list: it runs on the grid itself
-(:func:`obbiou._kernels.sweep.suppress_hard`).
+Numba kernels only: no validation. Hard suppression (:func:`suppress_hard`) walks the grid
+of :mod:`obbiou._kernels.grid` and computes IoU only between a box and the kept boxes near
+it. Soft suppression gets the overlapping pairs from the grid as a symmetric CSR neighbour
+list, so the cost follows the number of overlapping pairs, never N^2.
 """
 
 from __future__ import annotations
 
 import numpy as np
 from numba import njit
+
+from obbiou._kernels.grid import RECT, insert, pair_iou, scratch, walk
+from obbiou._kernels.pairs import rect_iou_verdict
 
 
 @njit(cache=True)
@@ -53,7 +55,7 @@ def stable_ties(keys, order):
     return order
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, forceinline=True)
 def _before(s1, i1, s2, i2):
     """Heap order: higher score first, ties by lower input index."""
     return s1 > s2 or (s1 == s2 and i1 < i2)
@@ -167,3 +169,61 @@ def soft(scores, order, ptr, nbr, val, gaussian, max_iou, sigma, min_score, limi
             hs[pos[j]] = new
             _sift_down(hs, hx, pos, size, pos[j])
     return kept[:nk], kept_s[:nk]
+
+
+@njit(cache=True)
+def exceeds(kind, A, VA, i, j, thr, is3d, buf):
+    """IoU(A[i], A[j]) > thr: for rectangles by cheap bounds when they decide (measured,
+    10 000 clustered detections: they decide 84 % of the overlapping pairs at 0.5), else the
+    exact value."""
+    if kind == RECT:
+        verdict = rect_iou_verdict(A, i, A, j, thr)
+        if verdict >= 0:
+            return verdict == 1
+    return pair_iou(kind, A, VA, i, A, VA, j, is3d, buf) > thr
+
+
+@njit(cache=True)
+def suppress_hard(scene, grid, order, limit):
+    """Greedy hard suppression, lazily: walk ``order`` (input rows, best first); a box is
+    kept unless an already kept box overlaps it with IoU > thr, found through the grid.
+    IoU is computed only between a box and the kept boxes near it, and a box stops at the
+    first kept box that suppresses it. Stops after ``limit`` kept boxes (< 0: no limit).
+    ``scene``, ``grid``: :func:`obbiou._kernels.grid.prepare_scene` of the boxes with
+    themselves (``same``), the threshold and the labels.
+
+    The walks read a grid that holds the kept boxes only: each kept box is added to its
+    cell (the static grid's layout, filled as boxes are kept). Measured on 10 000
+    clustered detections: walks over the full grid with a per-item "is it kept" test
+    took 2.3 ms before any IoU (the test mispredicts), this one a fraction of it."""
+    kind, A, VA, oa, thr, is3d = scene[0], scene[1], scene[2], scene[5], scene[14], scene[15]
+    n = oa.shape[0]
+    where = np.empty(n, np.int64)
+    for i in range(n):
+        where[oa[i]] = i
+    cell_ptr = grid[2]
+    items = np.empty(n, np.int64)  # kept boxes, cell by cell
+    ends = cell_ptr[:-1].copy()  # end of each cell's kept boxes in ``items``
+    buf = scratch(VA, VA)
+    near = np.empty(64, np.int64)
+    kept = np.empty(order.shape[0], np.int64)
+    nk = 0
+    for p in range(order.shape[0]):
+        if nk == limit:
+            break
+        i = where[order[p]]
+        m = walk(i, scene, grid, items, ends, True, near)
+        suppressed = False
+        if m > 0:
+            if m > near.shape[0]:  # rare: more kept neighbours than the buffer holds
+                near = np.empty(2 * m, np.int64)
+                walk(i, scene, grid, items, ends, True, near)
+            for k in range(m):
+                if exceeds(kind, A, VA, i, near[k], thr, is3d, buf):
+                    suppressed = True
+                    break
+        if not suppressed:
+            insert(i, grid, items, ends)
+            kept[nk] = order[p]
+            nk += 1
+    return kept[:nk]

@@ -17,7 +17,7 @@ column), so a cell, and a run of cells along a row, is one contiguous range of b
 no items array is needed. A query visits, on each non-empty level, the cells where an
 overlapping box can have its corner (x0 - reach .. x1, y0 - reach .. y1; reach: the
 level's largest extent). Each pair is met once; self-pairs walk forward in that order only
-(see :func:`_walk`). Measured against the former layout (each box stored in the up to
+(see :func:`walk`). Measured against the former layout (each box stored in the up to
 2 x 2 cells it covers, a pair reported in the first cell both cover): self-pairs of 50 000
 rotated boxes 15 % faster, the order and grid built in half the time (1.5-1.9 ms against
 3.4-3.8 ms).
@@ -31,8 +31,10 @@ rejects.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
+from obbiou._kernels import threads
+from obbiou._kernels.codes import Kind
 from obbiou._kernels.pairs import (
     AX_SIZE,
     AX_X0,
@@ -54,12 +56,10 @@ from obbiou._kernels.pairs import (
     R_YMIN,
     R_Z0,
     R_Z1,
-    RECT_COLUMNS,
     RECT_SCRATCH,
     axis_pair,
     poly_pair,
-    rect_iou_verdict,
-    rect_list_iou,
+    rect_list,
     rect_value,
 )
 
@@ -91,7 +91,7 @@ def _cell(x, g, inv, n):
 L_GX, L_GY, L_SIZE, L_NX, L_NY, L_FIRST, L_INV, L_REACH = 0, 1, 2, 3, 4, 5, 6, 7
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, forceinline=True)
 def _padded_xy(kind, R, i):
     """Padded x-y extent (x0, y0, x1, y1) of prepared row ``R[i]`` (as in :func:`_extents`)."""
     bx0, by0, bx1, by1 = _box_xy(kind, R, i)
@@ -200,21 +200,10 @@ def build_index(kind, R, base):
 
 # Prepared-row kinds (see obbiou._kernels.pairs): the measure of a pair is the very kernel
 # function the all-pairs matrices use, so values are bit for bit the matrix entries.
-AXIS, RECT, POLY = 0, 1, 2
+AXIS, RECT, POLY = int(Kind.AXIS), int(Kind.RECT), int(Kind.POLY)
 
 
-@njit(cache=True)
-def _extents(kind, R, is3d):
-    """Padded extents (N, 6) and sizes (N,) from prepared rows (2D: z0 = -1, z1 = 1)."""
-    n = R.shape[0]
-    ext = np.empty((n, 6))
-    size = np.empty(n)
-    for i in range(n):
-        _extent_row(kind, R, i, is3d, ext, size)
-    return ext, size
-
-
-@njit(cache=True, inline="always")
+@njit(cache=True, forceinline=True)
 def _extent_row(kind, R, i, is3d, ext, size):
     """Padded extent and size of prepared row ``R[i]`` into ``ext[i]``, ``size[i]``."""
     ext[i, X0], ext[i, Y0], ext[i, X1], ext[i, Y1] = _padded_xy(kind, R, i)
@@ -230,21 +219,14 @@ def _extent_row(kind, R, i, is3d, ext, size):
     size[i] = s
 
 
-@njit(cache=True, parallel=True)
-def _side_parallel(kind, R, V, is3d, order, labels):
-    """:func:`_side` with the extents computed on all threads."""
-    _permute(R, order)
-    n = order.shape[0]
-    ext = np.empty((n, 6))
-    size = np.empty(n)
-    for i in prange(n):
+@njit(cache=True, nogil=True)
+def extent_rows(kind, R, is3d, ext, size, lo, hi):
+    """Padded extents and sizes of prepared rows lo..hi-1 (see :func:`_extent_row`)."""
+    for i in range(lo, hi):
         _extent_row(kind, R, i, is3d, ext, size)
-    Vs = _take(V, order) if kind == POLY else V
-    ls = labels[order] if labels.shape[0] > 0 else labels
-    return R, Vs, ext, size, ls
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, forceinline=True)
 def _box_xy(kind, R, i):
     """Unpadded x-y extent (x0, y0, x1, y1) of prepared row ``R[i]``."""
     if kind == AXIS:
@@ -277,7 +259,7 @@ def base_cell(kind, R):
 
 
 @njit(cache=True)
-def _order_on(kind, R, levels):
+def order_on(kind, R, levels):
     """Rows of ``R`` (the other side of a scene) by the cell of their lower-left corner on
     the finest non-empty level of b's grid (counting sort, row-major): neighbouring boxes
     then sit next to each other in memory, so the queries read cells, extents and
@@ -348,19 +330,17 @@ def _permute(R, order):
 
 
 @njit(cache=True)
-def _side(kind, R, V, is3d, order, labels):
+def arrange(kind, R, V, order, labels):
     """One side of the scene in spatial order: rows (``R`` itself, permuted in place: the
-    callers pass private arrays), vertices (a copy: they may be the user's), extents,
-    sizes, labels."""
+    callers pass private arrays), vertices (a copy: they may be the user's), labels."""
     _permute(R, order)
     Vs = _take(V, order) if kind == POLY else V
-    ext, size = _extents(kind, R, is3d)
     ls = labels[order] if labels.shape[0] > 0 else labels
-    return R, Vs, ext, size, ls
+    return R, Vs, ls
 
 
 @njit(cache=True)
-def _value(kind, A, VA, i, B, VB, j, is3d, buf):
+def pair_iou(kind, A, VA, i, B, VB, j, is3d, buf):
     """IoU of A[i] and B[j]: the measure kernels' own per-pair code."""
     if kind == AXIS:
         return axis_pair(A, i, B, j, IOU, is3d, buf)
@@ -370,24 +350,12 @@ def _value(kind, A, VA, i, B, VB, j, is3d, buf):
 
 
 @njit(cache=True)
-def _exceeds(kind, A, VA, i, j, thr, is3d, buf):
-    """IoU(A[i], A[j]) > thr: for rectangles by cheap bounds when they decide (measured,
-    10 000 clustered detections: they decide 84 % of the overlapping pairs at 0.5), else the
-    exact value."""
-    if kind == RECT:
-        verdict = rect_iou_verdict(A, i, A, j, thr, is3d)
-        if verdict >= 0:
-            return verdict == 1
-    return _value(kind, A, VA, i, A, VA, j, is3d, buf) > thr
-
-
-@njit(cache=True)
-def _scratch(VA, VB):
+def scratch(VA, VB):
     return np.empty((6, max(RECT_SCRATCH, 2 * (VA.shape[1] + VB.shape[1]) + 4)))
 
 
-@njit(cache=True, inline="always")
-def _walk(i, scene, grid, items, ends, growing, out):
+@njit(cache=True, forceinline=True)
+def walk(i, scene, grid, items, ends, growing, out):
     """Candidates of a's row i, by a walk over the grid cells where a box overlapping it
     can have its lower-left corner: on each level, x from x0 - reach to x1, y likewise.
 
@@ -469,37 +437,38 @@ def _walk(i, scene, grid, items, ends, growing, out):
     return n
 
 
-@njit(cache=True, inline="always")
-def _insert(i, grid, items, ends):
+@njit(cache=True, forceinline=True)
+def insert(i, grid, items, ends):
     """Add b's row i (spatial order) to the growing grid (``items``, ``ends``), in its cell."""
     c = grid[3][i]
     items[ends[c]] = i
     ends[c] += 1
 
 
-@njit(cache=True)
-def _prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, parallel=False):
-    """Spatially ordered scene and grid over b. Returns (scene, grid)."""
+def prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial):
+    """Spatially ordered scene and grid over b (Python: extents are computed on threads
+    for large scenes). Returns (scene, grid) tuples that the walks read."""
     base = base_cell(kind, B)
     ob, levels, bounds, cell_ptr, box_cell, box_level = build_index(kind, B, base)
-    oa = ob if same else _order_on(kind, A, levels)
-    if parallel:
-        A, VA, ea, sa, la = _side_parallel(kind, A, VA, is3d, oa, labels_a)
-    else:
-        A, VA, ea, sa, la = _side(kind, A, VA, is3d, oa, labels_a)
+    oa = ob if same else order_on(kind, A, levels)
+    A, VA, la = arrange(kind, A, VA, oa, labels_a)
+    ea, sa = _side_extents(kind, A, is3d, serial)
     if same:
         B, VB, eb, sb, lb = A, VA, ea, sa, la
-    elif parallel:
-        B, VB, eb, sb, lb = _side_parallel(kind, B, VB, is3d, ob, labels_b)
     else:
-        B, VB, eb, sb, lb = _side(kind, B, VB, is3d, ob, labels_b)
-    scene = (kind, A, VA, ea, sa, oa, B, VB, eb, sb, ob, same, la, lb, thr, is3d)
+        B, VB, lb = arrange(kind, B, VB, ob, labels_b)
+        eb, sb = _side_extents(kind, B, is3d, serial)
+    scene = (kind, A, VA, ea, sa, oa, B, VB, eb, sb, ob, same, la, lb, float(thr), is3d)
     return scene, (levels, bounds, cell_ptr, box_cell, box_level)
 
 
-# Pairs per block of the vectorised IoU loop: two (16, 128) scratch arrays per chunk
-# (32 KiB), small enough to come from the allocator's free lists rather than fresh pages.
-LIST_BLOCK = 128
+def _side_extents(kind, R, is3d, serial):
+    n = R.shape[0]
+    ext = np.empty((n, 6))
+    size = np.empty(n)
+    threads.run(extent_rows, (kind, R, is3d, ext, size), n, serial=serial)
+    return ext, size
+
 
 # One row in this many (per chunk) is walked ahead to size the chunk's candidate buffer.
 SAMPLE_STRIDE = 16
@@ -512,32 +481,39 @@ def _list_values(scene, ci, cj, n, out):
     matrix entries. Rectangles take the vectorised loop over blocks of pairs."""
     kind, A, VA, B, VB, is3d = scene[0], scene[1], scene[2], scene[6], scene[7], scene[15]
     if kind == RECT:
-        PT = np.empty((RECT_COLUMNS, LIST_BLOCK))
-        QT = np.empty((RECT_COLUMNS, LIST_BLOCK))
-        rect_list_iou(A, ci, B, cj, n, is3d, out, PT, QT)
+        rect_list(A, B, ci, cj, IOU, is3d, out, 0, n)
         return
-    buf = _scratch(VA, VB)
+    buf = scratch(VA, VB)
     oa, same = scene[5], scene[11]
     for k in range(n):
         i, j = ci[k], cj[k]
         if same and oa[j] < oa[i]:  # self-pairs: each pair in input order, as the matrix
             i, j = j, i
-        out[k] = _value(kind, A, VA, i, B, VB, j, is3d, buf)
+        out[k] = pair_iou(kind, A, VA, i, B, VB, j, is3d, buf)
 
 
-@njit(cache=True)
-def _chunk_estimate(c, step, scene, grid, margin, est):
-    """Room for the candidates of a's rows c * step ...: those of every SAMPLE_STRIDE-th
-    row, scaled up by ``margin``, plus 64, into est[c]. Only sizes a buffer: a chunk that
-    overflows it is walked again with exact room."""
+@njit(cache=True, nogil=True)
+def chunk_estimates(step, scene, grid, margin, est, c0, c1):
+    """For chunks c0..c1-1: room for the candidates of a's rows c * step ...: those of
+    every SAMPLE_STRIDE-th row, scaled up by ``margin``, plus 64, into est[c]. Only sizes a
+    buffer: a chunk that overflows it is walked again with exact room."""
     n = scene[1].shape[0]
     cell_ptr = grid[2]
     none = cell_ptr[:0]
-    lo, hi = c * step, min(n, (c + 1) * step)
-    found = 0
-    for i in range(lo, hi, SAMPLE_STRIDE):
-        found += _walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], False, none)
-    est[c] = int(margin * found * SAMPLE_STRIDE) + 64 if hi > lo else 0
+    for c in range(c0, c1):
+        lo, hi = c * step, min(n, (c + 1) * step)
+        found = 0
+        for i in range(lo, hi, SAMPLE_STRIDE):
+            found += walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], False, none)
+        est[c] = int(margin * found * SAMPLE_STRIDE) + 64 if hi > lo else 0
+
+
+@njit(cache=True, nogil=True)
+def chunk_pairs(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
+    """:func:`_chunk_pairs` for the chunks c0..c1-1 marked in ``todo``."""
+    for c in range(c0, c1):
+        if todo[c]:
+            _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo[c], hi[c], need, got)
 
 
 @njit(cache=True)
@@ -552,7 +528,7 @@ def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got):
     cap = cj.shape[0]
     pos = 0
     for i in range(c * step, min(n, (c + 1) * step)):
-        m = _walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], False, cj[min(pos, cap) :])
+        m = walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], False, cj[min(pos, cap) :])
         for k in range(pos, min(pos + m, cap)):
             ci[k] = i
         pos += m
@@ -570,7 +546,7 @@ def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got):
 
 
 @njit(cache=True)
-def _chunk_room(est):
+def chunk_room(est):
     """Each chunk's buffer span [lo[c], hi[c]) for the room ``est[c]``, and buffers of the
     total size for ci, cj (int64) and cv (float64)."""
     chunks = est.shape[0]
@@ -585,7 +561,7 @@ def _chunk_room(est):
 
 
 @njit(cache=True)
-def _regrow(lo, hi, need, ci, cj, cv):
+def regrow(lo, hi, need, ci, cj, cv):
     """After a pass in which some chunks overflowed (need[c] > hi[c] - lo[c]): buffers with
     exactly the room they need at the end, the other chunks' pairs copied over. Returns
     (ci, cj, cv, redo): redo[c] for the chunks to walk again."""
@@ -609,7 +585,7 @@ def _regrow(lo, hi, need, ci, cj, cv):
 
 
 @njit(cache=True)
-def _gather(scene, ci, cj, cv, lo, got):
+def gather(scene, ci, cj, cv, lo, got):
     """Exact-size outputs (first, second, iou) in input order from the chunks' pairs (a's
     and b's spatial rows, chunk c's at ci[lo[c]:lo[c] + got[c]]), sorted by (first,
     second): a counting scatter by first (for self-pairs the smaller input row of the
@@ -663,13 +639,13 @@ def _sort_small(keys, values):
         keys[q + 1], values[q + 1] = k, v
 
 
-@njit(cache=True, parallel=True)
-def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, chunks, margin=1.25):
+def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial, margin=1.25):
     """Pairs (first, second, iou) with IoU > thr, sorted by (first, second), of prepared
     boxes A (rows; VA vertices for POLY, else unused) and B; ``same``: B is A and only
     first < second. ``labels_*``: int64 codes, or empty arrays for no labels. A's and B's
-    rows are permuted in place into spatial order (pass private arrays). ``margin``:
-    room for candidates over the sampled estimate (tests pass 0 to force the redo path).
+    rows are permuted in place into spatial order (pass private arrays). ``serial``: one
+    thread. ``margin``: room for candidates over the sampled estimate (tests pass 0 to
+    force the redo path).
 
     One walk per row over the grid: each chunk of rows (spatial order) writes its
     candidates into its own buffer, sized by walking a sample of its rows first, then
@@ -678,96 +654,37 @@ def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, chunks,
     rotated boxes: the former count-then-fill passes walked the grid twice per row.
     Memory grows with the number of candidates (extents overlapping, IoU bound above thr).
     """
-    scene, grid = _prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, True)
+    scene, grid = prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial)
     n = A.shape[0]
-    step = (n + chunks - 1) // chunks
+    chunks = 1 if serial else 8 * threads.count()
+    step = -(-n // chunks)
     est = np.zeros(chunks, np.int64)
-    for c in prange(chunks):
-        _chunk_estimate(c, step, scene, grid, margin, est)
-    lo, hi, ci, cj, cv = _chunk_room(est)
+    threads.run(chunk_estimates, (step, scene, grid, margin, est), chunks, serial=serial)
+    lo, hi, ci, cj, cv = chunk_room(est)
     need = np.zeros(chunks, np.int64)
     got = np.zeros(chunks, np.int64)
-    for c in prange(chunks):
-        _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo[c], hi[c], need, got)
-    ci, cj, cv, redo = _regrow(lo, hi, need, ci, cj, cv)
-    for c in prange(chunks):
-        if redo[c]:
-            _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo[c], hi[c], need, got)
-    return _gather(scene, ci, cj, cv, lo, got)
+    todo = np.ones(chunks, np.bool_)
+    args = (step, scene, grid, ci, cj, cv, lo, hi, need, got, todo)
+    threads.run(chunk_pairs, args, chunks, serial=serial)
+    ci, cj, cv, redo = regrow(lo, hi, need, ci, cj, cv)
+    if redo.any():
+        args = (step, scene, grid, ci, cj, cv, lo, hi, need, got, redo)
+        threads.run(chunk_pairs, args, chunks, serial=serial)
+    return gather(scene, ci, cj, cv, lo, got)
 
 
-@njit(cache=True)
-def scene_pairs_serial(
-    kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, chunks, margin=1.25
-):
-    """:func:`scene_pairs` on one thread (one chunk)."""
-    scene, grid = _prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d)
-    n = A.shape[0]
-    est = np.zeros(1, np.int64)
-    _chunk_estimate(0, n, scene, grid, margin, est)
-    lo, hi, ci, cj, cv = _chunk_room(est)
-    need = np.zeros(1, np.int64)
-    got = np.zeros(1, np.int64)
-    _chunk_pairs(0, n, scene, grid, ci, cj, cv, lo[0], hi[0], need, got)
-    ci, cj, cv, redo = _regrow(lo, hi, need, ci, cj, cv)
-    if redo[0]:
-        _chunk_pairs(0, n, scene, grid, ci, cj, cv, lo[0], hi[0], need, got)
-    return _gather(scene, ci, cj, cv, lo, got)
-
-
-@njit(cache=True)
-def suppress_hard(kind, A, VA, labels, order, thr, is3d, limit):
-    """Greedy hard suppression, lazily: walk ``order`` (input rows, best first); a box is
-    kept unless an already kept box overlaps it with IoU > thr, found through the grid.
-    IoU is computed only between a box and the kept boxes near it, and a box stops at the
-    first kept box that suppresses it. Stops after ``limit`` kept boxes (< 0: no limit).
-    ``A``'s rows are permuted in place into spatial order (pass a private array).
-
-    The walks read a grid that holds the kept boxes only: each kept box is added to its
-    cell (the static grid's layout, filled as boxes are kept). Measured on 10 000
-    clustered detections: walks over the full grid with a per-item "is it kept" test
-    took 2.3 ms before any IoU (the test mispredicts), this one a fraction of it."""
-    scene, grid = _prepare_scene(kind, A, VA, A, VA, True, labels, labels, thr, is3d)
-    A, VA, oa = scene[1], scene[2], scene[5]
-    n = oa.shape[0]
-    where = np.empty(n, np.int64)
-    for i in range(n):
-        where[oa[i]] = i
-    cell_ptr = grid[2]
-    items = np.empty(n, np.int64)  # kept boxes, cell by cell
-    ends = cell_ptr[:-1].copy()  # end of each cell's kept boxes in ``items``
-    buf = _scratch(VA, VA)
-    near = np.empty(64, np.int64)
-    kept = np.empty(order.shape[0], np.int64)
-    nk = 0
-    for p in range(order.shape[0]):
-        if nk == limit:
-            break
-        i = where[order[p]]
-        m = _walk(i, scene, grid, items, ends, True, near)
-        suppressed = False
-        if m > 0:
-            if m > near.shape[0]:  # rare: more kept neighbours than the buffer holds
-                near = np.empty(2 * m, np.int64)
-                _walk(i, scene, grid, items, ends, True, near)
-            for k in range(m):
-                if _exceeds(kind, A, VA, i, near[k], thr, is3d, buf):
-                    suppressed = True
-                    break
-        if not suppressed:
-            _insert(i, grid, items, ends)
-            kept[nk] = order[p]
-            nk += 1
-    return kept[:nk]
-
-
-@njit(cache=True)
 def candidate_count(kind, A, VA, B, VB, same, thr, is3d):
     """Number of candidate pairs (the index alone, no measure): for benchmarks."""
     none = np.zeros(0, np.int64)
-    scene, grid = _prepare_scene(kind, A, VA, B, VB, same, none, none, thr, is3d)
+    scene, grid = prepare_scene(kind, A, VA, B, VB, same, none, none, thr, is3d, True)
+    return _count_candidates(scene, grid)
+
+
+@njit(cache=True)
+def _count_candidates(scene, grid):
+    none = np.zeros(0, np.int64)
     cell_ptr = grid[2]
     total = 0
-    for i in range(A.shape[0]):
-        total += _walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], False, none)
+    for i in range(scene[1].shape[0]):
+        total += walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], False, none)
     return total
