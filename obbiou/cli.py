@@ -22,6 +22,8 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+from obbiou.errors import InvalidInput, TaskFailed
+
 __all__ = ["main", "build_parser", "write_table", "parse_iou"]
 
 #: Exit status for bad input (files, options), as argparse uses for bad options.
@@ -40,8 +42,12 @@ _EXTRAS = {
 }
 
 
-class _Failure(Exception):
+class _Failure(InvalidInput):
     """Bad input found by the command line itself; the message is the one line shown."""
+
+    def __init__(self, message: str) -> None:
+        option = message.split(" ", 1)[0].rstrip(":")
+        super().__init__(option, message, message=message)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -100,6 +106,40 @@ def parse_iou(values: Sequence[str] | None) -> Any:
     if list(per_label) == [None]:
         return per_label[None]
     return per_label
+
+
+def _float(text: str) -> float:
+    try:
+        return float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
+
+
+def _positive_float(text: str) -> float:
+    """argparse type: a finite number > 0."""
+    value = _float(text)
+    if not (value > 0 and value < float("inf")):
+        raise argparse.ArgumentTypeError(f"expected a positive number, got {text!r}")
+    return value
+
+
+def _finite_float(text: str) -> float:
+    """argparse type: a finite number."""
+    value = _float(text)
+    if not abs(value) < float("inf"):
+        raise argparse.ArgumentTypeError(f"expected a finite number, got {text!r}")
+    return value
+
+
+def _positive_int(text: str) -> int:
+    """argparse type: a whole number >= 1."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number >= 1, got {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"expected a whole number >= 1, got {text!r}")
+    return value
 
 
 def _numbers(text: str | None, option: str) -> list[float] | None:
@@ -218,12 +258,14 @@ def write_table(table: Any, path: Any) -> Path:
     >>> write_table(pd.DataFrame(), "t.xlsx")
     Traceback (most recent call last):
     ...
-    ValueError: t.xlsx: unknown table format '.xlsx'; use .csv, .parquet or .jsonl
+    obbiou.errors.InvalidInput: t.xlsx: unknown table format '.xlsx'; use .csv, .parquet or .jsonl
     """
     path = Path(path)
     suffix = path.suffix.lower()
     if suffix not in _TABLE_SUFFIXES:
-        raise ValueError(f"{path}: unknown table format {suffix!r}; use .csv, .parquet or .jsonl")
+        raise InvalidInput(
+            str(path), f"unknown table format {suffix!r}; use .csv, .parquet or .jsonl"
+        )
     if path.parent and not path.parent.exists():
         path.parent.mkdir(parents=True, exist_ok=True)
     if suffix == ".csv":
@@ -794,17 +836,25 @@ def build_parser() -> argparse.ArgumentParser:
         help="soft suppression: lower the scores instead of removing (default: hard)",
     )
     p.add_argument(
-        "--sigma", type=float, metavar="S", default=0.5, help="width of the gaussian decay"
+        "--sigma",
+        type=_positive_float,
+        metavar="S",
+        default=0.5,
+        help="width of the gaussian decay",
     )
     p.add_argument(
         "--min-score",
-        type=float,
+        type=_finite_float,
         metavar="SCORE",
         default=0.0,
         help="drop boxes whose (decayed) score falls to this or below",
     )
     p.add_argument(
-        "--limit", type=int, default=None, metavar="N", help="keep at most N boxes per frame"
+        "--limit",
+        type=_positive_int,
+        default=None,
+        metavar="N",
+        help="keep at most N boxes per frame",
     )
     p.add_argument(
         "--across-labels",
@@ -892,7 +942,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     prog = f"obbiou {args.command}"
     try:
         return int(args.run(args) or 0)
-    except (_Failure, ValueError) as exc:
+    except InvalidInput as exc:
         print(f"{prog}: error: {_one_line(exc)}", file=sys.stderr)
     except FileNotFoundError as exc:
         print(f"{prog}: error: {exc.filename or exc}: file not found", file=sys.stderr)
@@ -911,7 +961,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print(f"{prog}: interrupted", file=sys.stderr)
         return 130
-    except RuntimeError as exc:  # a failed cluster task (obbiou.distributed.TaskFailed)
+    except TaskFailed as exc:  # a failed cluster task
         print(f"{prog}: error: {_one_line(exc)}", file=sys.stderr)
         return 1
     return BAD_INPUT

@@ -41,6 +41,8 @@ from typing import Any
 
 import numpy as np
 
+from obbiou.errors import InvalidInput, TaskFailed
+
 __all__ = ["evaluate_distributed", "overlapping_pairs_distributed", "connect", "TaskFailed"]
 
 _INSTALL_HINT = "pip install 'obbiou[dask]'"
@@ -51,11 +53,6 @@ _CONNECT_SECONDS = 20
 #: Environment of local worker processes: one worker thread each, so the numba kernels run
 #: on one thread too instead of every process starting a thread per core.
 _ONE_THREAD = {"NUMBA_NUM_THREADS": "1", "OMP_NUM_THREADS": "1"}
-
-
-class TaskFailed(RuntimeError):
-    """A task on the cluster failed for a reason other than bad input (a partition that
-    could not be loaded, a worker that died); the message names the partition or bucket."""
 
 
 def _require_dask() -> Any:
@@ -102,7 +99,7 @@ def connect(
 
     Raises
     ------
-    ValueError
+    obbiou.errors.InvalidInput
         If more than one of ``client``, ``scheduler``, ``workers`` is given, or ``workers``
         is not a positive integer.
     ConnectionError
@@ -114,12 +111,13 @@ def connect(
     ...     pass
     Traceback (most recent call last):
     ...
-    ValueError: give at most one of client=, scheduler=, workers= (got scheduler and workers)
+    obbiou.errors.InvalidInput: give at most one of client=, scheduler=, workers= (got scheduler
+    and workers)
     >>> with connect(workers=0):
     ...     pass
     Traceback (most recent call last):
     ...
-    ValueError: workers: expected a positive integer, got 0
+    obbiou.errors.InvalidInput: workers: expected a positive integer, got 0
     """
     given = [
         n for n, v in (("client", client), ("scheduler", scheduler), ("workers", workers)) if v
@@ -127,11 +125,12 @@ def connect(
     if workers is not None and (
         isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1
     ):
-        raise ValueError(f"workers: expected a positive integer, got {workers!r}")
+        raise InvalidInput("workers", f"expected a positive integer, got {workers!r}")
     if len(given) > 1:
-        raise ValueError(
+        reason = (
             "give at most one of client=, scheduler=, workers= (got " + " and ".join(given) + ")"
         )
+        raise InvalidInput(given[-1], reason, message=reason)
     distributed = _require_dask()
     if client is not None:
         yield client
@@ -222,14 +221,14 @@ def _sources(table: Any, *, what: str, chunks: int = 1, boxes: bool = False) -> 
         if path.is_dir():
             files = sorted(p for p in path.rglob("*.parquet") if p.is_file())
             if not files:
-                raise ValueError(f"{what}: folder {str(path)!r} holds no .parquet files")
+                raise InvalidInput(what, f"folder {str(path)!r} holds no .parquet files")
             table = dd.read_parquet(str(path))
             origin = f"Parquet dataset {str(path)!r}"
         elif path.is_file():
             frame = _read_file(path, what)
             return _in_memory(frame, what, chunks, origin=f"file {str(path)!r}")
         else:
-            raise ValueError(f"{what}: no such file or folder: {str(path)!r}")
+            raise InvalidInput(what, f"no such file or folder: {str(path)!r}")
     else:
         origin = "Dask DataFrame"
     if isinstance(table, dd.DataFrame):
@@ -263,9 +262,10 @@ def _read_file(path: Path, what: str) -> Any:
         return pd.read_csv(path)
     if suffix in (".jsonl", ".ndjson"):
         return pd.read_json(path, lines=True)
-    raise ValueError(
-        f"{what}: cannot read {str(path)!r}: expected .parquet, .csv or .jsonl, "
-        "or a folder of .parquet files"
+    raise InvalidInput(
+        what,
+        f"cannot read {str(path)!r}: expected .parquet, .csv or .jsonl, "
+        "or a folder of .parquet files",
     )
 
 
@@ -322,7 +322,7 @@ def _wait(
 ) -> list[Any] | None:
     """Wait for ``futures`` with a progress bar; raise at the first failure, naming it.
 
-    A task that raises surfaces at once (the others are cancelled) as a ``ValueError`` for
+    A task that raises surfaces at once (the others are cancelled) as an ``InvalidInput`` for
     bad input or a :class:`TaskFailed` otherwise, with the partition's name in front. A run
     that takes longer than ``timeout`` seconds raises ``TimeoutError``.
     """
@@ -338,8 +338,8 @@ def _wait(
                 exc = fut.exception()
                 name = by_key.get(fut.key, stage)
                 client.cancel(list(futures))
-                if isinstance(exc, ValueError):
-                    raise ValueError(f"{name}: {exc}") from exc
+                if isinstance(exc, ValueError):  # bad input (the gate's InvalidInput among them)
+                    raise InvalidInput(name, str(exc)) from exc
                 raise TaskFailed(f"{name}: task failed: {type(exc).__name__}: {exc}") from exc
             if fut.status == "cancelled":
                 client.cancel(list(futures))
@@ -436,9 +436,10 @@ def _join_tables(pieces: Sequence[Any]) -> Any:
     first = pieces[0]
     layouts = {p.shape for p in pieces if len(p)}
     if len(layouts) > 1:
-        raise ValueError(
-            f"{first.role}: partitions hold boxes of different layouts "
-            f"({', '.join(sorted(layouts))}); pass shape="
+        raise InvalidInput(
+            first.role,
+            f"partitions hold boxes of different layouts ({', '.join(sorted(layouts))}); "
+            "pass shape=",
         )
     layout = layouts.pop() if layouts else first.shape
     data = [p.boxes.data for p in pieces if len(p)] or [first.boxes.data]
@@ -611,7 +612,7 @@ def evaluate_distributed(
 
     Raises
     ------
-    ValueError
+    obbiou.errors.InvalidInput
         Bad input, naming the partition, then the row and the column.
     TaskFailed
         Any other failing task (a worker that died, a partition that could not be loaded),
@@ -642,14 +643,14 @@ def evaluate_distributed(
     from obbiou.evaluation.matching import parse_thresholds
 
     if iou is None:
-        raise ValueError("iou: give a threshold, e.g. 0.5")
+        raise InvalidInput("iou", "give a threshold, e.g. 0.5")
     thresholds = parse_thresholds(iou)  # bad options fail here, before any work is sent
     match_options = {"max_detections": max_detections}
     with connect(client=client, scheduler=scheduler, workers=workers) as cl:
         threads = _threads(cl)
         n_buckets = int(buckets) if buckets is not None else 2 * threads
         if n_buckets < 1:
-            raise ValueError(f"buckets: expected a positive integer, got {buckets!r}")
+            raise InvalidInput("buckets", f"expected a positive integer, got {buckets!r}")
         roles = {
             "truth": _read_here(truth, "truth", shape, degrees),
             "detections": _read_here(detections, "detections", shape, degrees),
@@ -728,8 +729,8 @@ def _table_layout(columns: Sequence[Any], shape: str | None, what: str) -> tuple
     cols = list(box_columns(layout, max(vertices, 3)))
     missing = [c for c in cols if c not in names]
     if missing:
-        raise ValueError(
-            f"{what}: missing column {missing[0]!r} (shape {layout!r} needs {' '.join(cols)})"
+        raise InvalidInput(
+            what, f"missing column {missing[0]!r} (shape {layout!r} needs {' '.join(cols)})"
         )
     return layout, cols
 
@@ -745,7 +746,8 @@ def _boxes_of(part: Any, shape: str | None, what: str) -> tuple[np.ndarray, str]
         try:
             data = part[cols].to_numpy(dtype=np.float64)
         except (TypeError, ValueError) as exc:
-            raise ValueError(f"non-numeric value in the box columns ({exc})") from None
+            reason = f"non-numeric value in the box columns ({exc})"
+            raise InvalidInput("row", reason, message=reason) from None
         if layout == "polygon":
             data = data.reshape(len(data), -1, 2)
         boxes = read_boxes(data, layout, name="row")
@@ -958,7 +960,7 @@ def overlapping_pairs_distributed(
 
     Raises
     ------
-    ValueError
+    obbiou.errors.InvalidInput
         Bad input, naming the partition and the row (``a partition 3 of 8 (Parquet dataset
         'scene/'): row[17]: negative width -3.0``).
     TaskFailed
@@ -1002,9 +1004,8 @@ def overlapping_pairs_distributed(
             held = list(prepared)
             layouts = {s["shape"] for s in stats if s["rows"]}
             if len(layouts) > 1:
-                raise ValueError(
-                    f"a and b: boxes of different layouts ({', '.join(sorted(layouts))})"
-                )
+                reason = f"boxes of different layouts ({', '.join(sorted(layouts))})"
+                raise InvalidInput("b", reason, message=f"a and b: {reason}")
             layout = layouts.pop() if layouts else stats[0]["shape"]
             grid = _plan_grid(stats, tiles if tiles is not None else 4 * threads)
             n_grid = grid.nx * grid.ny

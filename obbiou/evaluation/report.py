@@ -9,6 +9,7 @@ from typing import Any, NamedTuple
 
 import numpy as np
 
+from obbiou.errors import InvalidInput
 from obbiou.evaluation import ap as _ap
 from obbiou.evaluation import breakdown as _bd
 from obbiou.evaluation.bootstrap import (
@@ -72,16 +73,16 @@ def _parse_buckets(spec: Any, what: str) -> dict[str, tuple[float, float]]:
             try:
                 lo, hi = (float(v) for v in pair)
             except (TypeError, ValueError):
-                raise ValueError(
-                    f"{what}: bucket {name!r} needs (low, high), got {pair!r}"
+                raise InvalidInput(
+                    what, f"bucket {name!r} needs (low, high), got {pair!r}"
                 ) from None
             if not lo < hi:
-                raise ValueError(f"{what}: bucket {name!r} needs low < high, got {pair!r}")
+                raise InvalidInput(what, f"bucket {name!r} needs low < high, got {pair!r}")
             out[str(name)] = (lo, hi)
         return out
     edges = [float(e) for e in spec]
     if len(edges) < 2 or any(b <= a for a, b in zip(edges, edges[1:], strict=False)):
-        raise ValueError(f"{what}: expected increasing edges (at least two), got {spec!r}")
+        raise InvalidInput(what, f"expected increasing edges (at least two), got {spec!r}")
     return {f"{a:g}-{b:g}": (a, b) for a, b in zip(edges, edges[1:], strict=False)}
 
 
@@ -134,9 +135,10 @@ class Evaluation:
         for t in spec.values:
             hit = np.flatnonzero(np.abs(r.thresholds - t) < 1e-9)
             if not len(hit):
-                raise ValueError(
-                    f"iou: threshold {t:g} was not matched; records hold "
-                    f"{', '.join(_key(v) for v in r.thresholds)}"
+                raise InvalidInput(
+                    "iou",
+                    f"threshold {t:g} was not matched; records hold "
+                    f"{', '.join(_key(v) for v in r.thresholds)}",
                 )
             self._column[t] = int(hit[0])
         for lab in self.labels:
@@ -183,9 +185,10 @@ class Evaluation:
         for v, c in self._column.items():
             if abs(v - float(t)) < 1e-9:
                 return c
-        raise ValueError(
-            f"iou: {t!r} is not among the thresholds evaluated "
-            f"({', '.join(_key(v) for v in self.thresholds)})"
+        raise InvalidInput(
+            "iou",
+            f"{t!r} is not among the thresholds evaluated "
+            f"({', '.join(_key(v) for v in self.thresholds)})",
         )
 
     def _threshold(self, t: float) -> float:
@@ -198,8 +201,8 @@ class Evaluation:
     def _label(self, label: Any) -> str:
         lab = str(label)
         if lab not in self.labels:
-            raise ValueError(
-                f"label: {label!r} is not in the evaluation ({', '.join(self.labels)})"
+            raise InvalidInput(
+                "label", f"{label!r} is not in the evaluation ({', '.join(self.labels)})"
             )
         return lab
 
@@ -244,7 +247,7 @@ class Evaluation:
         lab = self._label(label)
         ts = self._thresholds_of(lab, iou)
         if not ts:
-            raise ValueError(f"iou: label {lab!r} is not evaluated at {iou!r}")
+            raise InvalidInput("iou", f"label {lab!r} is not evaluated at {iou!r}")
         values = [self._cells[(lab, t)][0] for t in ts]
         if any(v is None for v in values):
             return None
@@ -273,9 +276,9 @@ class Evaluation:
         lab = self._label(label)
         ts = self._spec.of(lab) if iou is None else (self._threshold(iou),)
         if len(ts) != 1:
-            raise ValueError("iou: several thresholds were evaluated; name one")
+            raise InvalidInput("iou", "several thresholds were evaluated; name one")
         if (lab, ts[0]) not in self._cells:
-            raise ValueError(f"iou: label {lab!r} is not evaluated at {iou!r}")
+            raise InvalidInput("iou", f"label {lab!r} is not evaluated at {iou!r}")
         return self._cells[(lab, ts[0])][1]
 
     def curve(self, label: Any, iou: float | None = None) -> _ap.Curve:
@@ -321,7 +324,7 @@ class Evaluation:
     ) -> np.ndarray:
         """(B,) the statistic (AP of a label, or mAP) under each row of frame weights."""
         if not self.labels:
-            raise ValueError("interval: nothing to resample (no truths and no detections)")
+            raise InvalidInput("interval", "nothing to resample (no truths and no detections)")
         if frame_code is None:
             frame_code = (self._dcode, self._tcode)
         nframes = weights.shape[1]
@@ -335,7 +338,7 @@ class Evaluation:
             values = resampled_ap(r, weights, *self._kind)
             per_label.append(values.mean(axis=1))  # NaN rows: no positives in that resample
         if not per_label:
-            raise ValueError(f"iou: no label is evaluated at {iou!r}")
+            raise InvalidInput("iou", f"no label is evaluated at {iou!r}")
         stacked = np.vstack(per_label)
         with np.errstate(invalid="ignore"):
             finite = np.isfinite(stacked)
@@ -596,7 +599,7 @@ def reduce_records(
     sizes = _parse_buckets(size_buckets, "size_buckets")
     ranges = _parse_buckets(range_buckets, "range_buckets")
     if ranges and rec.shape not in ("upright", "axis3"):
-        raise ValueError(f"range_buckets: need 3D boxes (upright, axis3), got {rec.shape!r}")
+        raise InvalidInput("range_buckets", f"need 3D boxes (upright, axis3), got {rec.shape!r}")
     opts["size_buckets"] = {k: list(v) for k, v in sizes.items()} or None
     opts["range_buckets"] = {k: list(v) for k, v in ranges.items()} or None
     kw = dict(
@@ -625,9 +628,10 @@ def _check_whole_frames(rec: MatchRecords) -> None:
         expected = np.arange(len(rank)) - np.repeat(np.r_[0, np.cumsum(counts)[:-1]], counts)
         if not np.array_equal(rank, expected):
             bad = frame[int(np.argmax(rank != expected))]
-            raise ValueError(
-                f"records: frame {bad!r} has its {what} in more than one part; match each "
-                "frame in one piece"
+            raise InvalidInput(
+                "records",
+                f"frame {bad!r} has its {what} in more than one part; match each frame "
+                "in one piece",
             )
 
 
@@ -734,7 +738,7 @@ def evaluate(
     True
     """
     if iou is None:
-        raise ValueError("iou: give a threshold, e.g. 0.5")
+        raise InvalidInput("iou", "give a threshold, e.g. 0.5")
     spec = parse_thresholds(iou)
     truth_t = read_table(truth, role="truth", shape=shape, degrees=degrees)
     det_t = read_table(detections, role="detections", shape=shape, degrees=degrees)
@@ -770,7 +774,7 @@ class Comparison:
         db = b._resampled(w, None, None, frame_code=codes[1])
         ma, mb = a.mean_ap(), b.mean_ap()
         if ma is None or mb is None:
-            raise ValueError("compare: mean AP is undefined (no truths)")
+            raise InvalidInput("compare", "mean AP is undefined (no truths)")
         self.mean_ap_a, self.mean_ap_b = ma, mb
         self.difference = mb - ma
         diffs = db - da

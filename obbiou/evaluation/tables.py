@@ -15,21 +15,21 @@ polygon     ``px0 py0 px1 py1 … px{K-1} py{K-1}`` (K >= 3 vertices; 4 for quad
 
 Angles are radians (counter-clockwise from +x towards +y) unless ``degrees=True``. Extra
 columns are kept in :attr:`Table.extra` and passed through. Nothing is dropped: a missing
-column, an empty cell, a non-numeric value, a NaN, a negative size or an invalid polygon is a
-``ValueError`` that names the file, the line (CSV, JSON Lines) or row (Parquet, DataFrame,
-mapping) and the column.
+column, an empty cell, a non-numeric value, a NaN, a negative size or an invalid polygon is an
+:class:`~obbiou.errors.InvalidTable` (a ``ValueError``) that names the file, the line (CSV,
+JSON Lines) or row (Parquet, DataFrame, mapping) and the column, as fields and in its text.
 """
 
 from __future__ import annotations
 
 import json
 import os
-import re
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
 import numpy as np
 
+from obbiou.errors import InvalidInput, InvalidTable
 from obbiou.shapes import COLUMNS, SHAPES, Boxes, read_boxes
 
 __all__ = ["Table", "read_table", "box_columns"]
@@ -51,7 +51,11 @@ def box_columns(shape: str, vertices: int = 4) -> tuple[str, ...]:
     if shape == "polygon":
         return tuple(c for k in range(vertices) for c in (f"px{k}", f"py{k}"))
     if shape not in COLUMNS:
-        raise ValueError(f"unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}")
+        raise InvalidInput(
+            "shape",
+            f"unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}",
+            message=f"unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}",
+        )
     return COLUMNS[shape]
 
 
@@ -112,7 +116,7 @@ class Table:
 
 
 class _Where:
-    """How to name a row of the source in messages: ``file.csv, line 7`` or ``row 5``."""
+    """Where a row of the source is, for errors: ``file.csv, line 7`` or ``row 5``."""
 
     def __init__(self, source: str, kind: str, first_line: int = 0, lines=None, index=None):
         self.source = source
@@ -121,15 +125,15 @@ class _Where:
         self.lines = lines  # explicit line numbers per row (JSON Lines)
         self.index = index  # DataFrame index labels
 
-    def __call__(self, row: int, column: str | None = None) -> str:
+    def error(self, row: int | None, column: str | None, reason: str) -> InvalidTable:
+        """The error for ``reason`` at data row ``row`` (0-based) and ``column``."""
+        if row is None:
+            return InvalidTable(self.source, reason, column=column)
+        line = None
         if self.kind == "line":
             line = self.lines[row] if self.lines is not None else row + self.first_line
-            place = f"{self.source}, line {line}"
-        elif self.index is not None:
-            place = f"{self.source}, row {self.index[row]!r}"
-        else:
-            place = f"{self.source}, row {row}"
-        return place if column is None else f"{place}, column {column!r}"
+        index = self.index[row] if self.index is not None else None
+        return InvalidTable(self.source, reason, line=line, row=row, column=column, index=index)
 
 
 def _read_jsonl(path: str) -> tuple[dict[str, list], list[int]]:
@@ -142,9 +146,10 @@ def _read_jsonl(path: str) -> tuple[dict[str, list], list[int]]:
             try:
                 obj = json.loads(text)
             except json.JSONDecodeError as exc:
-                raise ValueError(f"{path}, line {number}: not valid JSON ({exc.msg})") from None
+                raise InvalidTable(path, f"not valid JSON ({exc.msg})", line=number) from None
             if not isinstance(obj, dict):
-                raise ValueError(f"{path}, line {number}: expected a JSON object, got {obj!r:.40}")
+                reason = f"expected a JSON object, got {obj!r:.40}"
+                raise InvalidTable(path, reason, line=number)
             rows.append(obj)
             lines.append(number)
     names: list[str] = []
@@ -169,12 +174,12 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
         path = os.fspath(source)
         ext = os.path.splitext(path)[1].lower()
         if not os.path.exists(path):
-            raise ValueError(f"{path}: no such file")
+            raise InvalidTable(path, "no such file")
         if ext == ".csv":
             try:
                 df = pd.read_csv(path, skip_blank_lines=False)
             except Exception as exc:  # pandas parser errors name the line themselves
-                raise ValueError(f"{path}: cannot read as CSV ({exc})") from None
+                raise InvalidTable(path, f"cannot read as CSV ({exc})") from None
             # Line 1 is the header; with blank lines kept, row i is line i + 2.
             where = _Where(path, "line", first_line=2)
             return {str(c): df[c].to_numpy() for c in df.columns}, where, len(df)
@@ -182,15 +187,14 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
             try:
                 df = pd.read_parquet(path)
             except Exception as exc:
-                raise ValueError(f"{path}: cannot read as Parquet ({exc})") from None
+                raise InvalidTable(path, f"cannot read as Parquet ({exc})") from None
             return {str(c): df[c].to_numpy() for c in df.columns}, _Where(path, "row"), len(df)
         if ext in (".jsonl", ".ndjson"):
             cols, lines = _read_jsonl(path)
             arrays = {k: np.array(v, dtype=object) for k, v in cols.items()}
             return arrays, _Where(path, "line", lines=lines), len(lines)
-        raise ValueError(
-            f"{path}: unknown table format {ext!r}; expected .csv, .parquet (.pq) or "
-            ".jsonl (.ndjson)"
+        raise InvalidTable(
+            path, f"unknown table format {ext!r}; expected .csv, .parquet (.pq) or .jsonl (.ndjson)"
         )
     if isinstance(source, pd.DataFrame):
         cols = {str(c): source[c].to_numpy() for c in source.columns}
@@ -201,19 +205,18 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
         for key in source.keys():
             arr = np.asarray(source[key])
             if arr.ndim != 1:
-                raise ValueError(
-                    f"<mapping>, column {str(key)!r}: expected a 1-D column, got shape {arr.shape}"
-                )
+                reason = f"expected a 1-D column, got shape {arr.shape}"
+                raise InvalidTable("<mapping>", reason, column=str(key))
             if length is not None and len(arr) != length:
-                raise ValueError(
-                    f"<mapping>, column {str(key)!r}: has {len(arr)} rows, other columns {length}"
-                )
+                reason = f"has {len(arr)} rows, other columns {length}"
+                raise InvalidTable("<mapping>", reason, column=str(key))
             length = len(arr)
             cols[str(key)] = arr
         return cols, _Where("<mapping>", "row"), length or 0
-    raise ValueError(
-        "source: expected a file path (.csv, .parquet, .jsonl), a pandas DataFrame or a "
-        f"mapping of column -> array, got {type(source).__name__}"
+    raise InvalidInput(
+        "source",
+        "expected a file path (.csv, .parquet, .jsonl), a pandas DataFrame or a "
+        f"mapping of column -> array, got {type(source).__name__}",
     )
 
 
@@ -233,19 +236,19 @@ def _numeric(values: np.ndarray, column: str, where: _Where) -> np.ndarray:
         out = np.empty(len(values))
         for i, v in enumerate(values):
             if _is_empty(v):
-                raise ValueError(f"{where(i, column)}: empty value")
+                raise where.error(i, column, "empty value")
             if isinstance(v, bool):
                 out[i] = float(v)
                 continue
             try:
                 out[i] = float(v)
             except (TypeError, ValueError):
-                raise ValueError(f"{where(i, column)}: not a number: {v!r}") from None
+                raise where.error(i, column, f"not a number: {v!r}") from None
     bad = ~np.isfinite(out)
     if bad.any():
         i = int(np.argmax(bad))
         what = "empty value (NaN)" if np.isnan(out[i]) else f"infinite value {out[i]!r}"
-        raise ValueError(f"{where(i, column)}: {what}")
+        raise where.error(i, column, what)
     return out
 
 
@@ -271,7 +274,7 @@ def _ids(values: np.ndarray, column: str, where: _Where, *, text: bool) -> np.nd
 
     i = _first_empty(values)
     if i is not None:
-        raise ValueError(f"{where(i, column)}: empty value")
+        raise where.error(i, column, "empty value")
     if values.dtype.kind in "iub" or (
         values.dtype.kind == "f" and np.all(np.floor(values) == values)
     ):
@@ -303,7 +306,7 @@ def _bools(values: np.ndarray, column: str, where: _Where) -> np.ndarray:
         elif isinstance(v, str) and v.strip().lower() in truthy | falsy:
             out[i] = v.strip().lower() in truthy
         else:
-            raise ValueError(f"{where(i, column)}: expected true/false (or 1/0), got {v!r}")
+            raise where.error(i, column, f"expected true/false (or 1/0), got {v!r}")
     return out
 
 
@@ -326,25 +329,25 @@ def _infer_layout(names: set[str], source: str) -> str:
     if len(complete) == 1:
         return complete[0]
     if len(complete) > 1:
-        raise ValueError(
-            f"{source}: box columns of several layouts are present ({', '.join(complete)}); "
-            "pass shape= to choose one"
+        raise InvalidTable(
+            source,
+            f"box columns of several layouts are present ({', '.join(complete)}); "
+            "pass shape= to choose one",
         )
     # Name what is missing for the layout that is closest to complete.
     best = max(COLUMNS, key=lambda s: len(set(COLUMNS[s]) & names) / len(COLUMNS[s]))
     missing = [c for c in COLUMNS[best] if c not in names]
     if not set(COLUMNS[best]) & names:
-        raise ValueError(
-            f"{source}: no box columns found; expected one of: "
-            + "; ".join(f"{s}: {' '.join(box_columns(s))}" for s in SHAPES)
+        raise InvalidTable(
+            source,
+            "no box columns found; expected one of: "
+            + "; ".join(f"{s}: {' '.join(box_columns(s))}" for s in SHAPES),
         )
-    raise ValueError(
-        f"{source}: missing column {missing[0]!r} (the columns present look like the {best!r} "
-        f"layout: {' '.join(COLUMNS[best])})"
+    raise InvalidTable(
+        source,
+        f"missing column {missing[0]!r} (the columns present look like the {best!r} "
+        f"layout: {' '.join(COLUMNS[best])})",
     )
-
-
-_ROW_IN_MESSAGE = re.compile(r"^_boxes\[(\d+)\]: (.*)$")
 
 
 def read_table(
@@ -375,7 +378,7 @@ def read_table(
 
     Raises
     ------
-    ValueError
+    obbiou.errors.InvalidTable
         Naming the file, the line (CSV, JSON Lines: line numbers of the file, header = line
         1) or the row (0-based, Parquet / mapping; index label, DataFrame) and the column.
 
@@ -391,19 +394,19 @@ def read_table(
     ...            role="detections")
     Traceback (most recent call last):
     ...
-    ValueError: <mapping>, row 0, column 'width': negative width -2.0
+    obbiou.errors.InvalidTable: <mapping>, row 0, column 'width': negative width -2.0
     >>> read_table({"frame": [], "label": [], "score": [], "x_min": [], "y_min": [],
     ...             "x_max": [], "y_max": []}, role="detections").shape  # empty is fine
     'axis'
     """
     if isinstance(source, Table):
         if source.role != role:
-            raise ValueError(f"{source.source}: a {source.role} table was given as {role}")
+            raise InvalidTable(source.source, f"a {source.role} table was given as {role}")
         if shape is not None and source.shape != shape:
-            raise ValueError(f"{source.source}: table has shape {source.shape!r}, not {shape!r}")
+            raise InvalidTable(source.source, f"table has shape {source.shape!r}, not {shape!r}")
         return source
     if role not in _ROLES:
-        raise ValueError(f"role: expected 'truth' or 'detections', got {role!r}")
+        raise InvalidInput("role", f"expected 'truth' or 'detections', got {role!r}")
     cols, where, n = _load(source)
     name = where.source
     names = set(cols)
@@ -411,23 +414,24 @@ def read_table(
     for col in required:
         if col not in names:
             extra = " (detections need a score per row)" if col == "score" else ""
-            raise ValueError(f"{name}: missing column {col!r}{extra}")
+            raise InvalidTable(name, f"missing column {col!r}{extra}")
     layout = shape if shape is not None else _infer_layout(names, name)
     if layout not in SHAPES:
-        raise ValueError(
-            f"{name}: unknown shape {layout!r}; expected one of {', '.join(map(repr, SHAPES))}"
+        raise InvalidTable(
+            name, f"unknown shape {layout!r}; expected one of {', '.join(map(repr, SHAPES))}"
         )
     vertices = _polygon_vertices(names) if layout == "polygon" else 0
     if layout == "polygon" and vertices < 3:
-        raise ValueError(
-            f"{name}: missing column {'px0' if 'px0' not in names else 'py0'!r} "
-            "(polygon boxes need px0 py0 px1 py1 px2 py2 …)"
+        raise InvalidTable(
+            name,
+            f"missing column {'px0' if 'px0' not in names else 'py0'!r} "
+            "(polygon boxes need px0 py0 px1 py1 px2 py2 …)",
         )
     bcols = box_columns(layout, vertices)
     for col in bcols:
         if col not in names:
-            raise ValueError(
-                f"{name}: missing column {col!r} (shape {layout!r} needs {' '.join(bcols)})"
+            raise InvalidTable(
+                name, f"missing column {col!r} (shape {layout!r} needs {' '.join(bcols)})"
             )
 
     frame = _ids(cols["frame"], "frame", where, text=False)
@@ -445,26 +449,12 @@ def read_table(
         values[:, j] = np.deg2rad(values[:, j])
     data = values.reshape(n, vertices, 2) if layout == "polygon" else values
     try:
-        boxes = read_boxes(data, layout, name="_boxes")
-    except ValueError as exc:
-        m = _ROW_IN_MESSAGE.match(str(exc))
-        if not m:
-            raise ValueError(f"{name}: {exc}") from None
-        row, reason = int(m.group(1)), m.group(2)
-        raise ValueError(f"{where(row, _column_of(reason, bcols, layout))}: {reason}") from None
+        boxes = read_boxes(data, layout, name="boxes")
+    except InvalidInput as exc:
+        # The gate names the row and the position of the value in the row; a table names
+        # the line (or row) and the column. A fault of the whole box names all its columns.
+        column = " ".join(bcols) if exc.column is None else bcols[exc.column]
+        raise where.error(exc.row, column, exc.reason) from None
     used = set(required) | set(bcols) | ({"ignore"} if role == "truth" else set())
     extra = {c: v for c, v in cols.items() if c not in used}
     return Table(role, frame, label, score, ignore, boxes, extra, name)
-
-
-def _column_of(reason: str, bcols: tuple[str, ...], layout: str) -> str:
-    """The table column a box validation message is about (best effort, else all columns)."""
-    m = re.match(r"vertex (\d+) ([xy]) ", reason)
-    if m:
-        return f"p{m.group(2)}{m.group(1)}"
-    if layout == "polygon":
-        return " ".join(bcols)
-    for word in re.findall(r"[a-z_]+", reason):
-        if word in bcols:
-            return word
-    return " ".join(bcols)
