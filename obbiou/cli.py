@@ -23,15 +23,15 @@ from pathlib import Path
 from typing import Any
 
 from obbiou.errors import InvalidInput, TaskFailed
+from obbiou.tables import TABLE_SUFFIXES, frame_groups, write_table
 
-__all__ = ["main", "build_parser", "write_table", "parse_iou"]
+__all__ = ["main", "build_parser", "parse_iou"]
 
 #: Exit status for bad input (files, options), as argparse uses for bad options.
 BAD_INPUT = 2
 
 _SHAPES = ("axis", "rotated", "polygon", "axis3", "upright")
 _AP_KINDS = ("all-points", "11-point", "101-point", "step")
-_TABLE_SUFFIXES = (".csv", ".parquet", ".pq", ".jsonl", ".ndjson")
 _EXTRAS = {
     "pandas": "eval",
     "pyarrow": "eval",
@@ -245,41 +245,9 @@ def details_text(evaluation: Any, iou: float | None = None) -> str:
     return "\n".join(lines)
 
 
-def write_table(table: Any, path: Any) -> Path:
-    """Write a pandas DataFrame as CSV, Parquet or JSON Lines, chosen by the file suffix.
-
-    Examples
-    --------
-    >>> import pandas as pd, tempfile, os
-    >>> p = os.path.join(tempfile.mkdtemp(), "t.csv")
-    >>> _ = write_table(pd.DataFrame({"frame": [0], "iou": [0.25]}), p)
-    >>> open(p).read().splitlines()
-    ['frame,iou', '0,0.25']
-    >>> write_table(pd.DataFrame(), "t.xlsx")
-    Traceback (most recent call last):
-    ...
-    obbiou.errors.InvalidInput: t.xlsx: unknown table format '.xlsx'; use .csv, .parquet or .jsonl
-    """
-    path = Path(path)
-    suffix = path.suffix.lower()
-    if suffix not in _TABLE_SUFFIXES:
-        raise InvalidInput(
-            str(path), f"unknown table format {suffix!r}; use .csv, .parquet or .jsonl"
-        )
-    if path.parent and not path.parent.exists():
-        path.parent.mkdir(parents=True, exist_ok=True)
-    if suffix == ".csv":
-        table.to_csv(path, index=False)  # shortest text that reads back to the same float
-    elif suffix in (".parquet", ".pq"):
-        table.to_parquet(path, index=False)
-    else:
-        table.to_json(path, orient="records", lines=True, double_precision=15)
-    return path
-
-
 def _check_out(out: str | None) -> None:
     """Reject an output name of unknown format before any work is done."""
-    if out is not None and out != "-" and Path(out).suffix.lower() not in _TABLE_SUFFIXES:
+    if out is not None and out != "-" and Path(out).suffix.lower() not in TABLE_SUFFIXES:
         raise _Failure(
             f"--out {out}: unknown table format {Path(out).suffix or '(no suffix)'!r}; "
             "use .csv, .parquet or .jsonl"
@@ -294,41 +262,6 @@ def _emit(table: Any, out: str | None, note: str) -> None:
     else:
         write_table(table, out)
         print(f"{note}; wrote {out}", file=sys.stderr)
-
-
-def _table_frame(table: Any) -> Any:
-    """A validated :class:`obbiou.evaluation.Table` back as a DataFrame (input columns)."""
-    import numpy as np
-    import pandas as pd
-
-    from obbiou.evaluation.tables import box_columns
-
-    data = table.boxes.data
-    k = data.shape[1] if table.shape == "polygon" else 0
-    cols = box_columns(table.shape, k) if table.shape == "polygon" else box_columns(table.shape)
-    flat = data.reshape(data.shape[0], int(np.prod(data.shape[1:])))
-    out = {"frame": table.frame, "label": table.label}
-    if table.score is not None:
-        out["score"] = table.score
-    for j, c in enumerate(cols):
-        out[c] = flat[:, j]
-    if table.role == "truth" and table.ignore.any():
-        out["ignore"] = table.ignore
-    for c, v in table.extra.items():
-        out[c] = np.asarray(v)
-    return pd.DataFrame(out)
-
-
-def _groups(frames: Any) -> list[Any]:
-    """Row indices of each frame, frames in order of first appearance."""
-    import numpy as np
-
-    _, first, inverse = np.unique(frames, return_index=True, return_inverse=True)
-    order = np.argsort(first, kind="stable")
-    rows = np.argsort(inverse, kind="stable")
-    bounds = np.cumsum(np.bincount(inverse, minlength=len(first)))
-    parts = np.split(rows, bounds[:-1])
-    return [parts[i] for i in order]
 
 
 def _progress(items: Any, args: argparse.Namespace, what: str) -> Any:
@@ -444,7 +377,7 @@ def _cmd_suppress(args: argparse.Namespace) -> int:
     import numpy as np
 
     import obbiou
-    from obbiou.evaluation.tables import read_table
+    from obbiou.tables import read_table
 
     _check_out(args.out)
     # Read the numbers as written (the kept rows are written back unchanged) and turn degrees
@@ -455,7 +388,7 @@ def _cmd_suppress(args: argparse.Namespace) -> int:
         raise _Failure(f"--max-iou: expected a number in [0, 1], got {args.max_iou}")
     keep: list[np.ndarray] = []
     scores: list[np.ndarray] = []
-    for rows in _progress(_groups(table.frame), args, "suppress"):
+    for rows in _progress(frame_groups(table.frame), args, "suppress"):
         labels = None if args.across_labels else table.label[rows]
         kept = obbiou.suppress(
             boxes[rows],
@@ -471,7 +404,7 @@ def _cmd_suppress(args: argparse.Namespace) -> int:
         keep.append(rows[np.asarray(kept.indices, dtype=np.int64)])
         scores.append(np.asarray(kept.scores, dtype=np.float64))
     idx = np.concatenate(keep) if keep else np.zeros(0, dtype=np.int64)
-    out = _table_frame(table.take(idx))
+    out = table.take(idx).to_frame()
     out["score"] = np.concatenate(scores) if scores else np.zeros(0)
     frames = f"{len(keep)} frame" + ("" if len(keep) == 1 else "s")
     _emit(out, args.out, f"kept {len(out)} of {len(table)} boxes in {frames}")
@@ -496,7 +429,7 @@ def _cmd_overlap(args: argparse.Namespace) -> int:
     import pandas as pd
 
     import obbiou
-    from obbiou.evaluation.tables import read_table
+    from obbiou.tables import read_table
 
     _check_out(args.out)
     role = "truth"  # frame, label and boxes; a score column, if any, passes through
@@ -511,10 +444,10 @@ def _cmd_overlap(args: argparse.Namespace) -> int:
     shape = a.shape if a.shape == b.shape else None  # mixed layouts: each inferred
     b_rows = {}  # frames matched by their text, so 7 in one table meets "7" in the other
     if b is not a:
-        for rows in _groups(b.frame):
+        for rows in frame_groups(b.frame):
             b_rows[str(b.frame[rows[0]])] = rows
     parts = []
-    for rows in _progress(_groups(a.frame), args, "overlap"):
+    for rows in _progress(frame_groups(a.frame), args, "overlap"):
         frame = a.frame[rows[0]]
         if b is a:
             pairs = obbiou.overlapping_pairs(
@@ -574,7 +507,7 @@ def _cmd_warmup(args: argparse.Namespace) -> int:
 
     def evaluation() -> None:
         from obbiou.evaluation import evaluate
-        from obbiou.evaluation.tables import box_columns
+        from obbiou.tables import box_columns
 
         # One tiny table per layout: a match, an ignored detection, at ten thresholds.
         tiny = {

@@ -42,6 +42,7 @@ from typing import Any
 import numpy as np
 
 from obbiou.errors import InvalidInput, TaskFailed
+from obbiou.tables import TABLE_SUFFIXES, table_format
 
 __all__ = ["evaluate_distributed", "overlapping_pairs_distributed", "connect", "TaskFailed"]
 
@@ -219,10 +220,14 @@ def _sources(table: Any, *, what: str, chunks: int = 1, boxes: bool = False) -> 
     if isinstance(table, (str, os.PathLike)):
         path = Path(table)
         if path.is_dir():
-            files = sorted(p for p in path.rglob("*.parquet") if p.is_file())
+            files = sorted(
+                p
+                for p in path.rglob("*")
+                if p.is_file() and TABLE_SUFFIXES.get(p.suffix.lower()) == "parquet"
+            )
             if not files:
                 raise InvalidInput(what, f"folder {str(path)!r} holds no .parquet files")
-            table = dd.read_parquet(str(path))
+            table = dd.read_parquet([str(p) for p in files])
             origin = f"Parquet dataset {str(path)!r}"
         elif path.is_file():
             frame = _read_file(path, what)
@@ -255,18 +260,18 @@ def _sources(table: Any, *, what: str, chunks: int = 1, boxes: bool = False) -> 
 def _read_file(path: Path, what: str) -> Any:
     import pandas as pd
 
-    suffix = path.suffix.lower()
-    if suffix == ".parquet":
+    if path.suffix.lower() not in TABLE_SUFFIXES:
+        raise InvalidInput(
+            what,
+            f"cannot read {str(path)!r}: expected .parquet, .csv or .jsonl, "
+            "or a folder of .parquet files",
+        )
+    kind = table_format(path)
+    if kind == "parquet":
         return pd.read_parquet(path)
-    if suffix == ".csv":
+    if kind == "csv":
         return pd.read_csv(path)
-    if suffix in (".jsonl", ".ndjson"):
-        return pd.read_json(path, lines=True)
-    raise InvalidInput(
-        what,
-        f"cannot read {str(path)!r}: expected .parquet, .csv or .jsonl, "
-        "or a folder of .parquet files",
-    )
+    return pd.read_json(path, lines=True)
 
 
 def _in_memory(frame: Any, what: str, chunks: int, *, origin: str, raw: Any = None) -> _Source:
@@ -368,7 +373,7 @@ def _read_here(table: Any, role: str, shape: str | None, degrees: bool) -> Any:
     """
     import pandas as pd
 
-    from obbiou.evaluation.tables import Table, read_table
+    from obbiou.tables import Table, read_table
 
     is_file = isinstance(table, (str, os.PathLike)) and Path(table).is_file()
     if is_file or isinstance(table, (pd.DataFrame, dict, Table)):
@@ -418,7 +423,7 @@ def _split_frames(
 
     Extra columns are dropped here: matching does not use them, so they do not travel.
     """
-    from obbiou.evaluation.tables import read_table
+    from obbiou.tables import read_table
 
     table = read_table(part, role=role, shape=shape, degrees=degrees)
     table = replace(table, extra={})
@@ -430,8 +435,8 @@ def _split_frames(
 
 def _join_tables(pieces: Sequence[Any]) -> Any:
     """One table from per-partition pieces, in partition order (that is, input order)."""
-    from obbiou.evaluation.tables import Table
     from obbiou.shapes import Boxes
+    from obbiou.tables import Table
 
     first = pieces[0]
     layouts = {p.shape for p in pieces if len(p)}
@@ -720,12 +725,12 @@ def evaluate_distributed(
 
 def _table_layout(columns: Sequence[Any], shape: str | None, what: str) -> tuple[str, list]:
     """The layout of a box table and its box columns, by the rules tables are read by in
-    :func:`obbiou.evaluation.read_table` (the same column names, the same inference)."""
-    from obbiou.evaluation.tables import _infer_layout, _polygon_vertices, box_columns
+    :func:`obbiou.tables.read_table` (the same column names, the same inference)."""
+    from obbiou.tables import box_columns, infer_layout, polygon_vertices
 
     names = {str(c) for c in columns}
-    layout = shape if shape is not None else _infer_layout(names, what)
-    vertices = _polygon_vertices(names) if layout == "polygon" else 0
+    layout = shape if shape is not None else infer_layout(names, what)
+    vertices = polygon_vertices(names) if layout == "polygon" else 0
     cols = list(box_columns(layout, max(vertices, 3)))
     missing = [c for c in cols if c not in names]
     if missing:

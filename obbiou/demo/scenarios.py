@@ -142,7 +142,7 @@ class Scenario:
         dict of str to Path
             ``{"truth": path, "<name>": path, ...}``.
         """
-        from obbiou.cli import write_table
+        from obbiou.tables import write_table
 
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)

@@ -19,7 +19,7 @@ from obbiou.evaluation.report import (
     evaluate,
     reduce_records,
 )
-from obbiou.evaluation.tables import Table, read_table
+from obbiou.tables import Table, read_table
 
 __all__ = [
     "Comparison",

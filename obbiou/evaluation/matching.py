@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 
 from obbiou.errors import InvalidInput
-from obbiou.evaluation.tables import Table, read_table
+from obbiou.tables import Table, comparable_frame_ids, read_table
 
 __all__ = ["MatchRecords", "match_frames", "Thresholds", "parse_thresholds"]
 
@@ -204,13 +204,13 @@ class MatchRecords:
                 continue
             arrays = [getattr(p, f.name) for p in parts]
             if f.name in ("det_frame", "truth_frame"):
-                arrays = _common_ids(arrays)
+                arrays = comparable_frame_ids(arrays)
             values[f.name] = np.concatenate(arrays)
         return cls(first.thresholds, first.shape, **values)
 
     def canonical(self) -> MatchRecords:
         """The same records sorted by (frame, rank): one order however they were split."""
-        frames = _common_ids([self.det_frame, self.truth_frame])
+        frames = comparable_frame_ids([self.det_frame, self.truth_frame])
         both = np.concatenate(frames)
         _, codes = sorted_codes(both)
         dcode, tcode = codes[: self.n_detections], codes[self.n_detections :]
@@ -246,13 +246,6 @@ def sorted_codes(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     rank = np.empty(len(order), dtype=np.int64)
     rank[order] = np.arange(len(order))
     return uniques[order], rank[codes] if len(codes) else np.zeros(0, dtype=np.int64)
-
-
-def _common_ids(arrays: list[np.ndarray]) -> list[np.ndarray]:
-    """Frame id arrays in one kind: int64 if all are integer, else str."""
-    if all(a.dtype.kind in "iu" for a in arrays):
-        return [a.astype(np.int64) for a in arrays]
-    return [np.array([str(v) for v in a], dtype=object) for a in arrays]
 
 
 def _orientation(boxes: np.ndarray, shape: str) -> np.ndarray:
@@ -375,7 +368,7 @@ def _match_tables(
     from obbiou.boxes import envelope, size
 
     n, m, nk = len(dets), len(truth), len(thr)
-    tframe, dframe = _common_ids([truth.frame, dets.frame])
+    tframe, dframe = comparable_frame_ids([truth.frame, dets.frame])
     uniq, codes = sorted_codes(np.concatenate([dframe, tframe]))
     dcode, tcode = codes[:n].astype(np.int64), codes[n:].astype(np.int64)
     nframes = len(uniq)

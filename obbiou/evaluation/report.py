@@ -25,12 +25,11 @@ from obbiou.evaluation.matching import (
     TP,
     MatchRecords,
     Thresholds,
-    _common_ids,
     match_frames,
     parse_thresholds,
     sorted_codes,
 )
-from obbiou.evaluation.tables import Table, read_table
+from obbiou.tables import Table, comparable_frame_ids, read_table
 
 __all__ = ["Counts", "Evaluation", "Comparison", "evaluate", "compare", "reduce_records"]
 
@@ -122,7 +121,7 @@ class Evaluation:
         self.bucket = bucket
         self.buckets: dict[str, dict[str, Evaluation]] = {}
         r = records
-        frames = _common_ids([r.det_frame, r.truth_frame])
+        frames = comparable_frame_ids([r.det_frame, r.truth_frame])
         self.frames, codes = sorted_codes(np.concatenate(frames))
         self._dcode = codes[: r.n_detections].astype(np.int64)
         self._tcode = codes[r.n_detections :].astype(np.int64)
@@ -763,7 +762,7 @@ class Comparison:
     def __init__(self, a: Evaluation, b: Evaluation, *, resamples: int, level: float, seed: Any):
         self.a, self.b = a, b
         self.resamples, self.level, self.seed = resamples, level, seed
-        frames = _common_ids([a.frames, b.frames])
+        frames = comparable_frame_ids([a.frames, b.frames])
         self.frames = np.unique(np.concatenate(frames))
         codes = []
         for ev, fr in ((a, frames[0]), (b, frames[1])):

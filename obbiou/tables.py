@@ -1,4 +1,4 @@
-"""Reading detection and ground-truth tables (CSV, Parquet, JSON Lines, DataFrame, mapping).
+"""Tables of boxes: reading, writing, frame grouping (CSV, Parquet, JSON Lines, DataFrame, mapping).
 
 One row per box. Detections have ``frame, label, score`` and the box columns of their layout;
 ground truth has ``frame, label``, the box columns and an optional boolean ``ignore``.
@@ -18,6 +18,11 @@ columns are kept in :attr:`Table.extra` and passed through. Nothing is dropped: 
 column, an empty cell, a non-numeric value, a NaN, a negative size or an invalid polygon is an
 :class:`~obbiou.errors.InvalidTable` (a ``ValueError``) that names the file, the line (CSV,
 JSON Lines) or row (Parquet, DataFrame, mapping) and the column, as fields and in its text.
+
+This module is also the one place for the facts every table user shares:
+:data:`TABLE_SUFFIXES` (the file formats, read and written), :func:`comparable_frame_ids`
+(how frame ids of two tables compare: as integers when both are integers, else as text) and
+:func:`frame_groups` (the rows of each frame).
 """
 
 from __future__ import annotations
@@ -25,6 +30,7 @@ from __future__ import annotations
 import json
 import os
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, Literal
 
 import numpy as np
@@ -32,10 +38,121 @@ import numpy as np
 from obbiou.errors import InvalidInput, InvalidTable
 from obbiou.shapes import COLUMNS, SHAPES, Boxes, read_boxes
 
-__all__ = ["Table", "read_table", "box_columns"]
+__all__ = [
+    "Table",
+    "read_table",
+    "write_table",
+    "box_columns",
+    "infer_layout",
+    "polygon_vertices",
+    "TABLE_SUFFIXES",
+    "table_format",
+    "comparable_frame_ids",
+    "frame_groups",
+]
+
+#: File suffixes of tables and the format each names; every reader and writer uses this list.
+TABLE_SUFFIXES: dict[str, str] = {
+    ".csv": "csv",
+    ".parquet": "parquet",
+    ".pq": "parquet",
+    ".jsonl": "jsonl",
+    ".ndjson": "jsonl",
+}
 
 _ROLES = ("truth", "detections")
 _ANGLE_COLUMNS = {"rotated": "angle", "upright": "yaw"}
+
+
+def table_format(path: Any) -> str:
+    """The format of a table file, from its suffix: ``"csv"``, ``"parquet"`` or ``"jsonl"``.
+
+    Examples
+    --------
+    >>> table_format("scans/run1.PQ"), table_format("dets.ndjson")
+    ('parquet', 'jsonl')
+    >>> table_format("t.xlsx")
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidTable: t.xlsx: unknown table format '.xlsx'; expected .csv, .parquet
+    (.pq) or .jsonl (.ndjson)
+    """
+    path = os.fspath(path)
+    ext = os.path.splitext(path)[1].lower()
+    if ext not in TABLE_SUFFIXES:
+        raise InvalidTable(
+            path,
+            f"unknown table format {ext or '(no suffix)'!r}; expected .csv, .parquet (.pq) or "
+            ".jsonl (.ndjson)",
+        )
+    return TABLE_SUFFIXES[ext]
+
+
+def write_table(table: Any, path: Any) -> Path:
+    """Write a pandas DataFrame as CSV, Parquet or JSON Lines, chosen by the file suffix.
+
+    Floats are written so that they read back equal: CSV with the shortest text that does,
+    JSON Lines with 15 significant digits.
+
+    Examples
+    --------
+    >>> import pandas as pd, tempfile, os
+    >>> p = os.path.join(tempfile.mkdtemp(), "t.csv")
+    >>> _ = write_table(pd.DataFrame({"frame": [0], "iou": [0.25]}), p)
+    >>> open(p).read().splitlines()
+    ['frame,iou', '0,0.25']
+    """
+    path = Path(path)
+    kind = table_format(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    if kind == "csv":
+        table.to_csv(path, index=False)  # shortest text that reads back to the same float
+    elif kind == "parquet":
+        table.to_parquet(path, index=False)
+    else:
+        table.to_json(path, orient="records", lines=True, double_precision=15)
+    return path
+
+
+def comparable_frame_ids(arrays: list[np.ndarray]) -> list[np.ndarray]:
+    """Frame id arrays of several tables, made comparable by the one rule for frame ids.
+
+    The rule: ids compare as integers when every table's ids are integers (int64), else as
+    text (``str`` of each id), so that frame ``7`` of one table meets frame ``"7"`` of
+    another. Evaluation, the scene commands and the cluster's frame buckets follow it.
+
+    Examples
+    --------
+    >>> a, b = comparable_frame_ids([np.array([7, 8]), np.array(["7"], dtype=object)])
+    >>> a.tolist(), b.tolist()
+    (['7', '8'], ['7'])
+    >>> comparable_frame_ids([np.array([1]), np.array([2], dtype=np.int32)])[1].dtype
+    dtype('int64')
+    """
+    if all(a.dtype.kind in "iu" for a in arrays):
+        return [a.astype(np.int64) for a in arrays]
+    return [np.array([str(v) for v in a], dtype=object) for a in arrays]
+
+
+def frame_groups(frames: np.ndarray) -> list[np.ndarray]:
+    """Row indices of each frame, frames in order of first appearance, rows in input order.
+
+    Examples
+    --------
+    >>> [g.tolist() for g in frame_groups(np.array([5, 3, 5, 9, 3]))]
+    [[0, 2], [1, 4], [3]]
+    >>> frame_groups(np.array([], dtype=np.int64))
+    []
+    """
+    if len(frames) == 0:
+        return []
+    _, first, inverse = np.unique(frames, return_index=True, return_inverse=True)
+    inverse = inverse.reshape(-1)
+    order = np.argsort(first, kind="stable")
+    rows = np.argsort(inverse, kind="stable")
+    bounds = np.cumsum(np.bincount(inverse, minlength=len(first)))
+    parts = np.split(rows, bounds[:-1])
+    return [parts[i] for i in order]
 
 
 def box_columns(shape: str, vertices: int = 4) -> tuple[str, ...]:
@@ -99,6 +216,28 @@ class Table:
     def shape(self) -> str:
         """The box layout name."""
         return self.boxes.shape
+
+    def to_frame(self) -> Any:
+        """The table as a pandas DataFrame with the input columns (angles as read).
+
+        Columns: ``frame, label``, ``score`` (detections), the box columns, ``ignore`` (truth,
+        when any row is ignored), then the extra columns.
+        """
+        import pandas as pd
+
+        data = self.boxes.data
+        cols = box_columns(self.shape, data.shape[1] if self.shape == "polygon" else 4)
+        flat = data.reshape(data.shape[0], int(np.prod(data.shape[1:])))
+        out: dict[str, Any] = {"frame": self.frame, "label": self.label}
+        if self.score is not None:
+            out["score"] = self.score
+        for j, c in enumerate(cols):
+            out[c] = flat[:, j]
+        if self.role == "truth" and self.ignore.any():
+            out["ignore"] = self.ignore
+        for c, v in self.extra.items():
+            out[c] = np.asarray(v)
+        return pd.DataFrame(out)
 
     def take(self, rows: np.ndarray) -> Table:
         """The rows ``rows`` (indices or boolean mask) as a new table."""
@@ -172,10 +311,10 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
 
     if isinstance(source, (str, os.PathLike)):
         path = os.fspath(source)
-        ext = os.path.splitext(path)[1].lower()
+        kind = table_format(path)
         if not os.path.exists(path):
             raise InvalidTable(path, "no such file")
-        if ext == ".csv":
+        if kind == "csv":
             try:
                 df = pd.read_csv(path, skip_blank_lines=False)
             except Exception as exc:  # pandas parser errors name the line themselves
@@ -183,19 +322,15 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
             # Line 1 is the header; with blank lines kept, row i is line i + 2.
             where = _Where(path, "line", first_line=2)
             return {str(c): df[c].to_numpy() for c in df.columns}, where, len(df)
-        if ext in (".parquet", ".pq"):
+        if kind == "parquet":
             try:
                 df = pd.read_parquet(path)
             except Exception as exc:
                 raise InvalidTable(path, f"cannot read as Parquet ({exc})") from None
             return {str(c): df[c].to_numpy() for c in df.columns}, _Where(path, "row"), len(df)
-        if ext in (".jsonl", ".ndjson"):
-            cols, lines = _read_jsonl(path)
-            arrays = {k: np.array(v, dtype=object) for k, v in cols.items()}
-            return arrays, _Where(path, "line", lines=lines), len(lines)
-        raise InvalidTable(
-            path, f"unknown table format {ext!r}; expected .csv, .parquet (.pq) or .jsonl (.ndjson)"
-        )
+        cols, lines = _read_jsonl(path)
+        arrays = {k: np.array(v, dtype=object) for k, v in cols.items()}
+        return arrays, _Where(path, "line", lines=lines), len(lines)
     if isinstance(source, pd.DataFrame):
         cols = {str(c): source[c].to_numpy() for c in source.columns}
         return cols, _Where("<DataFrame>", "row", index=list(source.index)), len(source)
@@ -310,21 +445,30 @@ def _bools(values: np.ndarray, column: str, where: _Where) -> np.ndarray:
     return out
 
 
-def _polygon_vertices(names: set[str]) -> int:
+def polygon_vertices(names: set[str]) -> int:
+    """How many polygon vertices the columns ``px0 py0 px1 py1 …`` present give."""
     k = 0
     while f"px{k}" in names and f"py{k}" in names:
         k += 1
     return k
 
 
-def _infer_layout(names: set[str], source: str) -> str:
+def infer_layout(names: set[str], source: str) -> str:
+    """The box layout whose columns are present among ``names`` (``source`` names the table
+    in errors).
+
+    Examples
+    --------
+    >>> infer_layout({"frame", "cx", "cy", "cz", "length", "width", "height", "yaw"}, "t")
+    'upright'
+    """
     complete = [s for s in ("upright", "axis3", "rotated", "axis") if set(COLUMNS[s]) <= names]
     # A 3D layout's columns include those of a 2D one; the 3D one is meant.
     if "upright" in complete and "rotated" in complete:
         complete.remove("rotated")
     if "axis3" in complete:
         complete = [s for s in complete if s != "axis"]
-    if _polygon_vertices(names) >= 3:
+    if polygon_vertices(names) >= 3:
         complete.append("polygon")
     if len(complete) == 1:
         return complete[0]
@@ -415,12 +559,12 @@ def read_table(
         if col not in names:
             extra = " (detections need a score per row)" if col == "score" else ""
             raise InvalidTable(name, f"missing column {col!r}{extra}")
-    layout = shape if shape is not None else _infer_layout(names, name)
+    layout = shape if shape is not None else infer_layout(names, name)
     if layout not in SHAPES:
         raise InvalidTable(
             name, f"unknown shape {layout!r}; expected one of {', '.join(map(repr, SHAPES))}"
         )
-    vertices = _polygon_vertices(names) if layout == "polygon" else 0
+    vertices = polygon_vertices(names) if layout == "polygon" else 0
     if layout == "polygon" and vertices < 3:
         raise InvalidTable(
             name,
