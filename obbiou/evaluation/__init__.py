@@ -19,6 +19,7 @@ from obbiou.evaluation.report import (
     evaluate,
     reduce_records,
 )
+from obbiou.evaluation.text import details_text
 from obbiou.tables import Table, read_table
 
 __all__ = [
@@ -29,6 +30,7 @@ __all__ = [
     "Table",
     "Thresholds",
     "compare",
+    "details_text",
     "evaluate",
     "match_frames",
     "parse_thresholds",
