@@ -10,15 +10,10 @@ Detection metrics do not establish that a vehicle, robot or any other system is 
 to the applicable safety standards, local regulation and qualified engineers.
 """
 
+from obbiou.evaluation.compare import Comparison, compare
 from obbiou.evaluation.matching import MatchRecords, Thresholds, match_frames, parse_thresholds
-from obbiou.evaluation.report import (
-    Comparison,
-    Counts,
-    Evaluation,
-    compare,
-    evaluate,
-    reduce_records,
-)
+from obbiou.evaluation.protocol import evaluate
+from obbiou.evaluation.result import Counts, Evaluation, reduce_records
 from obbiou.evaluation.text import details_text
 from obbiou.tables import Table, read_table
 

@@ -15,13 +15,17 @@ from typing import Any
 
 import numpy as np
 
+from obbiou._kernels.codes import Outcome
 from obbiou.errors import InvalidInput
 from obbiou.tables import Table, comparable_frame_ids, read_table
 
 __all__ = ["MatchRecords", "match_frames", "Thresholds", "parse_thresholds"]
 
-#: Outcome codes in :attr:`MatchRecords.det_outcome`.
-FP, TP, IGNORED, CAPPED = 0, 1, 2, 3
+#: Outcome codes in :attr:`MatchRecords.det_outcome`, as plain ints (the int8 outcome arrays
+#: and the kernels hold these; the names are those of obbiou._kernels.codes.Outcome).
+FP, TP, IGNORED, CAPPED = (
+    int(o) for o in (Outcome.FP, Outcome.TP, Outcome.IGNORED, Outcome.CAPPED)
+)
 
 
 @dataclass(frozen=True)
