@@ -13,7 +13,6 @@ import numpy as np
 import pytest
 
 pytest.importorskip("distributed")
-pytest.importorskip("obbiou.scene")
 pd = pytest.importorskip("pandas")
 dd = pytest.importorskip("dask.dataframe")
 

@@ -8,7 +8,7 @@ import json
 import pytest
 
 from obbiou.demo.scenarios import simulate_detector, warehouse_lidar
-from tests.test_cli import one_line_error, run
+from tests.cli.test_commands import one_line_error, run
 
 pytest.importorskip("distributed")
 
