@@ -18,7 +18,7 @@ def test_gate_error_carries_row_column_and_reason():
     with pytest.raises(InvalidInput) as info:
         check(boxes, name="a")
     err = info.value
-    assert str(err) == "a[17]: negative width -3.0"  # DESIGN §4's example, hand-worked
+    assert str(err) == "a[17]: negative width -3.0"  # docs/design.md §4's example, hand-worked
     assert (err.argument, err.row, err.column, err.reason) == ("a", 17, 2, "negative width -3.0")
     assert isinstance(err, ValueError)
 

@@ -203,7 +203,7 @@ def _check_family(kind, a, b, measured, exact_area, scale):
     """What every family guarantees, and agreement with the outside reference."""
     inter_ref, iou_ref = exact_area
     iou_ab, iou_ba, inter, cov_ba = measured
-    assert iou_ab == iou_ba  # symmetric exactly (DESIGN §4)
+    assert iou_ab == iou_ba  # symmetric exactly (docs/design.md §4)
     assert 0.0 <= iou_ab <= 1.0 and not math.isnan(iou_ab)
     assert iou_ab == pytest.approx(iou_ref, abs=scale)  # shapely / scipy reference
     if kind == "identical":

@@ -22,7 +22,7 @@ detector is not any real model.
 Angles are in radians, counter-clockwise from +x towards +y (in the harbour's y-down pixel
 frame the same number turns a box clockwise on screen). Truth tables have the columns
 ``frame, label, <box columns>, ignore``; detection tables ``frame, label, score,
-<box columns>`` (DESIGN §6). A truth is marked ``ignore`` when it cannot be judged fairly:
+<box columns>`` (docs/design.md §6). A truth is marked ``ignore`` when it cannot be judged fairly:
 cut by the tile edge (harbour) or too far from the sensor for a reliable annotation
 (warehouse).
 

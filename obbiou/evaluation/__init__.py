@@ -4,7 +4,12 @@ Map then reduce: :func:`match_frames` matches each frame into compact
 :class:`MatchRecords`; :func:`reduce_records` turns (concatenated) records into an
 :class:`Evaluation` (AP, counts, intervals, breakdowns). :func:`evaluate` is both in one call,
 :func:`compare` a paired bootstrap comparison of two detectors. Tables are read by
-:func:`read_table`.
+:func:`obbiou.tables.read_table` (also importable from here).
+
+Where things are: ``matching`` (the map step and the match records), ``ap``, ``bootstrap``
+and ``breakdown`` (the numbers), ``result`` (:class:`Evaluation`, :class:`Counts`, the reduce
+step), ``protocol`` (:func:`evaluate`, the protocol written out), ``compare``, ``text``
+(summaries), ``plots`` (precision-recall curves on a matplotlib Figure) and ``palette``.
 
 Detection metrics do not establish that a vehicle, robot or any other system is safe; defer
 to the applicable safety standards, local regulation and qualified engineers.

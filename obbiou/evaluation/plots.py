@@ -23,6 +23,19 @@ def draw_curves(
     ``iou`` defaults to the lowest threshold; ``title``, when given, heads the figure above
     the per-threshold caption. The step curve is drawn as evaluated (precision after each
     ranked detection) with its monotone envelope as a thicker line. Returns the axes.
+
+    Examples
+    --------
+    >>> from matplotlib.figure import Figure
+    >>> from obbiou.evaluation import evaluate
+    >>> box = {"cx": [0.0, 9.0], "cy": [0.0, 0.0], "width": [2.0] * 2, "height": [1.0] * 2,
+    ...        "angle": [0.0] * 2}
+    >>> ev = evaluate({"frame": [0, 0], "label": ["ship", "crane"], **box},
+    ...               {"frame": [0], "label": ["ship"], "score": [0.9],
+    ...                **{k: v[:1] for k, v in box.items()}})
+    >>> ax = draw_curves(ev, Figure())
+    >>> [t.get_text() for t in ax.get_legend().get_texts()]  # crane: truths, no detections
+    ['crane  AP 0.000', 'ship  AP 1.000']
     """
     import numpy as np
 

@@ -178,7 +178,7 @@ def test_evaluate_hand_case_and_json_equals_to_dict(hand_files, tmp_path):
     )
     assert proc.returncode == 0, proc.stderr
     written = json.loads(out_json.read_text())
-    # The JSON the command writes is Evaluation.to_dict() of the same files (DESIGN §7).
+    # The JSON the command writes is Evaluation.to_dict() of the same files (docs/design.md §7).
     assert written == json.loads(json.dumps(evaluate(truth, dets).to_dict()))
     # All-points AP worked out by hand with exact fractions: precisions at the TPs are 1, 2/3,
     # 3/4; the monotone envelope makes them 1, 3/4, 3/4; AP = (1 + 3/4 + 3/4) / 3.
