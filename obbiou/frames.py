@@ -29,6 +29,7 @@ from typing import Any
 
 import numpy as np
 
+from obbiou.errors import InvalidInput
 from obbiou.scene import overlapping_pairs, suppress
 from obbiou.tables import Table, comparable_frame_ids, frame_groups
 
@@ -135,11 +136,22 @@ def overlap_frames(
     pandas.DataFrame
         Columns ``frame, first, second, first_label, second_label, iou``; ``first`` and
         ``second`` are row numbers of ``a`` and ``b`` (data rows from 0).
+
+    Raises
+    ------
+    obbiou.errors.InvalidInput
+        When one table holds 2D boxes and the other 3D boxes.
     """
     import pandas as pd
 
     same = b is None
     b = a if b is None else b
+    if a.boxes.is_3d != b.boxes.is_3d:  # checked once here, before any frame is worked on
+        raise InvalidInput(
+            "b",
+            f"{b.shape!r} boxes cannot be paired with a of layout {a.shape!r} (one is 3D, the "
+            "other 2D); for bird's-eye view take obbiou.boxes.footprint of the 3D boxes",
+        )
     shape = a.shape if a.shape == b.shape else None  # mixed layouts: each inferred
     a_ids, b_ids = comparable_frame_ids([a.frame, b.frame])
     b_rows = {} if same else {b_ids[rows[0]]: rows for rows in frame_groups(b_ids)}

@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 import obbiou
+from obbiou.errors import InvalidInput
 from obbiou.frames import overlap_frames, suppress_frames
 from obbiou.tables import read_table
 
@@ -68,3 +70,23 @@ def test_empty_table_gives_empty_results():
         "second_label",
         "iou",
     ]
+
+
+def test_2d_and_3d_tables_do_not_pair():
+    a = table([0], role="truth")
+    b = read_table(
+        {
+            "frame": [0],
+            "label": ["pallet"],
+            "cx": [1.0],
+            "cy": [1.0],
+            "cz": [0.5],
+            "length": [1.2],
+            "width": [0.8],
+            "height": [1.0],
+            "yaw": [0.0],
+        },
+        role="truth",
+    )
+    with pytest.raises(InvalidInput, match=r"^b: 'upright' boxes cannot be paired"):
+        overlap_frames(a, b)
