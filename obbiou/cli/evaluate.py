@@ -84,7 +84,8 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from obbiou.evaluation import details_text, evaluate
+    from obbiou.evaluation import evaluate
+    from obbiou.evaluation.text import buckets_text, details_text, interval_text
 
     opts = matching_options(args)
     sizes = bucket_edges(args.size_buckets, "--size-buckets")
@@ -104,19 +105,14 @@ def run(args: argparse.Namespace) -> int:
         result = evaluate(args.truth, args.detections, progress=not args.quiet, **opts)
     print(result.summary())
     if args.interval:
-        lo, hi = result.interval(resamples=args.resamples, level=args.level, seed=args.seed)
-        print(
-            f"\nmean AP {result.mean_ap():.4f}, {args.level:.0%} interval [{lo:.4f}, {hi:.4f}]"
-            f" (bootstrap over frames, {args.resamples} resamples, seed {args.seed})"
-        )
+        print()
+        print(interval_text(result, resamples=args.resamples, level=args.level, seed=args.seed))
     if args.details:
         print()
         print(details_text(result))
-    for by, group in result.buckets.items():
-        print(f"\nmean AP by {by}:")
-        for name, sub in group.items():
-            m = sub.mean_ap()
-            print(f"  {name:>14}: " + ("n/a" if m is None else f"{m:.4f}"))
+    if result.buckets:
+        print()
+        print(buckets_text(result))
     if args.json:
         result.to_json(args.json)
         print(f"wrote {args.json}", file=sys.stderr)

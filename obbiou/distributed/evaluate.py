@@ -47,8 +47,9 @@ def _frame_buckets(frame: np.ndarray, n_buckets: int) -> np.ndarray:
     """Bucket of each frame id, the same in every process and for either table.
 
     Integer ids are mixed by splitmix64. Text ids that spell an integer (``"7"``) go where
-    that integer goes, because in-process evaluation matches ``7`` and ``"7"`` (it compares
-    ids as text once one table has text ids); other text is hashed with pandas' fixed-key
+    that integer goes: by the frame-id rule (:func:`obbiou.tables.comparable_frame_ids`) ``7``
+    and ``"7"`` are one frame once either table has text ids, and a partition cannot know
+    what the other table holds; other text is hashed with pandas' fixed-key
     hash, not Python's per-process ``hash``.
     """
     import pandas as pd

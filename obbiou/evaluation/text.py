@@ -10,7 +10,14 @@ from __future__ import annotations
 import math
 from typing import Any
 
-__all__ = ["SAFETY_NOTE", "summary_text", "details_text", "comparison_text"]
+__all__ = [
+    "SAFETY_NOTE",
+    "summary_text",
+    "details_text",
+    "interval_text",
+    "buckets_text",
+    "comparison_text",
+]
 
 SAFETY_NOTE = (
     "Detection metrics only: they do not establish that a vehicle, robot or any other system "
@@ -145,6 +152,42 @@ def details_text(evaluation: Any, iou: float | None = None) -> str:
                 )
             )
     return "\n".join(lines)
+
+
+def interval_text(
+    evaluation: Any, *, resamples: int = 1000, level: float = 0.95, seed: Any = 0
+) -> str:
+    """mean AP with its bootstrap interval over frames, as one line."""
+    lo, hi = evaluation.interval(resamples=resamples, level=level, seed=seed)
+    return (
+        f"mean AP {evaluation.mean_ap():.4f}, {level:.0%} interval [{lo:.4f}, {hi:.4f}]"
+        f" (bootstrap over frames, {resamples} resamples, seed {seed})"
+    )
+
+
+def buckets_text(evaluation: Any) -> str:
+    """mean AP of each size or range bucket, one block per kind of bucket ("" if none).
+
+    Examples
+    --------
+    >>> from obbiou.evaluation import evaluate
+    >>> box = {"x_min": [0, 10], "y_min": [0, 0], "x_max": [1, 15], "y_max": [1, 5]}
+    >>> ev = evaluate({"frame": [0, 0], "label": ["cone"] * 2, **box},
+    ...               {"frame": [0], "label": ["cone"], "score": [0.9],
+    ...                **{k: v[:1] for k, v in box.items()}}, size_buckets=[0, 2, 100])
+    >>> print(buckets_text(ev))
+    mean AP by size:
+                 0-2: 1.0000
+               2-100: 0.0000
+    """
+    blocks = []
+    for by, group in evaluation.buckets.items():
+        lines = [f"mean AP by {by}:"]
+        for name, sub in group.items():
+            m = sub.mean_ap()
+            lines.append(f"  {name:>14}: " + ("n/a" if m is None else f"{m:.4f}"))
+        blocks.append("\n".join(lines))
+    return "\n\n".join(blocks)
 
 
 def comparison_text(comparison: Any) -> str:
