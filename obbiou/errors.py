@@ -24,6 +24,8 @@ True
 
 from __future__ import annotations
 
+from typing import Any
+
 __all__ = ["InvalidInput", "InvalidTable", "TaskFailed"]
 
 
@@ -39,25 +41,38 @@ class InvalidInput(ValueError):
     row : int, optional
         The first offending row (0-based, as numpy indexes it).
     column : str or int, optional
-        The offending column: a name for tables, a position for arrays.
+        The offending column: a name for tables, a position along the last axis for arrays
+        (for polygons, ``2 * vertex + axis``: the position in the flattened row). ``str()``
+        does not repeat it for arrays (the reason names the value in words);
+        :class:`InvalidTable` shows it.
+    message : str, optional
+        The line to show when two arguments are at fault together and the usual
+        ``argument[row]: reason`` form does not read well (``argument`` then names the one
+        that does not fit the other).
     """
 
     def __init__(
-        self, argument: str, reason: str, *, row: int | None = None, column: str | int | None = None
+        self,
+        argument: str,
+        reason: str,
+        *,
+        row: int | None = None,
+        column: str | int | None = None,
+        message: str | None = None,
     ) -> None:
         self.argument = argument
         self.reason = reason
         self.row = None if row is None else int(row)
         self.column = column
-        super().__init__(self._where() + ": " + reason)
+        self.message = message
+        super().__init__(str(self))
 
     def _where(self) -> str:
-        where = self.argument if self.row is None else f"{self.argument}[{self.row}]"
-        if self.column is not None:
-            where += f", column {self.column!r}"
-        return where
+        return self.argument if self.row is None else f"{self.argument}[{self.row}]"
 
     def __str__(self) -> str:
+        if getattr(self, "message", None) is not None:
+            return self.message
         return self._where() + ": " + self.reason
 
     def __reduce__(self):  # keep the fields across pickling (cluster tasks)
@@ -69,7 +84,14 @@ class InvalidTable(InvalidInput):
     in-memory tables), the line of a file or the row of a table, the column, the reason.
 
     ``line`` counts as editors do (1-based, the header is line 1); ``row`` is the 0-based
-    data row. Either may be None when the problem is not in one row (a missing column).
+    data row; ``index`` the row's label in a pandas DataFrame's index, shown instead of the
+    row when given. Any may be None when the problem is not in one row (a missing column).
+
+    Examples
+    --------
+    >>> err = InvalidTable("<DataFrame>", "empty value", row=1, index="b", column="cy")
+    >>> str(err), err.row, err.column
+    ("<DataFrame>, row 'b', column 'cy': empty value", 1, 'cy')
     """
 
     def __init__(
@@ -80,15 +102,19 @@ class InvalidTable(InvalidInput):
         line: int | None = None,
         row: int | None = None,
         column: str | int | None = None,
+        index: Any = None,
     ) -> None:
         self.source = str(source)
         self.line = None if line is None else int(line)
+        self.index = index
         super().__init__(self.source, reason, row=row, column=column)
 
     def _where(self) -> str:
         where = self.source
         if self.line is not None:
             where += f", line {self.line}"
+        elif self.index is not None:
+            where += f", row {self.index!r}"
         elif self.row is not None:
             where += f", row {self.row}"
         if self.column is not None:

@@ -30,7 +30,18 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["SHAPES", "COLUMNS", "Boxes", "read_boxes", "check", "infer_shape", "same_length"]
+from obbiou.errors import InvalidInput
+
+__all__ = [
+    "SHAPES",
+    "COLUMNS",
+    "Boxes",
+    "read_boxes",
+    "check",
+    "infer_shape",
+    "same_length",
+    "as_float_array",
+]
 
 SHAPES: tuple[str, ...] = ("axis", "rotated", "polygon", "axis3", "upright")
 
@@ -80,23 +91,39 @@ class Boxes:
         return self.shape in ("axis3", "upright")
 
 
-def _as_float_array(boxes: Any, name: str) -> np.ndarray:
+def as_float_array(boxes: Any, name: str) -> np.ndarray:
+    """``boxes`` as a float64 C-contiguous array, or :class:`~obbiou.errors.InvalidInput`.
+
+    Examples
+    --------
+    >>> as_float_array([[1, 2], [3, 4]], "points").dtype
+    dtype('float64')
+    >>> as_float_array(["a", "b"], "points")
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: points: expected numbers, got dtype <U1
+    """
     try:
         arr = np.asarray(boxes)
     except Exception as exc:  # e.g. ragged nested lists
-        raise ValueError(f"{name}: cannot read as an array of numbers ({exc})") from None
+        raise InvalidInput(name, f"cannot read as an array of numbers ({exc})") from None
     if arr.dtype == object:
         try:
             arr = arr.astype(np.float64)
         except (TypeError, ValueError):
-            raise ValueError(
-                f"{name}: cannot read as an array of numbers (ragged rows or non-numeric values)"
+            raise InvalidInput(
+                name, "cannot read as an array of numbers (ragged rows or non-numeric values)"
             ) from None
     if arr.dtype.kind == "c":
-        raise ValueError(f"{name}: complex numbers are not box coordinates")
+        raise InvalidInput(name, "complex numbers are not box coordinates")
     if arr.dtype.kind not in "fiub":
-        raise ValueError(f"{name}: expected numbers, got dtype {arr.dtype}")
+        raise InvalidInput(name, f"expected numbers, got dtype {arr.dtype}")
     return np.ascontiguousarray(arr, dtype=np.float64)
+
+
+# The old private name, still imported by obbiou.boxes (being rewritten; it will import the
+# public name). Remove with that import.
+_as_float_array = as_float_array
 
 
 def infer_shape(dims: tuple[int, ...], shape: str | None = None, *, name: str = "boxes") -> str:
@@ -118,7 +145,7 @@ def infer_shape(dims: tuple[int, ...], shape: str | None = None, *, name: str = 
 
     Raises
     ------
-    ValueError
+    obbiou.errors.InvalidInput
         If ``dims`` match no layout, or do not fit the layout given.
 
     Examples
@@ -134,27 +161,30 @@ def infer_shape(dims: tuple[int, ...], shape: str | None = None, *, name: str = 
     >>> infer_shape((3, 4), "rotated")
     Traceback (most recent call last):
     ...
-    ValueError: boxes: shape='rotated' needs (N, 5) or (5,) boxes, got an array of shape (3, 4)
+    obbiou.errors.InvalidInput: boxes: shape='rotated' needs (N, 5) or (5,) boxes, got an
+    array of shape (3, 4)
     """
     if shape is not None:
         if shape not in SHAPES:
-            raise ValueError(
-                f"{name}: unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}"
+            raise InvalidInput(
+                name, f"unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}"
             )
         if shape == "polygon":
             if len(dims) not in (2, 3) or dims[-1] != 2:
-                raise ValueError(
-                    f"{name}: shape='polygon' needs (N, K, 2) or (K, 2) vertices, "
-                    f"got an array of shape {tuple(dims)}"
+                raise InvalidInput(
+                    name,
+                    "shape='polygon' needs (N, K, 2) or (K, 2) vertices, "
+                    f"got an array of shape {tuple(dims)}",
                 )
             if dims[-2] < 3 and not (len(dims) == 3 and dims[0] == 0):
-                raise ValueError(f"{name}: a polygon needs at least 3 vertices, got K={dims[-2]}")
+                raise InvalidInput(name, f"a polygon needs at least 3 vertices, got K={dims[-2]}")
             return shape
         width = len(COLUMNS[shape])
         if len(dims) not in (1, 2) or dims[-1] != width:
-            raise ValueError(
-                f"{name}: shape={shape!r} needs (N, {width}) or ({width},) boxes, "
-                f"got an array of shape {tuple(dims)}"
+            raise InvalidInput(
+                name,
+                f"shape={shape!r} needs (N, {width}) or ({width},) boxes, "
+                f"got an array of shape {tuple(dims)}",
             )
         return shape
     if len(dims) == 3 and dims[-1] == 2:
@@ -164,8 +194,8 @@ def infer_shape(dims: tuple[int, ...], shape: str | None = None, *, name: str = 
     hint = ""
     if len(dims) == 2 and dims[-1] == 2:
         hint = "; for a single polygon pass shape='polygon'"
-    raise ValueError(
-        f"{name}: array of shape {tuple(dims)} matches no box layout ({_LAYOUT_HELP}{hint})"
+    raise InvalidInput(
+        name, f"array of shape {tuple(dims)} matches no box layout ({_LAYOUT_HELP}{hint})"
     )
 
 
@@ -189,7 +219,7 @@ def read_boxes(boxes: Any, shape: str | None = None, *, name: str = "boxes") -> 
 
     Raises
     ------
-    ValueError
+    obbiou.errors.InvalidInput
         For any input that :func:`check` rejects.
 
     Examples
@@ -198,11 +228,9 @@ def read_boxes(boxes: Any, shape: str | None = None, *, name: str = "boxes") -> 
     >>> b.shape, b.single, b.data.shape
     ('rotated', True, (1, 5))
     """
-    arr = _as_float_array(boxes, name)
+    arr = as_float_array(boxes, name)
     if arr.ndim == 1 and arr.size == 0 and shape is None:
-        raise ValueError(
-            f"{name}: an empty 1-D array has no layout; pass shape= or an (0, C) array"
-        )
+        raise InvalidInput(name, "an empty 1-D array has no layout; pass shape= or an (0, C) array")
     layout = infer_shape(arr.shape, shape, name=name)
     single = arr.ndim == (2 if layout == "polygon" else 1)
     if single:
@@ -233,7 +261,7 @@ def check(boxes: Any, shape: str | None = None, *, name: str = "boxes") -> np.nd
 
     Raises
     ------
-    ValueError
+    obbiou.errors.InvalidInput
         Naming the argument, the first offending row and the reason: a NaN or infinite
         value, a negative size, an inverted extent (``x_max < x_min``), a polygon with fewer
         than 3 vertices or one that is not convex or crosses itself, or dimensions that
@@ -244,19 +272,19 @@ def check(boxes: Any, shape: str | None = None, *, name: str = "boxes") -> np.nd
     >>> check([[0, 0, 4, 2, 0.0], [1, 1, -3.0, 2, 0.0]], name="a")
     Traceback (most recent call last):
     ...
-    ValueError: a[1]: negative width -3.0
+    obbiou.errors.InvalidInput: a[1]: negative width -3.0
     >>> check([[0, 0, 1, 1], [2, 0, 1, 1]], name="gt")
     Traceback (most recent call last):
     ...
-    ValueError: gt[1]: x_max 1.0 < x_min 2.0
+    obbiou.errors.InvalidInput: gt[1]: x_max 1.0 < x_min 2.0
     >>> check([[0, 0, float("nan"), 1, 0]])
     Traceback (most recent call last):
     ...
-    ValueError: boxes[0]: width is NaN
+    obbiou.errors.InvalidInput: boxes[0]: width is NaN
     >>> check([[[0, 0], [2, 0], [1, 1], [2, 2], [0, 2]]])  # a notch: not convex
     Traceback (most recent call last):
     ...
-    ValueError: boxes[0]: polygon is not convex (it turns the other way at vertex 2)
+    obbiou.errors.InvalidInput: boxes[0]: polygon is not convex (it turns the other way at vertex 2)
     >>> check([[0, 0, 1, 1]]).dtype
     dtype('float64')
     """
@@ -272,12 +300,14 @@ def same_length(a: Boxes, b: Boxes, *, names: tuple[str, str] = ("a", "b")) -> N
     >>> same_length(read_boxes([[0, 0, 1, 1]]), read_boxes([[0, 0, 1, 1]] * 2))
     Traceback (most recent call last):
     ...
-    ValueError: elementwise=True needs as many rows in a as in b: a has 1, b has 2
+    obbiou.errors.InvalidInput: elementwise=True needs as many rows in a as in b: a has 1, b has 2
     """
     if len(a) != len(b):
-        raise ValueError(
-            f"elementwise=True needs as many rows in {names[0]} as in {names[1]}: "
-            f"{names[0]} has {len(a)}, {names[1]} has {len(b)}"
+        reason = f"{names[0]} has {len(a)}, {names[1]} has {len(b)}"
+        raise InvalidInput(
+            names[1],
+            reason,
+            message=f"elementwise=True needs as many rows in {names[0]} as in {names[1]}: {reason}",
         )
 
 
@@ -320,11 +350,13 @@ def _validate(arr: np.ndarray, layout: str, name: str) -> None:
         failures.append(_too_large(clean, layout))
     found = [f for f in failures if f is not None]
     if found:
-        row, reason = min(found, key=lambda f: f[0])
-        raise ValueError(f"{name}[{row}]: {reason}")
+        row, reason, column = min(found, key=lambda f: f[0])
+        raise InvalidInput(name, reason, row=row, column=column)
 
 
-Failure = tuple[int, str] | None
+#: The first failing row, the reason, and the column at fault (its position in the flattened
+#: row; None when the whole box is at fault), or None when no row fails.
+Failure = tuple[int, str, int | None] | None
 
 
 def _non_finite(arr: np.ndarray, finite: np.ndarray, layout: str) -> Failure:
@@ -338,7 +370,7 @@ def _non_finite(arr: np.ndarray, finite: np.ndarray, layout: str) -> Failure:
     where = _column_name(layout, col)
     if layout == "polygon":
         where = f"vertex {vertex} {where}"
-    return row, f"{where} is {what}"
+    return row, f"{where} is {what}", vertex * arr.shape[-1] + col
 
 
 def _negative_size(arr: np.ndarray, layout: str) -> Failure:
@@ -351,7 +383,7 @@ def _negative_size(arr: np.ndarray, layout: str) -> Failure:
         return None
     row = _first_bad(neg)
     col = cols[0] + int(np.argmax(neg[row]))
-    return row, f"negative {_column_name(layout, col)} {float(arr[row, col])!r}"
+    return row, f"negative {_column_name(layout, col)} {float(arr[row, col])!r}", col
 
 
 def _too_large(arr: np.ndarray, layout: str) -> Failure:
@@ -371,7 +403,7 @@ def _too_large(arr: np.ndarray, layout: str) -> Failure:
         return None
     row = _first_bad(bad)
     what = "volume" if layout in ("axis3", "upright") else "area"
-    return row, f"box too large: its {what} overflows float64"
+    return row, f"box too large: its {what} overflows float64", None
 
 
 def _inverted_extent(arr: np.ndarray, layout: str, lo: int, hi: int) -> Failure:
@@ -380,7 +412,8 @@ def _inverted_extent(arr: np.ndarray, layout: str, lo: int, hi: int) -> Failure:
         return None
     row = _first_bad(bad)
     cols = COLUMNS[layout]
-    return row, f"{cols[hi]} {float(arr[row, hi])!r} < {cols[lo]} {float(arr[row, lo])!r}"
+    reason = f"{cols[hi]} {float(arr[row, hi])!r} < {cols[lo]} {float(arr[row, lo])!r}"
+    return row, reason, hi
 
 
 def _bad_polygons(poly: np.ndarray) -> list[Failure]:
@@ -418,7 +451,8 @@ def _bad_polygons(poly: np.ndarray) -> list[Failure]:
     if wrong.any():
         row = _first_bad(wrong)
         vertex = (int(np.argmax(wrong[row])) + 1) % poly.shape[1]
-        failures.append((row, f"polygon is not convex (it turns the other way at vertex {vertex})"))
+        reason = f"polygon is not convex (it turns the other way at vertex {vertex})"
+        failures.append((row, reason, None))
     # A convex-turning polygon that is simple turns through exactly 2*pi in total; a star
     # (pentagram) turns through 4*pi and crosses itself.
     turning = np.abs(np.arctan2(cross, dot).sum(axis=1))
@@ -426,5 +460,5 @@ def _bad_polygons(poly: np.ndarray) -> list[Failure]:
     if crossing.any():
         row = _first_bad(crossing)
         winds = int(round(turning[row] / (2 * np.pi)))
-        failures.append((row, f"polygon crosses itself (it winds around {winds} times)"))
+        failures.append((row, f"polygon crosses itself (it winds around {winds} times)", None))
     return failures

@@ -4,7 +4,7 @@ Import them from any test module::
 
     from tests.strategies import FAR, rotated_box, rotated_pair, convex_polygon
 
-Every strategy draws float64 numpy arrays in the layouts of DESIGN §2 (single boxes are 1-D,
+Every strategy draws float64 numpy arrays in the layouts of docs/design.md §2 (single boxes are 1-D,
 polygons ``(K, 2)``, batches have a leading axis). Common options:
 
 ``centre``

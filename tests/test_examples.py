@@ -11,8 +11,6 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from tests.test_cli import needs_library
-
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLES = sorted((ROOT / "examples").glob("*.py"))
 
@@ -36,7 +34,6 @@ def test_the_three_examples_exist():
         assert "INVENTED" in p.read_text(), p  # each says its data is invented
 
 
-@needs_library
 @pytest.mark.parametrize("path", EXAMPLES, ids=[p.stem for p in EXAMPLES])
 def test_example_runs(path, tmp_path):
     proc = run_example(path, tmp_path)

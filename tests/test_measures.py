@@ -302,7 +302,7 @@ def test_input_forms_give_the_same_values():
 
 
 # ---------------------------------------------------------------------------------------
-# bad input: ValueError naming the argument, the row and the reason (DESIGN section 4)
+# bad input: ValueError naming the argument, the row and the reason (docs/design.md §4)
 
 
 @pytest.mark.parametrize(

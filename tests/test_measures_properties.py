@@ -11,6 +11,7 @@ from hypothesis import strategies as st
 
 from obbiou.boxes import corners
 from obbiou.measures import coverage, diou, giou, intersection, iou
+from tests.strategies import FAR, FAR_SIZES, PAIR_KINDS, polygon_pair, rotated_pair, upright_pair
 
 shapely = pytest.importorskip("shapely")
 
@@ -177,3 +178,97 @@ def test_upright_ranges_symmetry_identity(rows):
     volume = np.prod(boxes[:, 3:6], axis=1)
     assume(volume.max() > 0)
     assert (np.diag(iou(boxes, boxes))[volume > 0] == 1.0).all()
+
+
+# ---------------------------------------------------------------------------------------
+# The shared adversarial families of tests/strategies.py: identical, nested, shared edge,
+# touching corner, near parallel, disjoint, random; near the origin and at map-metre offsets.
+
+
+def _rectangle(box):
+    """Corners of a rotated box, written out here (not by obbiou), for shapely."""
+    cx, cy, w, h, t = (float(v) for v in box)
+    c, s = math.cos(t), math.sin(t)
+    local = [(-w / 2, -h / 2), (w / 2, -h / 2), (w / 2, h / 2), (-w / 2, h / 2)]
+    return [(cx + x * c - y * s, cy + x * s + y * c) for x, y in local]
+
+
+def _shift_for(a, far):
+    """A shift that moves a far pair near the origin exactly (Sterbenz: same sign, within a
+    factor of two), so that shapely, which works at the given coordinates, loses no digits."""
+    return (math.trunc(a[0]), math.trunc(a[1])) if far else (0, 0)
+
+
+def _check_family(kind, a, b, measured, exact_area, scale):
+    """What every family guarantees, and agreement with the outside reference."""
+    inter_ref, iou_ref = exact_area
+    iou_ab, iou_ba, inter, cov_ba = measured
+    assert iou_ab == iou_ba  # symmetric exactly (docs/design.md §4)
+    assert 0.0 <= iou_ab <= 1.0 and not math.isnan(iou_ab)
+    assert iou_ab == pytest.approx(iou_ref, abs=scale)  # shapely / scipy reference
+    if kind == "identical":
+        assert iou_ab == 1.0
+    elif kind == "disjoint":
+        assert iou_ab == 0.0 and inter == 0.0
+    elif kind in ("shared_edge", "touching_corner"):
+        assert iou_ab == pytest.approx(0.0, abs=scale)  # interiors disjoint
+    elif kind == "nested":
+        assert cov_ba == pytest.approx(1.0, abs=scale)  # b lies inside a
+    assert inter == pytest.approx(inter_ref, rel=scale, abs=scale)
+
+
+@SETTINGS
+@given(st.sampled_from(PAIR_KINDS), st.data())
+@pytest.mark.parametrize("far", [False, True])
+def test_rotated_families_against_shapely(far, kind, data):
+    a, b, kind = data.draw(
+        rotated_pair(kind, centre=FAR, sizes=FAR_SIZES) if far else rotated_pair(kind)
+    )
+    sx, sy = _shift_for(a, far)
+    pa = shapely.Polygon([(x - sx, y - sy) for x, y in _rectangle(a)])
+    pb = shapely.Polygon([(x - sx, y - sy) for x, y in _rectangle(b)])
+    inter_ref = pa.intersection(pb).area
+    union = pa.area + pb.area - inter_ref
+    iou_ref = inter_ref / union if union > 0 else 0.0
+    measured = (iou(a, b), iou(b, a), intersection(a, b), coverage(b, a))
+    _check_family(kind, a, b, measured, (inter_ref, iou_ref), 1e-7 if far else 1e-9)
+
+
+@SETTINGS
+@given(st.sampled_from(PAIR_KINDS), st.data())
+@pytest.mark.parametrize("far", [False, True])
+def test_polygon_families_against_shapely(far, kind, data):
+    a, b, kind = data.draw(
+        polygon_pair(kind, centre=FAR, sizes=FAR_SIZES) if far else polygon_pair(kind)
+    )
+    sx, sy = _shift_for(a[0], far)
+    pa, pb = shapely.Polygon(a - [sx, sy]), shapely.Polygon(b - [sx, sy])
+    inter_ref = pa.intersection(pb).area
+    union = pa.area + pb.area - inter_ref
+    iou_ref = inter_ref / union if union > 0 else 0.0
+    p = {"shape": "polygon"}
+    measured = (iou(a, b, **p), iou(b, a, **p), intersection(a, b, **p), coverage(b, a, **p))
+    _check_family(kind, a, b, measured, (inter_ref, iou_ref), 1e-7 if far else 1e-9)
+
+
+@SETTINGS
+@given(st.sampled_from(PAIR_KINDS), st.data())
+@pytest.mark.parametrize("far", [False, True])
+def test_upright_families_against_shapely_footprints(far, kind, data):
+    a, b, kind = data.draw(
+        upright_pair(kind, centre=FAR, sizes=FAR_SIZES) if far else upright_pair(kind)
+    )
+    sx, sy = _shift_for(a, far)
+
+    def footprint(box):  # cx cy cz length width height yaw -> ground rectangle
+        return shapely.Polygon(
+            [(x - sx, y - sy) for x, y in _rectangle([box[0], box[1], box[3], box[4], box[6]])]
+        )
+
+    # volume of the overlap = footprint overlap (shapely) x overlap of the z intervals
+    dz = min(a[2] + a[5] / 2, b[2] + b[5] / 2) - max(a[2] - a[5] / 2, b[2] - b[5] / 2)
+    inter_ref = footprint(a).intersection(footprint(b)).area * max(dz, 0.0)
+    union = a[3] * a[4] * a[5] + b[3] * b[4] * b[5] - inter_ref
+    iou_ref = inter_ref / union if union > 0 else 0.0
+    measured = (iou(a, b), iou(b, a), intersection(a, b), coverage(b, a))
+    _check_family(kind, a, b, measured, (inter_ref, iou_ref), 1e-7 if far else 1e-9)

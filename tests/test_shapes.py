@@ -1,4 +1,4 @@
-"""Validation of box input (obbiou.shapes, exposed as obbiou.boxes.check): DESIGN §2 and §4.
+"""Validation of box input (obbiou.shapes, exposed as obbiou.boxes.check): docs/design.md §2 and §4.
 
 Every invalid case must raise a ValueError naming the argument, the first offending row and
 the reason; valid edge cases must pass unchanged as float64. The last part checks that the
@@ -49,7 +49,7 @@ def raises(message: str):
     return pytest.raises(ValueError, match="^" + re.escape(message) + "$")
 
 
-# ------------------------------------------------------------------ invalid input (DESIGN §4)
+# ---------------------------------------------------------------- invalid input (docs/design.md §4)
 
 
 @pytest.mark.parametrize(

@@ -1,9 +1,9 @@
 """A picture of one scene: truths and detections in the project palette (invented data).
 
-Truths are navy ``#1f3b73`` solid, matched detections amber ``#e0a100``, false positives
-magenta ``#b0207a`` dashed, missed truths navy dotted; ignore truths are navy with a light
-fill and the detections they absorb light grey. Upright 3D boxes are drawn from above
-(bird's-eye view, their footprints) with a tick towards the heading.
+Colours come from :data:`obbiou.evaluation.palette.PALETTE`: truths navy solid, matched
+detections amber, false positives magenta dashed, missed truths navy dotted; ignore truths
+are navy with a light fill and the detections they absorb light grey. Upright 3D boxes are
+drawn from above (bird's-eye view, their footprints) with a tick towards the heading.
 """
 
 from __future__ import annotations
@@ -13,16 +13,12 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["PALETTE", "draw_scene"]
+from obbiou.evaluation.palette import PALETTE
 
-#: The project palette (DESIGN §7).
-PALETTE = {
-    "truth": "#1f3b73",
-    "matched": "#e0a100",
-    "false_positive": "#b0207a",
-    "ignored": "#9a9a9a",
-    "water": "#eef3f8",
-}
+__all__ = ["draw_scene"]
+
+#: The harbour's water behind the boxes (scene backdrop only, not part of the palette).
+_WATER = "#eef3f8"
 
 
 def _outlines(boxes: np.ndarray, shape: str) -> tuple[np.ndarray, np.ndarray | None]:
@@ -86,13 +82,10 @@ def draw_scene(
     pathlib.Path
         The file written.
     """
-    import matplotlib
-
-    matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
     from matplotlib.collections import LineCollection
+    from matplotlib.figure import Figure
     from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch, Polygon
+    from matplotlib.patches import Circle, Patch, Polygon
     from matplotlib.transforms import offset_copy
 
     path = Path(path)
@@ -105,7 +98,8 @@ def draw_scene(
 
     x0, y0, x1, y1 = window or scenario.extent
     aspect = (y1 - y0) / (x1 - x0)
-    fig, ax = plt.subplots(figsize=(9.6, 9.6 * aspect * 0.86 + 2.4), dpi=110)
+    fig = Figure(figsize=(9.6, 9.6 * aspect * 0.86 + 2.4), dpi=110)  # no pyplot, no backend switch
+    ax = fig.subplots()
     ax.set_xlim(x0, x1)
     ax.set_ylim(y1, y0) if scenario.y_down else ax.set_ylim(y0, y1)
     ax.set_aspect("equal")
@@ -115,7 +109,7 @@ def draw_scene(
         _draw_quay(ax, scenario, frame, Polygon)
     if scenario.name == "warehouse":
         for r, text in ((24.0, "24 m: beyond, truths are ignore"), (30.0, "30 m sweep range")):
-            ring = plt.Circle((0, 0), r, fill=False, color="#c8c8c8", lw=0.8, ls="-")
+            ring = Circle((0, 0), r, fill=False, color="#c8c8c8", lw=0.8, ls="-")
             ax.add_patch(ring)
             # Label the ring where it crosses the view: try a few bearings.
             for deg in (17.0, 163.0, -17.0, -163.0):
@@ -255,7 +249,6 @@ def draw_scene(
     fig.tight_layout()
     path.parent.mkdir(parents=True, exist_ok=True)
     fig.savefig(path, bbox_inches="tight", pad_inches=0.25)
-    plt.close(fig)
     return path
 
 
@@ -274,9 +267,7 @@ def _draw_quay(ax: Any, scenario: Any, frame: str, polygon: Any) -> None:
         centre + along * far + across * far,
         centre - along * far + across * far,
     ]
-    ax.add_patch(
-        polygon(water, closed=True, facecolor=PALETTE["water"], edgecolor="none", zorder=0)
-    )
+    ax.add_patch(polygon(water, closed=True, facecolor=_WATER, edgecolor="none", zorder=0))
     edge = np.array([centre - along * far, centre + along * far])
     ax.plot(edge[:, 0], edge[:, 1], color="#b8c4d0", lw=1.0, zorder=0.5)
     label_at = centre + across * 40 / HARBOUR_METRES_PER_PIXEL

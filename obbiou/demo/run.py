@@ -387,7 +387,7 @@ def _section(
     frame: str,
 ) -> list[str]:
     """The report's text for one scenario."""
-    from obbiou.cli import details_text
+    from obbiou.evaluation import details_text
 
     head = cfg["headline"]
     t = scenario.truth

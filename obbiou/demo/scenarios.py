@@ -22,7 +22,7 @@ detector is not any real model.
 Angles are in radians, counter-clockwise from +x towards +y (in the harbour's y-down pixel
 frame the same number turns a box clockwise on screen). Truth tables have the columns
 ``frame, label, <box columns>, ignore``; detection tables ``frame, label, score,
-<box columns>`` (DESIGN §6). A truth is marked ``ignore`` when it cannot be judged fairly:
+<box columns>`` (docs/design.md §6). A truth is marked ``ignore`` when it cannot be judged fairly:
 cut by the tile edge (harbour) or too far from the sensor for a reliable annotation
 (warehouse).
 
@@ -53,6 +53,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from obbiou.errors import InvalidInput
 from obbiou.shapes import COLUMNS
 
 __all__ = [
@@ -141,7 +142,7 @@ class Scenario:
         dict of str to Path
             ``{"truth": path, "<name>": path, ...}``.
         """
-        from obbiou.cli import write_table
+        from obbiou.tables import write_table
 
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
@@ -282,7 +283,7 @@ def harbour_survey(frames: int = 6, *, seed: int = 0) -> Scenario:
     True
     """
     if frames < 0:
-        raise ValueError(f"frames: must be >= 0, got {frames}")
+        raise InvalidInput("frames", f"must be >= 0, got {frames}")
     rng = np.random.default_rng([seed, 1])
     m = HARBOUR_METRES_PER_PIXEL
     extent = (0.0, 0.0, float(HARBOUR_TILE), float(HARBOUR_TILE))
@@ -461,7 +462,7 @@ def warehouse_lidar(frames: int = 8, *, seed: int = 0) -> Scenario:
     (True, True)
     """
     if frames < 0:
-        raise ValueError(f"frames: must be >= 0, got {frames}")
+        raise InvalidInput("frames", f"must be >= 0, got {frames}")
     rng = np.random.default_rng([seed, 2])
     world = _warehouse_world(rng)
     movers = _movers(rng)
@@ -679,12 +680,13 @@ def simulate_detector(
     >>> simulate_detector(s, "perfect")
     Traceback (most recent call last):
     ...
-    ValueError: version: unknown detector 'perfect'; expected 'baseline' or 'improved'
+    obbiou.errors.InvalidInput: version: unknown detector 'perfect'; expected 'baseline' or
+    'improved'
     """
     if isinstance(version, str):
         if version not in DETECTORS:
-            raise ValueError(
-                f"version: unknown detector {version!r}; expected 'baseline' or 'improved'"
+            raise InvalidInput(
+                "version", f"unknown detector {version!r}; expected 'baseline' or 'improved'"
             )
         model = DETECTORS[version]
     else:

@@ -4,22 +4,23 @@ Map then reduce: :func:`match_frames` matches each frame into compact
 :class:`MatchRecords`; :func:`reduce_records` turns (concatenated) records into an
 :class:`Evaluation` (AP, counts, intervals, breakdowns). :func:`evaluate` is both in one call,
 :func:`compare` a paired bootstrap comparison of two detectors. Tables are read by
-:func:`read_table`.
+:func:`obbiou.tables.read_table` (also importable from here).
+
+Where things are: ``matching`` (the map step and the match records), ``ap``, ``bootstrap``
+and ``breakdown`` (the numbers), ``result`` (:class:`Evaluation`, :class:`Counts`, the reduce
+step), ``protocol`` (:func:`evaluate`, the protocol written out), ``compare``, ``text``
+(summaries), ``plots`` (precision-recall curves on a matplotlib Figure) and ``palette``.
 
 Detection metrics do not establish that a vehicle, robot or any other system is safe; defer
 to the applicable safety standards, local regulation and qualified engineers.
 """
 
+from obbiou.evaluation.compare import Comparison, compare
 from obbiou.evaluation.matching import MatchRecords, Thresholds, match_frames, parse_thresholds
-from obbiou.evaluation.report import (
-    Comparison,
-    Counts,
-    Evaluation,
-    compare,
-    evaluate,
-    reduce_records,
-)
-from obbiou.evaluation.tables import Table, read_table
+from obbiou.evaluation.protocol import evaluate
+from obbiou.evaluation.result import Counts, Evaluation, reduce_records
+from obbiou.evaluation.text import details_text
+from obbiou.tables import Table, read_table
 
 __all__ = [
     "Comparison",
@@ -29,6 +30,7 @@ __all__ = [
     "Table",
     "Thresholds",
     "compare",
+    "details_text",
     "evaluate",
     "match_frames",
     "parse_thresholds",

@@ -30,6 +30,8 @@ from typing import NamedTuple
 
 import numpy as np
 
+from obbiou.errors import InvalidInput
+
 __all__ = ["Curve", "curve", "average_precision", "ap_kind", "KINDS"]
 
 KINDS = ("all-points", "11-point", "101-point", "step")
@@ -81,7 +83,7 @@ def ap_kind(kind: str | None = "all-points", recall_points: int | None = None) -
     if recall_points is not None:
         n = int(recall_points)
         if n != recall_points or n < 2:
-            raise ValueError(f"recall_points: expected an integer >= 2, got {recall_points!r}")
+            raise InvalidInput("recall_points", f"expected an integer >= 2, got {recall_points!r}")
         return 2, n
     if kind == "all-points":
         return 0, 0
@@ -91,9 +93,10 @@ def ap_kind(kind: str | None = "all-points", recall_points: int | None = None) -
         return 2, 11
     if kind == "101-point":
         return 2, 101
-    raise ValueError(
-        f"ap: unknown AP kind {kind!r}; expected one of {', '.join(map(repr, KINDS))} "
-        "(or recall_points=N)"
+    raise InvalidInput(
+        "ap",
+        f"unknown AP kind {kind!r}; expected one of {', '.join(map(repr, KINDS))} "
+        "(or recall_points=N)",
     )
 
 
@@ -135,7 +138,7 @@ def average_precision(
     if npos <= 0:
         return None
     if int(tp.sum()) > npos:
-        raise ValueError(f"tp: {int(tp.sum())} true positives exceed npos={npos}")
+        raise InvalidInput("tp", f"{int(tp.sum())} true positives exceed npos={npos}")
     if not tp.any():
         return 0.0
     c = curve(tp, npos)

@@ -13,6 +13,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from obbiou.errors import InvalidInput
+
 __all__ = ["frame_weights", "LabelRanking", "resampled_ap", "percentile_interval"]
 
 
@@ -26,7 +28,7 @@ def frame_weights(nframes: int, resamples: int, seed: int | None = 0) -> np.ndar
     ((3, 5), [5, 5, 5])
     """
     if resamples < 1:
-        raise ValueError(f"resamples: expected a positive integer, got {resamples!r}")
+        raise InvalidInput("resamples", f"expected a positive integer, got {resamples!r}")
     rng = np.random.default_rng(seed)
     draws = rng.integers(0, nframes, size=(resamples, nframes)) if nframes else None
     if draws is None:
@@ -115,10 +117,11 @@ def percentile_interval(values: np.ndarray, level: float) -> tuple[float, float]
     (5.0, 95.0)
     """
     if not 0.0 < level < 1.0:
-        raise ValueError(f"level: expected a number in (0, 1), got {level!r}")
+        raise InvalidInput("level", f"expected a number in (0, 1), got {level!r}")
     v = np.asarray(values, dtype=np.float64)
     v = v[np.isfinite(v)]
     if not len(v):
-        raise ValueError("no resample had any positives: the interval is undefined")
+        reason = "no resample had any positives: the interval is undefined"
+        raise InvalidInput("values", reason, message=reason)
     lo, hi = np.quantile(v, [(1 - level) / 2, (1 + level) / 2])
     return float(lo), float(hi)

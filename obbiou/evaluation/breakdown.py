@@ -27,6 +27,8 @@ from typing import NamedTuple
 
 import numpy as np
 
+from obbiou.errors import InvalidInput
+
 __all__ = [
     "FalsePositives",
     "Misses",
@@ -119,10 +121,11 @@ def orientation_error(
     0.10000000000000009
     """
     if shape in ("axis", "axis3"):
-        raise ValueError(
+        reason = (
             f"orientation error needs rotated, polygon or upright boxes; {shape!r} boxes "
             "have no orientation"
         )
+        raise InvalidInput("shape", reason, message=reason)
     period = 2 * np.pi if shape == "upright" else np.pi
     d = np.mod(np.asarray(det_angle) - np.asarray(truth_angle), period)
     err = np.minimum(d, period - d)

@@ -15,12 +15,17 @@ from typing import Any
 
 import numpy as np
 
-from obbiou.evaluation.tables import Table, read_table
+from obbiou._kernels.codes import Outcome
+from obbiou.errors import InvalidInput
+from obbiou.tables import Table, comparable_frame_ids, read_table
 
 __all__ = ["MatchRecords", "match_frames", "Thresholds", "parse_thresholds"]
 
-#: Outcome codes in :attr:`MatchRecords.det_outcome`.
-FP, TP, IGNORED, CAPPED = 0, 1, 2, 3
+#: Outcome codes in :attr:`MatchRecords.det_outcome`, as plain ints (the int8 outcome arrays
+#: and the kernels hold these; the names are those of obbiou._kernels.codes.Outcome).
+FP, TP, IGNORED, CAPPED = (
+    int(o) for o in (Outcome.FP, Outcome.TP, Outcome.IGNORED, Outcome.CAPPED)
+)
 
 
 @dataclass(frozen=True)
@@ -43,9 +48,10 @@ class Thresholds:
             return self.per_label[label]
         if self.default is not None:
             return self.default
-        raise ValueError(
-            f"iou: no threshold for label {label!r}; list it in the mapping or add a default "
-            "under the key None"
+        raise InvalidInput(
+            "iou",
+            f"no threshold for label {label!r}; list it in the mapping or add a default "
+            "under the key None",
         )
 
 
@@ -53,9 +59,9 @@ def _check_threshold(v: Any) -> float:
     try:
         f = float(v)
     except (TypeError, ValueError):
-        raise ValueError(f"iou: expected a number in (0, 1], got {v!r}") from None
+        raise InvalidInput("iou", f"expected a number in (0, 1], got {v!r}") from None
     if not (0.0 < f <= 1.0):
-        raise ValueError(f"iou: a threshold must lie in (0, 1], got {f!r}")
+        raise InvalidInput("iou", f"a threshold must lie in (0, 1], got {f!r}")
     return f
 
 
@@ -65,16 +71,16 @@ def _parse_one(iou: Any) -> tuple[float, ...]:
         if ":" in text:
             parts = text.split(":")
             if len(parts) != 3:
-                raise ValueError(f"iou: expected 'start:stop:step', got {iou!r}")
+                raise InvalidInput("iou", f"expected 'start:stop:step', got {iou!r}")
             try:
                 start, stop, step = (float(p) for p in parts)
             except ValueError:
-                raise ValueError(
-                    f"iou: expected numbers in 'start:stop:step', got {iou!r}"
+                raise InvalidInput(
+                    "iou", f"expected numbers in 'start:stop:step', got {iou!r}"
                 ) from None
             if step <= 0 or stop < start:
-                raise ValueError(
-                    f"iou: 'start:stop:step' needs step > 0 and stop >= start: {iou!r}"
+                raise InvalidInput(
+                    "iou", f"'start:stop:step' needs step > 0 and stop >= start: {iou!r}"
                 )
             # inclusive of stop within rounding: 0.5:0.95:0.05 gives 10 thresholds
             count = int(np.floor((stop - start) / step + 1e-9)) + 1
@@ -86,7 +92,7 @@ def _parse_one(iou: Any) -> tuple[float, ...]:
     if isinstance(iou, (Sequence, np.ndarray)):
         values = tuple(sorted({_check_threshold(v) for v in iou}))
         if not values:
-            raise ValueError("iou: no thresholds given")
+            raise InvalidInput("iou", "no thresholds given")
         return values
     return (_check_threshold(iou),)
 
@@ -108,13 +114,13 @@ def parse_thresholds(iou: Any) -> Thresholds:
     >>> parse_thresholds(1.5)
     Traceback (most recent call last):
     ...
-    ValueError: iou: a threshold must lie in (0, 1], got 1.5
+    obbiou.errors.InvalidInput: iou: a threshold must lie in (0, 1], got 1.5
     """
     if isinstance(iou, Thresholds):
         return iou
     if isinstance(iou, Mapping):
         if not iou:
-            raise ValueError("iou: empty mapping")
+            raise InvalidInput("iou", "empty mapping")
         per_label = {str(k): _parse_one(v) for k, v in iou.items() if k is not None}
         default = _parse_one(iou[None]) if None in iou else None
         union = set().union(*per_label.values(), default or ())
@@ -189,26 +195,26 @@ class MatchRecords:
         """
         parts = list(parts)
         if not parts:
-            raise ValueError("concat: no records given")
+            raise InvalidInput("concat", "no records given")
         first = parts[0]
         for p in parts[1:]:
             if not np.array_equal(p.thresholds, first.thresholds):
-                raise ValueError("concat: records were matched at different thresholds")
+                raise InvalidInput("concat", "records were matched at different thresholds")
             if p.shape != first.shape:
-                raise ValueError(f"concat: records of shapes {first.shape!r} and {p.shape!r}")
+                raise InvalidInput("concat", f"records of shapes {first.shape!r} and {p.shape!r}")
         values = {}
         for f in fields(cls):
             if f.name in ("thresholds", "shape"):
                 continue
             arrays = [getattr(p, f.name) for p in parts]
             if f.name in ("det_frame", "truth_frame"):
-                arrays = _common_ids(arrays)
+                arrays = comparable_frame_ids(arrays)
             values[f.name] = np.concatenate(arrays)
         return cls(first.thresholds, first.shape, **values)
 
     def canonical(self) -> MatchRecords:
         """The same records sorted by (frame, rank): one order however they were split."""
-        frames = _common_ids([self.det_frame, self.truth_frame])
+        frames = comparable_frame_ids([self.det_frame, self.truth_frame])
         both = np.concatenate(frames)
         _, codes = sorted_codes(both)
         dcode, tcode = codes[: self.n_detections], codes[self.n_detections :]
@@ -244,13 +250,6 @@ def sorted_codes(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     rank = np.empty(len(order), dtype=np.int64)
     rank[order] = np.arange(len(order))
     return uniques[order], rank[codes] if len(codes) else np.zeros(0, dtype=np.int64)
-
-
-def _common_ids(arrays: list[np.ndarray]) -> list[np.ndarray]:
-    """Frame id arrays in one kind: int64 if all are integer, else str."""
-    if all(a.dtype.kind in "iu" for a in arrays):
-        return [a.astype(np.int64) for a in arrays]
-    return [np.array([str(v) for v in a], dtype=object) for a in arrays]
 
 
 def _orientation(boxes: np.ndarray, shape: str) -> np.ndarray:
@@ -357,13 +356,12 @@ def match_frames(
     truth = read_table(truth, role="truth", shape=shape, degrees=degrees)
     detections = read_table(detections, role="detections", shape=shape, degrees=degrees)
     if truth.shape != detections.shape:
-        raise ValueError(
-            f"detections have shape {detections.shape!r} but truth has {truth.shape!r}"
-        )
+        reason = f"detections have shape {detections.shape!r} but truth has {truth.shape!r}"
+        raise InvalidInput("detections", reason, message=reason)
     layout = truth.shape
     thr = np.asarray(parse_thresholds(thresholds).values, dtype=np.float64)
     if max_detections is not None and (int(max_detections) != max_detections or max_detections < 1):
-        raise ValueError(f"max_detections: expected a positive integer, got {max_detections!r}")
+        raise InvalidInput("max_detections", f"expected a positive integer, got {max_detections!r}")
     return _match_tables(truth, detections, thr, layout, max_detections, progress, chunk)
 
 
@@ -374,7 +372,7 @@ def _match_tables(
     from obbiou.boxes import envelope, size
 
     n, m, nk = len(dets), len(truth), len(thr)
-    tframe, dframe = _common_ids([truth.frame, dets.frame])
+    tframe, dframe = comparable_frame_ids([truth.frame, dets.frame])
     uniq, codes = sorted_codes(np.concatenate([dframe, tframe]))
     dcode, tcode = codes[:n].astype(np.int64), codes[n:].astype(np.int64)
     nframes = len(uniq)

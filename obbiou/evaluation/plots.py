@@ -1,48 +1,56 @@
-"""Precision-recall curves as a PNG (matplotlib), in the project palette."""
+"""Precision-recall curves on a matplotlib Figure, in the project palette.
+
+The curves are drawn on a :class:`matplotlib.figure.Figure` of their own (no pyplot, no
+global backend switch), so that plotting inside a notebook or a GUI program leaves its
+matplotlib state alone. A result is read through its public methods only (``labels``,
+``thresholds``, ``threshold``, ``thresholds_of``, ``ap``, ``curve``, ``mean_ap``).
+"""
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from typing import Any
 
-if TYPE_CHECKING:  # pragma: no cover
-    from obbiou.evaluation.report import Evaluation
+from obbiou.evaluation.palette import LINE_COLOURS, LINE_STYLES
 
-__all__ = ["PALETTE", "plot_curves"]
-
-#: Project palette (DESIGN §7): truth navy, matched amber, false positives magenta.
-PALETTE = {"truth": "#1f3b73", "matched": "#e0a100", "false_positive": "#b0207a"}
-# Further labels cycle through shades derived from the palette.
-_LINE_COLOURS = ("#1f3b73", "#e0a100", "#b0207a", "#5a7bb5", "#8a6d00", "#d873b4")
-_LINE_STYLES = ("-", "--", "-.", ":")
+__all__ = ["draw_curves", "plot_curves"]
 
 
-def plot_curves(
-    evaluation: Evaluation, path: str, *, iou: float | None = None, title: str | None = None
-) -> None:
-    """Write precision-recall curves of every label with truths at ``iou`` to ``path``.
+def draw_curves(
+    evaluation: Any, figure: Any, *, iou: float | None = None, title: str | None = None
+) -> Any:
+    """Draw the precision-recall curves of every label with truths at ``iou`` on ``figure``.
 
     ``iou`` defaults to the lowest threshold; ``title``, when given, heads the figure above
-    the per-threshold caption. The step curve is drawn as evaluated
-    (precision after each ranked detection) with its monotone envelope as a thin line.
-    """
-    import matplotlib
+    the per-threshold caption. The step curve is drawn as evaluated (precision after each
+    ranked detection) with its monotone envelope as a thicker line. Returns the axes.
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    Examples
+    --------
+    >>> from matplotlib.figure import Figure
+    >>> from obbiou.evaluation import evaluate
+    >>> box = {"cx": [0.0, 9.0], "cy": [0.0, 0.0], "width": [2.0] * 2, "height": [1.0] * 2,
+    ...        "angle": [0.0] * 2}
+    >>> ev = evaluate({"frame": [0, 0], "label": ["ship", "crane"], **box},
+    ...               {"frame": [0], "label": ["ship"], "score": [0.9],
+    ...                **{k: v[:1] for k, v in box.items()}})
+    >>> ax = draw_curves(ev, Figure())
+    >>> [t.get_text() for t in ax.get_legend().get_texts()]  # crane: truths, no detections
+    ['crane  AP 0.000', 'ship  AP 1.000']
+    """
     import numpy as np
 
-    t = min(evaluation.thresholds) if iou is None else evaluation._threshold(iou)
-    fig, ax = plt.subplots(figsize=(6.4, 5.2), dpi=110)
+    t = min(evaluation.thresholds) if iou is None else evaluation.threshold(iou)
+    ax = figure.subplots()
     drawn = 0
     for i, lab in enumerate(evaluation.labels):
-        if t not in evaluation._spec.of(lab):
+        if t not in evaluation.thresholds_of(lab):
             continue
         value = evaluation.ap(lab, t)
         if value is None:
             continue
         c = evaluation.curve(lab, t)
-        colour = _LINE_COLOURS[i % len(_LINE_COLOURS)]
-        style = _LINE_STYLES[(i // len(_LINE_COLOURS)) % len(_LINE_STYLES)]
+        colour = LINE_COLOURS[i % len(LINE_COLOURS)]
+        style = LINE_STYLES[(i // len(LINE_COLOURS)) % len(LINE_STYLES)]
         r = np.r_[0.0, c.recall]
         p = np.r_[c.precision[:1] if len(c.precision) else 0.0, c.precision]
         envelope = np.maximum.accumulate(p[::-1])[::-1]
@@ -62,24 +70,34 @@ def plot_curves(
     ax.set_xlabel("recall")
     ax.set_ylabel("precision")
     m = evaluation.mean_ap(t)
-    heading, title = title, f"precision vs recall at IoU >= {t:g}"
+    heading, caption = title, f"precision vs recall at IoU >= {t:g}"
     if m is not None:
-        title += f"   (mean AP {m:.3f})"
-    ax.set_title(title, fontsize=10, loc="left")
+        caption += f"   (mean AP {m:.3f})"
+    ax.set_title(caption, fontsize=10, loc="left")
     if heading:
-        fig.suptitle(heading, fontsize=11, x=0.02, ha="left")
+        figure.suptitle(heading, fontsize=11, x=0.02, ha="left")
     ax.grid(True, color="#d9d9d9", linewidth=0.6)
     if drawn:
         ax.legend(loc="lower left", fontsize=8, frameon=False)
     else:
         ax.text(0.5, 0.5, "no label with ground truth", ha="center", transform=ax.transAxes)
-    fig.text(
+    figure.text(
         0.01,
         0.01,
         "Detection metric only: not evidence that a system is safe.",
         fontsize=7,
         color="#555555",
     )
-    fig.tight_layout(rect=(0, 0.03, 1, 1))
-    fig.savefig(path, format="png")
-    plt.close(fig)
+    figure.tight_layout(rect=(0, 0.03, 1, 1))
+    return ax
+
+
+def plot_curves(
+    evaluation: Any, path: Any, *, iou: float | None = None, title: str | None = None
+) -> None:
+    """Write the precision-recall curves of :func:`draw_curves` to ``path`` as PNG."""
+    from matplotlib.figure import Figure
+
+    figure = Figure(figsize=(6.4, 5.2), dpi=110)
+    draw_curves(evaluation, figure, iou=iou, title=title)
+    figure.savefig(path, format="png")

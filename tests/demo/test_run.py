@@ -10,9 +10,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tests.test_cli import needs_library, run
-
-pytestmark = needs_library
+from tests.cli.test_commands import run
 
 PNGS = (
     "harbour/scene.png",

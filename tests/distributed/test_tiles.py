@@ -13,7 +13,6 @@ import numpy as np
 import pytest
 
 pytest.importorskip("distributed")
-pytest.importorskip("obbiou.scene")
 pd = pytest.importorskip("pandas")
 dd = pytest.importorskip("dask.dataframe")
 
@@ -143,7 +142,7 @@ def test_bad_partition_is_named_quickly(client):
 
 
 def test_polygon_table_by_the_evaluation_column_names(client):
-    # Quadrilaterals as 4-vertex polygons in the columns px0 py0 ... py3 (DESIGN §6).
+    # Quadrilaterals as 4-vertex polygons in the columns px0 py0 ... py3 (docs/design.md §6).
     quads = obbiou.boxes.corners(synthetic_scene(500, seed=8))
     want = overlapping_pairs(quads, shape="polygon")
     frame = pd.DataFrame(

@@ -20,24 +20,9 @@ import pandas as pd
 import pytest
 import shapely
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 
 
-def _have(module: str) -> bool:
-    import importlib.util
-
-    try:
-        return importlib.util.find_spec(module) is not None
-    except ModuleNotFoundError:
-        return False
-
-
-# The commands stand on the scene and evaluation parts; until those are merged the tests that
-# run them are skipped (the help and option tests run regardless).
-needs_library = pytest.mark.skipif(
-    not (_have("obbiou.scene") and _have("obbiou.evaluation")),
-    reason="obbiou.scene / obbiou.evaluation not merged yet",
-)
 COMMANDS = ("demo", "evaluate", "compare", "suppress", "overlap", "warmup")
 ROTATED = ["cx", "cy", "width", "height", "angle"]
 
@@ -172,7 +157,6 @@ def test_bad_option_is_one_line():
 # -- evaluate ----------------------------------------------------------------------------------
 
 
-@needs_library
 def test_evaluate_hand_case_and_json_equals_to_dict(hand_files, tmp_path):
     from obbiou.evaluation import evaluate
 
@@ -194,7 +178,7 @@ def test_evaluate_hand_case_and_json_equals_to_dict(hand_files, tmp_path):
     )
     assert proc.returncode == 0, proc.stderr
     written = json.loads(out_json.read_text())
-    # The JSON the command writes is Evaluation.to_dict() of the same files (DESIGN §7).
+    # The JSON the command writes is Evaluation.to_dict() of the same files (docs/design.md §7).
     assert written == json.loads(json.dumps(evaluate(truth, dets).to_dict()))
     # All-points AP worked out by hand with exact fractions: precisions at the TPs are 1, 2/3,
     # 3/4; the monotone envelope makes them 1, 3/4, 3/4; AP = (1 + 3/4 + 3/4) / 3.
@@ -205,7 +189,6 @@ def test_evaluate_hand_case_and_json_equals_to_dict(hand_files, tmp_path):
     assert out_png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
-@needs_library
 def test_evaluate_step_ap_matches_scikit_learn(hand_files, tmp_path):
     from sklearn.metrics import average_precision_score
 
@@ -218,7 +201,6 @@ def test_evaluate_step_ap_matches_scikit_learn(hand_files, tmp_path):
     assert math.isclose(json.loads(out.read_text())["mean_ap"], reference, rel_tol=1e-12)
 
 
-@needs_library
 def test_evaluate_many_thresholds_and_per_label(tmp_path):
     rng = np.random.default_rng(4)
     truth = random_detections(1, frames=2, n=12).drop(columns=["score", "note"])
@@ -249,7 +231,6 @@ def test_evaluate_many_thresholds_and_per_label(tmp_path):
 # -- compare -----------------------------------------------------------------------------------
 
 
-@needs_library
 def test_compare_json_equals_library(hand_files, tmp_path):
     from obbiou.evaluation import compare
 
@@ -282,7 +263,6 @@ def test_compare_json_equals_library(hand_files, tmp_path):
 # -- suppress ----------------------------------------------------------------------------------
 
 
-@needs_library
 def test_suppress_equals_library_and_the_rule_holds_by_shapely(tmp_path):
     import obbiou
 
@@ -318,8 +298,6 @@ def test_suppress_equals_library_and_the_rule_holds_by_shapely(tmp_path):
     assert 0 < len(kept) < len(raw)
 
 
-@needs_library
-@needs_library
 def test_suppress_degrees_and_empty(tmp_path):
     # Angles in degrees: suppression sees radians, the kept rows are written as they came.
     raw = random_detections(11, frames=1, n=12)
@@ -380,7 +358,6 @@ def test_suppress_soft_to_parquet(tmp_path):
 # -- overlap -----------------------------------------------------------------------------------
 
 
-@needs_library
 def test_overlap_pairs_match_shapely(tmp_path):
     boxes = random_detections(9).drop(columns=["score"])
     src, out = tmp_path / "boxes.csv", tmp_path / "pairs.csv"
@@ -403,7 +380,6 @@ def test_overlap_pairs_match_shapely(tmp_path):
     assert found == truth and len(found) > 10
 
 
-@needs_library
 def test_overlap_two_tables_with_threshold(tmp_path):
     a = random_detections(10, frames=2, n=16).drop(columns=["score"])
     b = a.copy()
@@ -420,7 +396,6 @@ def test_overlap_two_tables_with_threshold(tmp_path):
     assert (a.frame.to_numpy()[pairs["first"]] == b.frame.to_numpy()[pairs["second"]]).all()
 
 
-@needs_library
 def test_overlap_to_stdout(hand_files):
     truth, _ = hand_files
     proc = run("overlap", str(truth), str(truth), "-q")
@@ -434,7 +409,6 @@ def test_overlap_to_stdout(hand_files):
 # -- bad input ---------------------------------------------------------------------------------
 
 
-@needs_library
 def test_malformed_value_names_file_line_and_column(hand_files, tmp_path):
     _, dets = hand_files
     text = dets.read_text().splitlines()
@@ -448,7 +422,6 @@ def test_malformed_value_names_file_line_and_column(hand_files, tmp_path):
         assert "bad.csv" in line and "line 4" in line and "'width'" in line, line
 
 
-@needs_library
 def test_missing_column_and_negative_size(hand_files, tmp_path):
     truth, dets = hand_files
     nocol = tmp_path / "nocol.csv"
@@ -461,7 +434,6 @@ def test_missing_column_and_negative_size(hand_files, tmp_path):
     assert "neg.csv" in line and "line 3" in line and "'height'" in line and "negative" in line
 
 
-@needs_library
 def test_missing_file_and_bad_values(tmp_path, hand_files):
     line = one_line_error(run("suppress", str(tmp_path / "nowhere.csv")))
     assert "nowhere.csv" in line
@@ -473,7 +445,6 @@ def test_missing_file_and_bad_values(tmp_path, hand_files):
     assert "--frames" in line
 
 
-@needs_library
 def test_warmup():
     proc = run("warmup")
     assert proc.returncode == 0, proc.stderr

@@ -1,4 +1,11 @@
-"""The reduce step and the result objects: :class:`Evaluation` and :class:`Comparison`."""
+"""The result of an evaluation: :class:`Evaluation` (AP, counts, intervals, breakdowns) and
+:class:`Counts`, and the reduce step that builds it from match records (:func:`reduce_records`).
+
+An :class:`Evaluation` is built from match records alone (no boxes), so the same numbers come
+out however the map step was split (in process, or on a cluster: :mod:`obbiou.distributed`).
+Text and pictures of a result are in :mod:`obbiou.evaluation.text` and
+:mod:`obbiou.evaluation.plots`, which use only its public methods.
+"""
 
 from __future__ import annotations
 
@@ -9,6 +16,7 @@ from typing import Any, NamedTuple
 
 import numpy as np
 
+from obbiou.errors import InvalidInput
 from obbiou.evaluation import ap as _ap
 from obbiou.evaluation import breakdown as _bd
 from obbiou.evaluation.bootstrap import (
@@ -24,20 +32,13 @@ from obbiou.evaluation.matching import (
     TP,
     MatchRecords,
     Thresholds,
-    _common_ids,
-    match_frames,
     parse_thresholds,
     sorted_codes,
 )
-from obbiou.evaluation.tables import Table, read_table
+from obbiou.evaluation.text import SAFETY_NOTE
+from obbiou.tables import comparable_frame_ids
 
-__all__ = ["Counts", "Evaluation", "Comparison", "evaluate", "compare", "reduce_records"]
-
-SAFETY_NOTE = (
-    "Detection metrics only: they do not establish that a vehicle, robot or any other system "
-    "is safe. Defer to the applicable safety standards, local regulation and qualified "
-    "engineers."
-)
+__all__ = ["Counts", "Evaluation", "reduce_records"]
 
 
 class Counts(NamedTuple):
@@ -72,16 +73,16 @@ def _parse_buckets(spec: Any, what: str) -> dict[str, tuple[float, float]]:
             try:
                 lo, hi = (float(v) for v in pair)
             except (TypeError, ValueError):
-                raise ValueError(
-                    f"{what}: bucket {name!r} needs (low, high), got {pair!r}"
+                raise InvalidInput(
+                    what, f"bucket {name!r} needs (low, high), got {pair!r}"
                 ) from None
             if not lo < hi:
-                raise ValueError(f"{what}: bucket {name!r} needs low < high, got {pair!r}")
+                raise InvalidInput(what, f"bucket {name!r} needs low < high, got {pair!r}")
             out[str(name)] = (lo, hi)
         return out
     edges = [float(e) for e in spec]
     if len(edges) < 2 or any(b <= a for a, b in zip(edges, edges[1:], strict=False)):
-        raise ValueError(f"{what}: expected increasing edges (at least two), got {spec!r}")
+        raise InvalidInput(what, f"expected increasing edges (at least two), got {spec!r}")
     return {f"{a:g}-{b:g}": (a, b) for a, b in zip(edges, edges[1:], strict=False)}
 
 
@@ -121,7 +122,7 @@ class Evaluation:
         self.bucket = bucket
         self.buckets: dict[str, dict[str, Evaluation]] = {}
         r = records
-        frames = _common_ids([r.det_frame, r.truth_frame])
+        frames = comparable_frame_ids([r.det_frame, r.truth_frame])
         self.frames, codes = sorted_codes(np.concatenate(frames))
         self._dcode = codes[: r.n_detections].astype(np.int64)
         self._tcode = codes[r.n_detections :].astype(np.int64)
@@ -134,9 +135,10 @@ class Evaluation:
         for t in spec.values:
             hit = np.flatnonzero(np.abs(r.thresholds - t) < 1e-9)
             if not len(hit):
-                raise ValueError(
-                    f"iou: threshold {t:g} was not matched; records hold "
-                    f"{', '.join(_key(v) for v in r.thresholds)}"
+                raise InvalidInput(
+                    "iou",
+                    f"threshold {t:g} was not matched; records hold "
+                    f"{', '.join(_key(v) for v in r.thresholds)}",
                 )
             self._column[t] = int(hit[0])
         for lab in self.labels:
@@ -183,9 +185,10 @@ class Evaluation:
         for v, c in self._column.items():
             if abs(v - float(t)) < 1e-9:
                 return c
-        raise ValueError(
-            f"iou: {t!r} is not among the thresholds evaluated "
-            f"({', '.join(_key(v) for v in self.thresholds)})"
+        raise InvalidInput(
+            "iou",
+            f"{t!r} is not among the thresholds evaluated "
+            f"({', '.join(_key(v) for v in self.thresholds)})",
         )
 
     def _threshold(self, t: float) -> float:
@@ -198,8 +201,8 @@ class Evaluation:
     def _label(self, label: Any) -> str:
         lab = str(label)
         if lab not in self.labels:
-            raise ValueError(
-                f"label: {label!r} is not in the evaluation ({', '.join(self.labels)})"
+            raise InvalidInput(
+                "label", f"{label!r} is not in the evaluation ({', '.join(self.labels)})"
             )
         return lab
 
@@ -229,6 +232,39 @@ class Evaluation:
         )
         return value, counts
 
+    def threshold(self, iou: float) -> float:
+        """The evaluated threshold equal to ``iou`` (within 1e-9); InvalidInput if none is.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0], "cy": [0.0], "width": [2.0], "height": [1.0], "angle": [0.0]}
+        >>> ev = evaluate({"frame": [0], "label": ["a"], **box},
+        ...               {"frame": [0], "label": ["a"], "score": [1.0], **box}, iou=[0.5, 0.7])
+        >>> ev.threshold(0.7000000000001), ev.thresholds_of("a")
+        (0.7, (0.5, 0.7))
+        """
+        return self._threshold(iou)
+
+    def thresholds_of(self, label: Any) -> tuple[float, ...]:
+        """The thresholds ``label`` is evaluated at (labels may have thresholds of their own)."""
+        return tuple(self._spec.of(self._label(label)))
+
+    def resampled_mean_ap(
+        self, weights: np.ndarray, columns: np.ndarray | None = None
+    ) -> np.ndarray:
+        """mAP (over all thresholds) under each row of frame weights: shape ``(B,)``.
+
+        ``weights`` is ``(B, F)``: how often each of F frames is drawn in each of B
+        resamples; ``columns[i]`` is the weight column of ``self.frames[i]`` (default: column
+        i). A paired comparison weights two evaluations with the same rows.
+        """
+        code = None
+        if columns is not None:
+            columns = np.asarray(columns, dtype=np.int64)
+            code = (columns[self._dcode], columns[self._tcode])
+        return self._resampled(weights, None, None, frame_code=code)
+
     def _thresholds_of(self, lab: str, iou: float | None) -> tuple[float, ...]:
         if iou is None:
             return self._spec.of(lab)
@@ -244,7 +280,7 @@ class Evaluation:
         lab = self._label(label)
         ts = self._thresholds_of(lab, iou)
         if not ts:
-            raise ValueError(f"iou: label {lab!r} is not evaluated at {iou!r}")
+            raise InvalidInput("iou", f"label {lab!r} is not evaluated at {iou!r}")
         values = [self._cells[(lab, t)][0] for t in ts]
         if any(v is None for v in values):
             return None
@@ -273,9 +309,9 @@ class Evaluation:
         lab = self._label(label)
         ts = self._spec.of(lab) if iou is None else (self._threshold(iou),)
         if len(ts) != 1:
-            raise ValueError("iou: several thresholds were evaluated; name one")
+            raise InvalidInput("iou", "several thresholds were evaluated; name one")
         if (lab, ts[0]) not in self._cells:
-            raise ValueError(f"iou: label {lab!r} is not evaluated at {iou!r}")
+            raise InvalidInput("iou", f"label {lab!r} is not evaluated at {iou!r}")
         return self._cells[(lab, ts[0])][1]
 
     def curve(self, label: Any, iou: float | None = None) -> _ap.Curve:
@@ -321,7 +357,7 @@ class Evaluation:
     ) -> np.ndarray:
         """(B,) the statistic (AP of a label, or mAP) under each row of frame weights."""
         if not self.labels:
-            raise ValueError("interval: nothing to resample (no truths and no detections)")
+            raise InvalidInput("interval", "nothing to resample (no truths and no detections)")
         if frame_code is None:
             frame_code = (self._dcode, self._tcode)
         nframes = weights.shape[1]
@@ -335,7 +371,7 @@ class Evaluation:
             values = resampled_ap(r, weights, *self._kind)
             per_label.append(values.mean(axis=1))  # NaN rows: no positives in that resample
         if not per_label:
-            raise ValueError(f"iou: no label is evaluated at {iou!r}")
+            raise InvalidInput("iou", f"no label is evaluated at {iou!r}")
         stacked = np.vstack(per_label)
         with np.errstate(invalid="ignore"):
             finite = np.isfinite(stacked)
@@ -435,39 +471,9 @@ class Evaluation:
     # -- reports -----------------------------------------------------------------------------
     def summary(self) -> str:
         """A readable text table: one line per label and threshold, then the means."""
-        kind = self._ap if self._recall_points is None else f"{self._recall_points}-point"
-        head = (
-            f"obbiou evaluation | {self.records.shape} boxes | AP {kind} | "
-            f"{len(self.frames)} frames | {self.records.n_detections} detections | "
-            f"{self.records.n_truths} truths"
-        )
-        if self.bucket is not None:
-            head += f" | {self.bucket[1]} bucket {self.bucket[0]}"
-        cols = ("label", "IoU>=", "AP", "TP", "FP", "ignored", "missed", "capped")
-        width = max([len(c) for c in self.labels] + [5])
-        lines = [head, ""]
-        fmt = f"{{:<{width}}}  {{:>5}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>6}}"
-        lines.append(fmt.format(*cols))
-        lines.append("-" * len(lines[-1]))
-        for lab in self.labels:
-            for t in self._spec.of(lab):
-                v, c = self._cells[(lab, t)]
-                shown = "   n/a" if v is None else f"{v:.4f}"
-                lines.append(
-                    fmt.format(lab, f"{t:.2f}", shown, c.tp, c.fp, c.ignored, c.missed, c.capped)
-                )
-        lines.append("")
-        for t in self.thresholds:
-            m = self.mean_ap(t)
-            lines.append(f"mean AP at IoU>={t:.2f}: " + ("n/a" if m is None else f"{m:.4f}"))
-        if len(self.thresholds) > 1:
-            m = self.mean_ap()
-            lines.append("mean AP over all thresholds: " + ("n/a" if m is None else f"{m:.4f}"))
-        undefined = [lab for lab in self.labels if self.ap(lab) is None]
-        if undefined:
-            lines.append(f"no truths (left out of mean AP): {', '.join(undefined)}")
-        lines.append(SAFETY_NOTE)
-        return "\n".join(lines)
+        from obbiou.evaluation.text import summary_text
+
+        return summary_text(self)
 
     def to_dict(self, *, breakdowns: bool = True) -> dict:
         """JSON-safe result: mean AP, per-label AP and counts, thresholds, protocol options.
@@ -596,7 +602,7 @@ def reduce_records(
     sizes = _parse_buckets(size_buckets, "size_buckets")
     ranges = _parse_buckets(range_buckets, "range_buckets")
     if ranges and rec.shape not in ("upright", "axis3"):
-        raise ValueError(f"range_buckets: need 3D boxes (upright, axis3), got {rec.shape!r}")
+        raise InvalidInput("range_buckets", f"need 3D boxes (upright, axis3), got {rec.shape!r}")
     opts["size_buckets"] = {k: list(v) for k, v in sizes.items()} or None
     opts["range_buckets"] = {k: list(v) for k, v in ranges.items()} or None
     kw = dict(
@@ -625,252 +631,8 @@ def _check_whole_frames(rec: MatchRecords) -> None:
         expected = np.arange(len(rank)) - np.repeat(np.r_[0, np.cumsum(counts)[:-1]], counts)
         if not np.array_equal(rank, expected):
             bad = frame[int(np.argmax(rank != expected))]
-            raise ValueError(
-                f"records: frame {bad!r} has its {what} in more than one part; match each "
-                "frame in one piece"
+            raise InvalidInput(
+                "records",
+                f"frame {bad!r} has its {what} in more than one part; match each frame "
+                "in one piece",
             )
-
-
-def evaluate(
-    truth: Any,
-    detections: Any,
-    *,
-    shape: str | None = None,
-    iou: Any = 0.5,
-    ap: str = "all-points",
-    recall_points: int | None = None,
-    max_detections: int | None = None,
-    size_buckets: Any = None,
-    range_buckets: Any = None,
-    degrees: bool = False,
-    progress: bool = False,
-    localisation_floor: float = 0.1,
-) -> Evaluation:
-    """Evaluate detections against ground truth: match, count, AP per label and threshold.
-
-    The protocol (every choice is an option; defaults shown):
-
-    1. **Frames and labels.** Detections are matched only to truths of the same frame and
-       the same label.
-    2. **Cap** (``max_detections=None``: no cap). With a cap N, only the N highest-scoring
-       detections of each frame (all labels together, ties by input order) are evaluated;
-       the rest are counted as ``capped``.
-    3. **Greedy matching**, per frame and label, at every threshold t of ``iou``:
-       detections in descending score (ties: input order) each take the *unmatched
-       non-ignore* truth with the highest IoU >= t (ties: the truth earlier in the input)
-       and are true positives (TP). Failing that, a detection with IoU >= t to an ``ignore``
-       truth of its label is *ignored* (neither TP nor FP; an ignore truth absorbs any number
-       of detections). Otherwise it is a false positive (FP). Ignore truths never count as
-       misses. IoU is the exact area (2D) or volume (3D) IoU of the layout.
-    4. **Accounting**, per label and threshold: TP + FP + ignored = evaluated detections,
-       TP + missed = non-ignored truths (checked; see :meth:`Evaluation.counts`).
-    5. **Ranking** per label over all frames: descending score, ties by frame id then input
-       order (no grouping of tied scores). Ignored and capped detections are left out.
-    6. **AP** (``ap="all-points"``): area under the monotone precision envelope; or
-       ``"11-point"`` (Everingham et al., IJCV 2010), ``"101-point"`` (recall 0, 0.01, …, 1;
-       common practice), ``recall_points=N`` (N evenly spaced levels from 0 to 1), ``"step"``
-       (plain step sum). A label with truths and no detections has AP 0; a label without
-       non-ignored truths has undefined AP (``None``) and is left out of mAP.
-    7. **mAP**: mean over labels at one threshold; ``mean_ap()`` averages each label's mean
-       over its thresholds.
-    8. **Buckets** (``size_buckets``, ``range_buckets``: edges ``[0, 1024, 9216, inf]`` or a
-       mapping name -> (low, high), low <= value < high; range = ground distance of the box
-       centre from the origin, 3D only): from the same matches, a truth outside the bucket
-       counts as ignore; a TP whose truth is outside, or an FP whose own size / range is
-       outside, is ignored. Results in ``Evaluation.buckets["size" | "range"][name]``.
-
-    Parameters
-    ----------
-    truth, detections : path, DataFrame, mapping or Table
-        Tables as read by :func:`~obbiou.evaluation.read_table` (columns of the layout;
-        detections with ``score``; truth with optional ``ignore``).
-    shape : str, optional
-        Box layout; inferred from the columns when ``None``.
-    iou : float, sequence, str or mapping
-        Threshold(s): ``0.5``, ``[0.5, 0.75]``, ``"0.5:0.95:0.05"`` (stop included within
-        rounding: 10 thresholds), or a mapping label -> threshold(s) (key ``None``: default
-        for unlisted labels).
-    ap : str
-        ``"all-points"``, ``"11-point"``, ``"101-point"`` or ``"step"``.
-    recall_points : int, optional
-        Sample the envelope at N recall levels (overrides ``ap``).
-    max_detections : int, optional
-        Cap of evaluated detections per frame.
-    size_buckets, range_buckets : optional
-        See 8. above.
-    degrees : bool
-        Angle columns in degrees.
-    progress : bool
-        Show a progress bar while matching.
-    localisation_floor : float
-        Lowest IoU that counts as "poor localisation" in the breakdowns (default 0.1).
-
-    Returns
-    -------
-    Evaluation
-
-    Examples
-    --------
-    One frame, one truth, a good detection and a duplicate:
-
-    >>> truth = {"frame": [1], "label": ["van"], "cx": [0.0], "cy": [0.0], "width": [4.0],
-    ...          "height": [2.0], "angle": [0.0]}
-    >>> dets = {"frame": [1, 1], "label": ["van", "van"], "score": [0.9, 0.4],
-    ...         "cx": [0.1, 0.0], "cy": [0.0, 0.1], "width": [4.0, 4.0],
-    ...         "height": [2.0, 2.0], "angle": [0.0, 0.05]}
-    >>> ev = evaluate(truth, dets, iou=0.5)
-    >>> ev.ap("van", 0.5), ev.counts("van", 0.5)[:4]
-    (1.0, (1, 1, 0, 0))
-    >>> ev.false_positives()["van"].duplicate
-    1
-
-    No detections at all: AP 0. A label only in the detections: AP undefined (None).
-
-    >>> empty = {k: [] for k in ("frame", "label", "score", "cx", "cy", "width", "height",
-    ...                          "angle")}
-    >>> evaluate(truth, empty).ap("van")
-    0.0
-    >>> evaluate({k: v[:0] for k, v in truth.items()}, dets).ap("van") is None
-    True
-    """
-    if iou is None:
-        raise ValueError("iou: give a threshold, e.g. 0.5")
-    spec = parse_thresholds(iou)
-    truth_t = read_table(truth, role="truth", shape=shape, degrees=degrees)
-    det_t = read_table(detections, role="detections", shape=shape, degrees=degrees)
-    records = match_frames(
-        truth_t, det_t, thresholds=spec, max_detections=max_detections, progress=progress
-    )
-    return reduce_records(
-        records,
-        iou=spec,
-        ap=ap,
-        recall_points=recall_points,
-        size_buckets=size_buckets,
-        range_buckets=range_buckets,
-        localisation_floor=localisation_floor,
-        options={"max_detections": max_detections, "degrees": degrees},
-    )
-
-
-class Comparison:
-    """Paired bootstrap comparison of two detectors on the same truth (see :func:`compare`)."""
-
-    def __init__(self, a: Evaluation, b: Evaluation, *, resamples: int, level: float, seed: Any):
-        self.a, self.b = a, b
-        self.resamples, self.level, self.seed = resamples, level, seed
-        frames = _common_ids([a.frames, b.frames])
-        self.frames = np.unique(np.concatenate(frames))
-        codes = []
-        for ev, fr in ((a, frames[0]), (b, frames[1])):
-            remap = np.searchsorted(self.frames, fr)
-            codes.append((remap[ev._dcode], remap[ev._tcode]))
-        w = frame_weights(len(self.frames), resamples, seed)
-        da = a._resampled(w, None, None, frame_code=codes[0])
-        db = b._resampled(w, None, None, frame_code=codes[1])
-        ma, mb = a.mean_ap(), b.mean_ap()
-        if ma is None or mb is None:
-            raise ValueError("compare: mean AP is undefined (no truths)")
-        self.mean_ap_a, self.mean_ap_b = ma, mb
-        self.difference = mb - ma
-        diffs = db - da
-        self.resampled = diffs[np.isfinite(diffs)]
-        self.interval = percentile_interval(self.resampled, level)
-        # two-sided bootstrap test of "no difference": centre the resampled differences on
-        # zero and count how often they are at least as far from it as the observed one
-        centred = np.abs(self.resampled - self.difference)
-        extreme = int((centred >= abs(self.difference) - 1e-15).sum())
-        self.p_value = (extreme + 1) / (len(self.resampled) + 1)
-
-    def summary(self) -> str:
-        """A short text report of the comparison."""
-        lo, hi = self.interval
-        return "\n".join(
-            [
-                f"obbiou comparison | {len(self.frames)} frames | "
-                f"{self.resamples} paired resamples",
-                f"mean AP  A: {self.mean_ap_a:.4f}   B: {self.mean_ap_b:.4f}",
-                f"B - A: {self.difference:+.4f}   {self.level:.0%} interval "
-                f"[{lo:+.4f}, {hi:+.4f}]   p = {self.p_value:.4f}",
-                "p: two-sided paired bootstrap test of no difference (resampled differences "
-                "centred on zero).",
-                SAFETY_NOTE,
-            ]
-        )
-
-    def to_dict(self) -> dict:
-        """JSON-safe comparison, with both evaluations' mean AP."""
-        return {
-            "mean_ap_a": self.mean_ap_a,
-            "mean_ap_b": self.mean_ap_b,
-            "difference": self.difference,
-            "interval": list(self.interval),
-            "level": self.level,
-            "p_value": self.p_value,
-            "resamples": self.resamples,
-            "seed": self.seed if isinstance(self.seed, (int, type(None))) else str(self.seed),
-            "frames": int(len(self.frames)),
-            "test": "paired bootstrap over frames; two-sided; p = (1 + #{|d* - d| >= |d|}) / "
-            "(1 + B)",
-            "a": self.a.to_dict(breakdowns=False),
-            "b": self.b.to_dict(breakdowns=False),
-            "note": SAFETY_NOTE,
-        }
-
-
-def compare(
-    truth: Any,
-    detections_a: Any,
-    detections_b: Any,
-    *,
-    shape: str | None = None,
-    iou: Any = 0.5,
-    ap: str = "all-points",
-    resamples: int = 1000,
-    level: float = 0.95,
-    seed: Any = 0,
-    recall_points: int | None = None,
-    max_detections: int | None = None,
-    degrees: bool = False,
-    progress: bool = False,
-) -> Comparison:
-    """Is detector B better than detector A on the same truth? A paired bootstrap.
-
-    Both are evaluated with the protocol of :func:`evaluate`. Then the frames (the union of
-    all frames in the truth and both detection tables) are resampled with replacement
-    ``resamples`` times; each resample weights *both* detectors' match records with the same
-    frame counts, giving a paired difference d* = mAP_B* - mAP_A* (mAP over all thresholds).
-
-    * ``difference``: mAP_B - mAP_A on all frames;
-    * ``interval``: the percentile interval of d* at ``level``;
-    * ``p_value``: two-sided bootstrap test of "no difference" (Efron & Tibshirani, *An
-      Introduction to the Bootstrap*, 1993, ch. 16; from memory): the resampled
-      differences are centred on zero, d* - d, and p = (1 + #{|d* - d| >= |d|}) / (1 + B).
-
-    Examples
-    --------
-    >>> truth = {"frame": [0, 1], "label": ["cone"] * 2, "x_min": [0, 0], "y_min": [0, 0],
-    ...          "x_max": [1, 1], "y_max": [1, 1]}
-    >>> a = dict(truth, score=[0.9, 0.8], x_max=[1, 3])
-    >>> b = dict(truth, score=[0.9, 0.8])
-    >>> c = compare(truth, a, b, resamples=200)
-    >>> c.difference
-    0.5
-    """
-    truth_t = read_table(truth, role="truth", shape=shape, degrees=degrees)
-    kw = dict(
-        shape=truth_t.shape,
-        iou=iou,
-        ap=ap,
-        recall_points=recall_points,
-        max_detections=max_detections,
-        degrees=degrees,
-        progress=progress,
-    )
-    ev_a = evaluate(truth_t, _as_table(detections_a, truth_t.shape, degrees), **kw)
-    ev_b = evaluate(truth_t, _as_table(detections_b, truth_t.shape, degrees), **kw)
-    return Comparison(ev_a, ev_b, resamples=resamples, level=level, seed=seed)
-
-
-def _as_table(source: Any, shape: str, degrees: bool) -> Table:
-    return read_table(source, role="detections", shape=shape, degrees=degrees)

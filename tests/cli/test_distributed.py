@@ -8,7 +8,7 @@ import json
 import pytest
 
 from obbiou.demo.scenarios import simulate_detector, warehouse_lidar
-from tests.test_cli import one_line_error, run
+from tests.cli.test_commands import one_line_error, run
 
 pytest.importorskip("distributed")
 
@@ -52,7 +52,7 @@ def test_workers_gives_the_in_process_numbers(tmp_path):
     a = json.loads((tmp_path / "local.json").read_text())
     b = json.loads((tmp_path / "dask.json").read_text())
     assert a["mean_ap"] > 0
-    assert a == b  # equal, not approximately equal (DESIGN §8)
+    assert a == b  # equal, not approximately equal (docs/design.md §8)
 
 
 def test_workers_and_scheduler_exclude_each_other(tmp_path):

@@ -1,4 +1,4 @@
-"""Reading detection and ground-truth tables (CSV, Parquet, JSON Lines, DataFrame, mapping).
+"""Tables of boxes: reading, writing, frame grouping (CSV, Parquet, JSON Lines, DataFrame, mapping).
 
 One row per box. Detections have ``frame, label, score`` and the box columns of their layout;
 ground truth has ``frame, label``, the box columns and an optional boolean ``ignore``.
@@ -15,27 +15,144 @@ polygon     ``px0 py0 px1 py1 … px{K-1} py{K-1}`` (K >= 3 vertices; 4 for quad
 
 Angles are radians (counter-clockwise from +x towards +y) unless ``degrees=True``. Extra
 columns are kept in :attr:`Table.extra` and passed through. Nothing is dropped: a missing
-column, an empty cell, a non-numeric value, a NaN, a negative size or an invalid polygon is a
-``ValueError`` that names the file, the line (CSV, JSON Lines) or row (Parquet, DataFrame,
-mapping) and the column.
+column, an empty cell, a non-numeric value, a NaN, a negative size or an invalid polygon is an
+:class:`~obbiou.errors.InvalidTable` (a ``ValueError``) that names the file, the line (CSV,
+JSON Lines) or row (Parquet, DataFrame, mapping) and the column, as fields and in its text.
+
+This module is also the one place for the facts every table user shares:
+:data:`TABLE_SUFFIXES` (the file formats, read and written), :func:`comparable_frame_ids`
+(how frame ids of two tables compare: as integers when both are integers, else as text) and
+:func:`frame_groups` (the rows of each frame).
 """
 
 from __future__ import annotations
 
 import json
 import os
-import re
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, Literal
 
 import numpy as np
 
+from obbiou.errors import InvalidInput, InvalidTable
 from obbiou.shapes import COLUMNS, SHAPES, Boxes, read_boxes
 
-__all__ = ["Table", "read_table", "box_columns"]
+__all__ = [
+    "Table",
+    "read_table",
+    "write_table",
+    "box_columns",
+    "infer_layout",
+    "polygon_vertices",
+    "TABLE_SUFFIXES",
+    "table_format",
+    "comparable_frame_ids",
+    "frame_groups",
+]
+
+#: File suffixes of tables and the format each names; every reader and writer uses this list.
+TABLE_SUFFIXES: dict[str, str] = {
+    ".csv": "csv",
+    ".parquet": "parquet",
+    ".pq": "parquet",
+    ".jsonl": "jsonl",
+    ".ndjson": "jsonl",
+}
 
 _ROLES = ("truth", "detections")
 _ANGLE_COLUMNS = {"rotated": "angle", "upright": "yaw"}
+
+
+def table_format(path: Any) -> str:
+    """The format of a table file, from its suffix: ``"csv"``, ``"parquet"`` or ``"jsonl"``.
+
+    Examples
+    --------
+    >>> table_format("scans/run1.PQ"), table_format("dets.ndjson")
+    ('parquet', 'jsonl')
+    >>> table_format("t.xlsx")
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidTable: t.xlsx: unknown table format '.xlsx'; expected .csv, .parquet
+    (.pq) or .jsonl (.ndjson)
+    """
+    path = os.fspath(path)
+    ext = os.path.splitext(path)[1].lower()
+    if ext not in TABLE_SUFFIXES:
+        raise InvalidTable(
+            path,
+            f"unknown table format {ext or '(no suffix)'!r}; expected .csv, .parquet (.pq) or "
+            ".jsonl (.ndjson)",
+        )
+    return TABLE_SUFFIXES[ext]
+
+
+def write_table(table: Any, path: Any) -> Path:
+    """Write a pandas DataFrame as CSV, Parquet or JSON Lines, chosen by the file suffix.
+
+    Floats are written so that they read back equal: CSV with the shortest text that does,
+    JSON Lines with 15 significant digits.
+
+    Examples
+    --------
+    >>> import pandas as pd, tempfile, os
+    >>> p = os.path.join(tempfile.mkdtemp(), "t.csv")
+    >>> _ = write_table(pd.DataFrame({"frame": [0], "iou": [0.25]}), p)
+    >>> open(p).read().splitlines()
+    ['frame,iou', '0,0.25']
+    """
+    path = Path(path)
+    kind = table_format(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    if kind == "csv":
+        table.to_csv(path, index=False)  # shortest text that reads back to the same float
+    elif kind == "parquet":
+        table.to_parquet(path, index=False)
+    else:
+        table.to_json(path, orient="records", lines=True, double_precision=15)
+    return path
+
+
+def comparable_frame_ids(arrays: list[np.ndarray]) -> list[np.ndarray]:
+    """Frame id arrays of several tables, made comparable by the one rule for frame ids.
+
+    The rule: ids compare as integers when every table's ids are integers (int64), else as
+    text (``str`` of each id), so that frame ``7`` of one table meets frame ``"7"`` of
+    another. Evaluation, the scene commands and the cluster's frame buckets follow it.
+
+    Examples
+    --------
+    >>> a, b = comparable_frame_ids([np.array([7, 8]), np.array(["7"], dtype=object)])
+    >>> a.tolist(), b.tolist()
+    (['7', '8'], ['7'])
+    >>> comparable_frame_ids([np.array([1]), np.array([2], dtype=np.int32)])[1].dtype
+    dtype('int64')
+    """
+    if all(a.dtype.kind in "iu" for a in arrays):
+        return [a.astype(np.int64) for a in arrays]
+    return [np.array([str(v) for v in a], dtype=object) for a in arrays]
+
+
+def frame_groups(frames: np.ndarray) -> list[np.ndarray]:
+    """Row indices of each frame, frames in order of first appearance, rows in input order.
+
+    Examples
+    --------
+    >>> [g.tolist() for g in frame_groups(np.array([5, 3, 5, 9, 3]))]
+    [[0, 2], [1, 4], [3]]
+    >>> frame_groups(np.array([], dtype=np.int64))
+    []
+    """
+    if len(frames) == 0:
+        return []
+    _, first, inverse = np.unique(frames, return_index=True, return_inverse=True)
+    inverse = inverse.reshape(-1)
+    order = np.argsort(first, kind="stable")
+    rows = np.argsort(inverse, kind="stable")
+    bounds = np.cumsum(np.bincount(inverse, minlength=len(first)))
+    parts = np.split(rows, bounds[:-1])
+    return [parts[i] for i in order]
 
 
 def box_columns(shape: str, vertices: int = 4) -> tuple[str, ...]:
@@ -51,7 +168,11 @@ def box_columns(shape: str, vertices: int = 4) -> tuple[str, ...]:
     if shape == "polygon":
         return tuple(c for k in range(vertices) for c in (f"px{k}", f"py{k}"))
     if shape not in COLUMNS:
-        raise ValueError(f"unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}")
+        raise InvalidInput(
+            "shape",
+            f"unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}",
+            message=f"unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}",
+        )
     return COLUMNS[shape]
 
 
@@ -96,6 +217,28 @@ class Table:
         """The box layout name."""
         return self.boxes.shape
 
+    def to_frame(self) -> Any:
+        """The table as a pandas DataFrame with the input columns (angles as read).
+
+        Columns: ``frame, label``, ``score`` (detections), the box columns, ``ignore`` (truth,
+        when any row is ignored), then the extra columns.
+        """
+        import pandas as pd
+
+        data = self.boxes.data
+        cols = box_columns(self.shape, data.shape[1] if self.shape == "polygon" else 4)
+        flat = data.reshape(data.shape[0], int(np.prod(data.shape[1:])))
+        out: dict[str, Any] = {"frame": self.frame, "label": self.label}
+        if self.score is not None:
+            out["score"] = self.score
+        for j, c in enumerate(cols):
+            out[c] = flat[:, j]
+        if self.role == "truth" and self.ignore.any():
+            out["ignore"] = self.ignore
+        for c, v in self.extra.items():
+            out[c] = np.asarray(v)
+        return pd.DataFrame(out)
+
     def take(self, rows: np.ndarray) -> Table:
         """The rows ``rows`` (indices or boolean mask) as a new table."""
         rows = np.asarray(rows)
@@ -112,7 +255,7 @@ class Table:
 
 
 class _Where:
-    """How to name a row of the source in messages: ``file.csv, line 7`` or ``row 5``."""
+    """Where a row of the source is, for errors: ``file.csv, line 7`` or ``row 5``."""
 
     def __init__(self, source: str, kind: str, first_line: int = 0, lines=None, index=None):
         self.source = source
@@ -121,15 +264,15 @@ class _Where:
         self.lines = lines  # explicit line numbers per row (JSON Lines)
         self.index = index  # DataFrame index labels
 
-    def __call__(self, row: int, column: str | None = None) -> str:
+    def error(self, row: int | None, column: str | None, reason: str) -> InvalidTable:
+        """The error for ``reason`` at data row ``row`` (0-based) and ``column``."""
+        if row is None:
+            return InvalidTable(self.source, reason, column=column)
+        line = None
         if self.kind == "line":
             line = self.lines[row] if self.lines is not None else row + self.first_line
-            place = f"{self.source}, line {line}"
-        elif self.index is not None:
-            place = f"{self.source}, row {self.index[row]!r}"
-        else:
-            place = f"{self.source}, row {row}"
-        return place if column is None else f"{place}, column {column!r}"
+        index = self.index[row] if self.index is not None else None
+        return InvalidTable(self.source, reason, line=line, row=row, column=column, index=index)
 
 
 def _read_jsonl(path: str) -> tuple[dict[str, list], list[int]]:
@@ -142,9 +285,10 @@ def _read_jsonl(path: str) -> tuple[dict[str, list], list[int]]:
             try:
                 obj = json.loads(text)
             except json.JSONDecodeError as exc:
-                raise ValueError(f"{path}, line {number}: not valid JSON ({exc.msg})") from None
+                raise InvalidTable(path, f"not valid JSON ({exc.msg})", line=number) from None
             if not isinstance(obj, dict):
-                raise ValueError(f"{path}, line {number}: expected a JSON object, got {obj!r:.40}")
+                reason = f"expected a JSON object, got {obj!r:.40}"
+                raise InvalidTable(path, reason, line=number)
             rows.append(obj)
             lines.append(number)
     names: list[str] = []
@@ -167,31 +311,26 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
 
     if isinstance(source, (str, os.PathLike)):
         path = os.fspath(source)
-        ext = os.path.splitext(path)[1].lower()
+        kind = table_format(path)
         if not os.path.exists(path):
-            raise ValueError(f"{path}: no such file")
-        if ext == ".csv":
+            raise InvalidTable(path, "no such file")
+        if kind == "csv":
             try:
                 df = pd.read_csv(path, skip_blank_lines=False)
             except Exception as exc:  # pandas parser errors name the line themselves
-                raise ValueError(f"{path}: cannot read as CSV ({exc})") from None
+                raise InvalidTable(path, f"cannot read as CSV ({exc})") from None
             # Line 1 is the header; with blank lines kept, row i is line i + 2.
             where = _Where(path, "line", first_line=2)
             return {str(c): df[c].to_numpy() for c in df.columns}, where, len(df)
-        if ext in (".parquet", ".pq"):
+        if kind == "parquet":
             try:
                 df = pd.read_parquet(path)
             except Exception as exc:
-                raise ValueError(f"{path}: cannot read as Parquet ({exc})") from None
+                raise InvalidTable(path, f"cannot read as Parquet ({exc})") from None
             return {str(c): df[c].to_numpy() for c in df.columns}, _Where(path, "row"), len(df)
-        if ext in (".jsonl", ".ndjson"):
-            cols, lines = _read_jsonl(path)
-            arrays = {k: np.array(v, dtype=object) for k, v in cols.items()}
-            return arrays, _Where(path, "line", lines=lines), len(lines)
-        raise ValueError(
-            f"{path}: unknown table format {ext!r}; expected .csv, .parquet (.pq) or "
-            ".jsonl (.ndjson)"
-        )
+        cols, lines = _read_jsonl(path)
+        arrays = {k: np.array(v, dtype=object) for k, v in cols.items()}
+        return arrays, _Where(path, "line", lines=lines), len(lines)
     if isinstance(source, pd.DataFrame):
         cols = {str(c): source[c].to_numpy() for c in source.columns}
         return cols, _Where("<DataFrame>", "row", index=list(source.index)), len(source)
@@ -201,19 +340,18 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
         for key in source.keys():
             arr = np.asarray(source[key])
             if arr.ndim != 1:
-                raise ValueError(
-                    f"<mapping>, column {str(key)!r}: expected a 1-D column, got shape {arr.shape}"
-                )
+                reason = f"expected a 1-D column, got shape {arr.shape}"
+                raise InvalidTable("<mapping>", reason, column=str(key))
             if length is not None and len(arr) != length:
-                raise ValueError(
-                    f"<mapping>, column {str(key)!r}: has {len(arr)} rows, other columns {length}"
-                )
+                reason = f"has {len(arr)} rows, other columns {length}"
+                raise InvalidTable("<mapping>", reason, column=str(key))
             length = len(arr)
             cols[str(key)] = arr
         return cols, _Where("<mapping>", "row"), length or 0
-    raise ValueError(
-        "source: expected a file path (.csv, .parquet, .jsonl), a pandas DataFrame or a "
-        f"mapping of column -> array, got {type(source).__name__}"
+    raise InvalidInput(
+        "source",
+        "expected a file path (.csv, .parquet, .jsonl), a pandas DataFrame or a "
+        f"mapping of column -> array, got {type(source).__name__}",
     )
 
 
@@ -233,19 +371,19 @@ def _numeric(values: np.ndarray, column: str, where: _Where) -> np.ndarray:
         out = np.empty(len(values))
         for i, v in enumerate(values):
             if _is_empty(v):
-                raise ValueError(f"{where(i, column)}: empty value")
+                raise where.error(i, column, "empty value")
             if isinstance(v, bool):
                 out[i] = float(v)
                 continue
             try:
                 out[i] = float(v)
             except (TypeError, ValueError):
-                raise ValueError(f"{where(i, column)}: not a number: {v!r}") from None
+                raise where.error(i, column, f"not a number: {v!r}") from None
     bad = ~np.isfinite(out)
     if bad.any():
         i = int(np.argmax(bad))
         what = "empty value (NaN)" if np.isnan(out[i]) else f"infinite value {out[i]!r}"
-        raise ValueError(f"{where(i, column)}: {what}")
+        raise where.error(i, column, what)
     return out
 
 
@@ -271,7 +409,7 @@ def _ids(values: np.ndarray, column: str, where: _Where, *, text: bool) -> np.nd
 
     i = _first_empty(values)
     if i is not None:
-        raise ValueError(f"{where(i, column)}: empty value")
+        raise where.error(i, column, "empty value")
     if values.dtype.kind in "iub" or (
         values.dtype.kind == "f" and np.all(np.floor(values) == values)
     ):
@@ -303,48 +441,57 @@ def _bools(values: np.ndarray, column: str, where: _Where) -> np.ndarray:
         elif isinstance(v, str) and v.strip().lower() in truthy | falsy:
             out[i] = v.strip().lower() in truthy
         else:
-            raise ValueError(f"{where(i, column)}: expected true/false (or 1/0), got {v!r}")
+            raise where.error(i, column, f"expected true/false (or 1/0), got {v!r}")
     return out
 
 
-def _polygon_vertices(names: set[str]) -> int:
+def polygon_vertices(names: set[str]) -> int:
+    """How many polygon vertices the columns ``px0 py0 px1 py1 …`` present give."""
     k = 0
     while f"px{k}" in names and f"py{k}" in names:
         k += 1
     return k
 
 
-def _infer_layout(names: set[str], source: str) -> str:
+def infer_layout(names: set[str], source: str) -> str:
+    """The box layout whose columns are present among ``names`` (``source`` names the table
+    in errors).
+
+    Examples
+    --------
+    >>> infer_layout({"frame", "cx", "cy", "cz", "length", "width", "height", "yaw"}, "t")
+    'upright'
+    """
     complete = [s for s in ("upright", "axis3", "rotated", "axis") if set(COLUMNS[s]) <= names]
     # A 3D layout's columns include those of a 2D one; the 3D one is meant.
     if "upright" in complete and "rotated" in complete:
         complete.remove("rotated")
     if "axis3" in complete:
         complete = [s for s in complete if s != "axis"]
-    if _polygon_vertices(names) >= 3:
+    if polygon_vertices(names) >= 3:
         complete.append("polygon")
     if len(complete) == 1:
         return complete[0]
     if len(complete) > 1:
-        raise ValueError(
-            f"{source}: box columns of several layouts are present ({', '.join(complete)}); "
-            "pass shape= to choose one"
+        raise InvalidTable(
+            source,
+            f"box columns of several layouts are present ({', '.join(complete)}); "
+            "pass shape= to choose one",
         )
     # Name what is missing for the layout that is closest to complete.
     best = max(COLUMNS, key=lambda s: len(set(COLUMNS[s]) & names) / len(COLUMNS[s]))
     missing = [c for c in COLUMNS[best] if c not in names]
     if not set(COLUMNS[best]) & names:
-        raise ValueError(
-            f"{source}: no box columns found; expected one of: "
-            + "; ".join(f"{s}: {' '.join(box_columns(s))}" for s in SHAPES)
+        raise InvalidTable(
+            source,
+            "no box columns found; expected one of: "
+            + "; ".join(f"{s}: {' '.join(box_columns(s))}" for s in SHAPES),
         )
-    raise ValueError(
-        f"{source}: missing column {missing[0]!r} (the columns present look like the {best!r} "
-        f"layout: {' '.join(COLUMNS[best])})"
+    raise InvalidTable(
+        source,
+        f"missing column {missing[0]!r} (the columns present look like the {best!r} "
+        f"layout: {' '.join(COLUMNS[best])})",
     )
-
-
-_ROW_IN_MESSAGE = re.compile(r"^_boxes\[(\d+)\]: (.*)$")
 
 
 def read_table(
@@ -375,7 +522,7 @@ def read_table(
 
     Raises
     ------
-    ValueError
+    obbiou.errors.InvalidTable
         Naming the file, the line (CSV, JSON Lines: line numbers of the file, header = line
         1) or the row (0-based, Parquet / mapping; index label, DataFrame) and the column.
 
@@ -391,19 +538,19 @@ def read_table(
     ...            role="detections")
     Traceback (most recent call last):
     ...
-    ValueError: <mapping>, row 0, column 'width': negative width -2.0
+    obbiou.errors.InvalidTable: <mapping>, row 0, column 'width': negative width -2.0
     >>> read_table({"frame": [], "label": [], "score": [], "x_min": [], "y_min": [],
     ...             "x_max": [], "y_max": []}, role="detections").shape  # empty is fine
     'axis'
     """
     if isinstance(source, Table):
         if source.role != role:
-            raise ValueError(f"{source.source}: a {source.role} table was given as {role}")
+            raise InvalidTable(source.source, f"a {source.role} table was given as {role}")
         if shape is not None and source.shape != shape:
-            raise ValueError(f"{source.source}: table has shape {source.shape!r}, not {shape!r}")
+            raise InvalidTable(source.source, f"table has shape {source.shape!r}, not {shape!r}")
         return source
     if role not in _ROLES:
-        raise ValueError(f"role: expected 'truth' or 'detections', got {role!r}")
+        raise InvalidInput("role", f"expected 'truth' or 'detections', got {role!r}")
     cols, where, n = _load(source)
     name = where.source
     names = set(cols)
@@ -411,23 +558,24 @@ def read_table(
     for col in required:
         if col not in names:
             extra = " (detections need a score per row)" if col == "score" else ""
-            raise ValueError(f"{name}: missing column {col!r}{extra}")
-    layout = shape if shape is not None else _infer_layout(names, name)
+            raise InvalidTable(name, f"missing column {col!r}{extra}")
+    layout = shape if shape is not None else infer_layout(names, name)
     if layout not in SHAPES:
-        raise ValueError(
-            f"{name}: unknown shape {layout!r}; expected one of {', '.join(map(repr, SHAPES))}"
+        raise InvalidTable(
+            name, f"unknown shape {layout!r}; expected one of {', '.join(map(repr, SHAPES))}"
         )
-    vertices = _polygon_vertices(names) if layout == "polygon" else 0
+    vertices = polygon_vertices(names) if layout == "polygon" else 0
     if layout == "polygon" and vertices < 3:
-        raise ValueError(
-            f"{name}: missing column {'px0' if 'px0' not in names else 'py0'!r} "
-            "(polygon boxes need px0 py0 px1 py1 px2 py2 …)"
+        raise InvalidTable(
+            name,
+            f"missing column {'px0' if 'px0' not in names else 'py0'!r} "
+            "(polygon boxes need px0 py0 px1 py1 px2 py2 …)",
         )
     bcols = box_columns(layout, vertices)
     for col in bcols:
         if col not in names:
-            raise ValueError(
-                f"{name}: missing column {col!r} (shape {layout!r} needs {' '.join(bcols)})"
+            raise InvalidTable(
+                name, f"missing column {col!r} (shape {layout!r} needs {' '.join(bcols)})"
             )
 
     frame = _ids(cols["frame"], "frame", where, text=False)
@@ -445,26 +593,12 @@ def read_table(
         values[:, j] = np.deg2rad(values[:, j])
     data = values.reshape(n, vertices, 2) if layout == "polygon" else values
     try:
-        boxes = read_boxes(data, layout, name="_boxes")
-    except ValueError as exc:
-        m = _ROW_IN_MESSAGE.match(str(exc))
-        if not m:
-            raise ValueError(f"{name}: {exc}") from None
-        row, reason = int(m.group(1)), m.group(2)
-        raise ValueError(f"{where(row, _column_of(reason, bcols, layout))}: {reason}") from None
+        boxes = read_boxes(data, layout, name="boxes")
+    except InvalidInput as exc:
+        # The gate names the row and the position of the value in the row; a table names
+        # the line (or row) and the column. A fault of the whole box names all its columns.
+        column = " ".join(bcols) if exc.column is None else bcols[exc.column]
+        raise where.error(exc.row, column, exc.reason) from None
     used = set(required) | set(bcols) | ({"ignore"} if role == "truth" else set())
     extra = {c: v for c, v in cols.items() if c not in used}
     return Table(role, frame, label, score, ignore, boxes, extra, name)
-
-
-def _column_of(reason: str, bcols: tuple[str, ...], layout: str) -> str:
-    """The table column a box validation message is about (best effort, else all columns)."""
-    m = re.match(r"vertex (\d+) ([xy]) ", reason)
-    if m:
-        return f"p{m.group(2)}{m.group(1)}"
-    if layout == "polygon":
-        return " ".join(bcols)
-    for word in re.findall(r"[a-z_]+", reason):
-        if word in bcols:
-            return word
-    return " ".join(bcols)

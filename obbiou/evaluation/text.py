@@ -1,0 +1,207 @@
+"""Evaluation results as text: the summary table, the breakdowns, the comparison.
+
+These functions read a result only through its public methods (``ap``, ``counts``,
+``thresholds_of``, ``protocol``, ``false_positives``, ``misses``, ``orientation_error``), so
+they import nothing from :mod:`obbiou.evaluation.result` and the result can call them.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+__all__ = [
+    "SAFETY_NOTE",
+    "summary_text",
+    "details_text",
+    "interval_text",
+    "buckets_text",
+    "comparison_text",
+]
+
+SAFETY_NOTE = (
+    "Detection metrics only: they do not establish that a vehicle, robot or any other system "
+    "is safe. Defer to the applicable safety standards, local regulation and qualified "
+    "engineers."
+)
+
+
+def summary_text(evaluation: Any) -> str:
+    """One line per label and threshold (AP and counts), then the means and the note."""
+    protocol = evaluation.protocol()
+    points = protocol["recall_points"]
+    kind = protocol["ap"] if points is None else f"{points}-point"
+    records = evaluation.records
+    head = (
+        f"obbiou evaluation | {records.shape} boxes | AP {kind} | "
+        f"{len(evaluation.frames)} frames | {records.n_detections} detections | "
+        f"{records.n_truths} truths"
+    )
+    if evaluation.bucket is not None:
+        head += f" | {evaluation.bucket[1]} bucket {evaluation.bucket[0]}"
+    cols = ("label", "IoU>=", "AP", "TP", "FP", "ignored", "missed", "capped")
+    width = max([len(c) for c in evaluation.labels] + [5])
+    lines = [head, ""]
+    fmt = f"{{:<{width}}}  {{:>5}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>6}}"
+    lines.append(fmt.format(*cols))
+    lines.append("-" * len(lines[-1]))
+    for lab in evaluation.labels:
+        for t in evaluation.thresholds_of(lab):
+            v, c = evaluation.ap(lab, t), evaluation.counts(lab, t)
+            shown = "   n/a" if v is None else f"{v:.4f}"
+            lines.append(
+                fmt.format(lab, f"{t:.2f}", shown, c.tp, c.fp, c.ignored, c.missed, c.capped)
+            )
+    lines.append("")
+    for t in evaluation.thresholds:
+        m = evaluation.mean_ap(t)
+        lines.append(f"mean AP at IoU>={t:.2f}: " + ("n/a" if m is None else f"{m:.4f}"))
+    if len(evaluation.thresholds) > 1:
+        m = evaluation.mean_ap()
+        lines.append("mean AP over all thresholds: " + ("n/a" if m is None else f"{m:.4f}"))
+    undefined = [lab for lab in evaluation.labels if evaluation.ap(lab) is None]
+    if undefined:
+        lines.append(f"no truths (left out of mean AP): {', '.join(undefined)}")
+    lines.append(SAFETY_NOTE)
+    return "\n".join(lines)
+
+
+def details_text(evaluation: Any, iou: float | None = None) -> str:
+    """Causes of false positives and misses per label, and the orientation error, as text.
+
+    Each label is reported at ``iou`` or, by default, at its own lowest threshold (labels
+    may have thresholds of their own).
+    """
+    per_label = evaluation.to_dict(breakdowns=False)["labels"]
+    at: dict[str, float] = {}
+    for lab, entry in per_label.items():
+        own = sorted(float(k) for k in entry["ap"])
+        if iou is None:
+            at[lab] = own[0]
+        elif any(abs(float(iou) - v) < 1e-9 for v in own):
+            at[lab] = float(iou)
+    fps: dict[str, Any] = {}
+    misses: dict[str, Any] = {}
+    for t in sorted(set(at.values())):
+        for lab, c in evaluation.false_positives(t).items():
+            if at.get(lab) == t:
+                fps[lab] = c
+        for lab, c in evaluation.misses(t).items():
+            if at.get(lab) == t:
+                misses[lab] = c
+    width = max([len(str(lab)) for lab in at] + [5])
+    row = f"  {{:<{width}}}  {{:>5}}  {{:>9}}  {{:>11}}  {{:>11}}  {{:>10}}  {{:>6}}"
+    lines = ["False positives by cause:"]
+    lines.append(
+        row.format(
+            "label", "IoU>=", "duplicate", "wrong label", "poor boxes", "background", "total"
+        )
+    )
+    for lab, c in fps.items():
+        lines.append(
+            row.format(
+                lab,
+                f"{at[lab]:.2f}",
+                c.duplicate,
+                c.wrong_label,
+                c.poor_localisation,
+                c.background,
+                c.total,
+            )
+        )
+    lines.append("Missed truths by cause:")
+    lines.append(
+        row.format("label", "IoU>=", "crowded", "wrong label", "poor boxes", "not found", "total")
+    )
+    for lab, c in misses.items():
+        lines.append(
+            row.format(
+                lab,
+                f"{at[lab]:.2f}",
+                c.crowded,
+                c.wrong_label,
+                c.poor_localisation,
+                c.not_detected,
+                c.total,
+            )
+        )
+    if evaluation.records.shape not in ("axis", "axis3"):
+        upright = evaluation.records.shape == "upright"
+        period = "heading modulo 360°" if upright else "angle modulo 180°"
+        lines.append(f"Orientation error of matched pairs ({period}, degrees):")
+        lines.append(row.format("label", "IoU>=", "pairs", "mean", "median", "90th pct", "flipped"))
+
+        def deg(v: float | None) -> str:
+            return "n/a" if v is None or math.isnan(v) else f"{math.degrees(v):.2f}"
+
+        rows = [(lab, t) for lab, t in at.items()]
+        if len(set(at.values())) == 1 and len(at) > 1:
+            rows.append((None, next(iter(at.values()))))  # all labels at the one threshold
+        for lab, t in rows:
+            e = evaluation.orientation_error(t, label=lab)
+            flipped = "n/a" if e.flipped is None else f"{e.flipped:.1%}"
+            lines.append(
+                row.format(
+                    "all" if lab is None else lab,
+                    f"{t:.2f}",
+                    e.pairs,
+                    deg(e.mean),
+                    deg(e.median),
+                    deg(e.p90),
+                    flipped,
+                )
+            )
+    return "\n".join(lines)
+
+
+def interval_text(
+    evaluation: Any, *, resamples: int = 1000, level: float = 0.95, seed: Any = 0
+) -> str:
+    """mean AP with its bootstrap interval over frames, as one line."""
+    lo, hi = evaluation.interval(resamples=resamples, level=level, seed=seed)
+    return (
+        f"mean AP {evaluation.mean_ap():.4f}, {level:.0%} interval [{lo:.4f}, {hi:.4f}]"
+        f" (bootstrap over frames, {resamples} resamples, seed {seed})"
+    )
+
+
+def buckets_text(evaluation: Any) -> str:
+    """mean AP of each size or range bucket, one block per kind of bucket ("" if none).
+
+    Examples
+    --------
+    >>> from obbiou.evaluation import evaluate
+    >>> box = {"x_min": [0, 10], "y_min": [0, 0], "x_max": [1, 15], "y_max": [1, 5]}
+    >>> ev = evaluate({"frame": [0, 0], "label": ["cone"] * 2, **box},
+    ...               {"frame": [0], "label": ["cone"], "score": [0.9],
+    ...                **{k: v[:1] for k, v in box.items()}}, size_buckets=[0, 2, 100])
+    >>> print(buckets_text(ev))
+    mean AP by size:
+                 0-2: 1.0000
+               2-100: 0.0000
+    """
+    blocks = []
+    for by, group in evaluation.buckets.items():
+        lines = [f"mean AP by {by}:"]
+        for name, sub in group.items():
+            m = sub.mean_ap()
+            lines.append(f"  {name:>14}: " + ("n/a" if m is None else f"{m:.4f}"))
+        blocks.append("\n".join(lines))
+    return "\n\n".join(blocks)
+
+
+def comparison_text(comparison: Any) -> str:
+    """A short text report of a paired comparison (:class:`obbiou.evaluation.Comparison`)."""
+    lo, hi = comparison.interval
+    return "\n".join(
+        [
+            f"obbiou comparison | {len(comparison.frames)} frames | "
+            f"{comparison.resamples} paired resamples",
+            f"mean AP  A: {comparison.mean_ap_a:.4f}   B: {comparison.mean_ap_b:.4f}",
+            f"B - A: {comparison.difference:+.4f}   {comparison.level:.0%} interval "
+            f"[{lo:+.4f}, {hi:+.4f}]   p = {comparison.p_value:.4f}",
+            "p: two-sided paired bootstrap test of no difference (resampled differences "
+            "centred on zero).",
+            SAFETY_NOTE,
+        ]
+    )
