@@ -28,7 +28,7 @@ from typing import Any
 
 import numpy as np
 
-from obbiou.shapes import Boxes, _as_float_array, check, read_boxes
+from obbiou.shapes import Boxes, as_float_array, check, read_boxes
 
 __all__ = [
     "corners",
@@ -464,7 +464,7 @@ def flip_y(boxes: Any, *, shape: str | None = None, height: float | None = None)
 def _read_points(points: Any, shape: str | None) -> tuple[np.ndarray, bool, Boxes | None]:
     """Read the input of :func:`fit_rotated`: point sets ``(N, K, 2)`` (finite only: they
     need not be convex) or validated boxes of a 2D layout."""
-    arr = _as_float_array(points, "points")
+    arr = as_float_array(points, "points")
     if shape is None and arr.ndim in (2, 3) and arr.shape[-1] == 2:
         single = arr.ndim == 2
         sets = arr[np.newaxis] if single else arr
@@ -556,3 +556,13 @@ def fit_rotated(points: Any, *, shape: str | None = None) -> np.ndarray:
         fit_rectangles(np.ascontiguousarray(data), out)
         out = _canonical_rotated(out)
     return out[0] if single else out
+
+
+def warmup() -> None:
+    """Compile the box tools' kernels once (cached on disk for later processes).
+
+    Examples
+    --------
+    >>> warmup()
+    """
+    fit_rotated(np.zeros((1, 3, 2)))

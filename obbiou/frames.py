@@ -24,7 +24,6 @@ Two frames of invented harbour detections; in frame 7 the second box repeats the
 
 from __future__ import annotations
 
-import sys
 from typing import Any
 
 import numpy as np
@@ -42,9 +41,9 @@ _BAR_FROM = 50
 def _bar(groups: list[np.ndarray], progress: bool, what: str) -> Any:
     if not progress or len(groups) < _BAR_FROM:
         return groups
-    from tqdm import tqdm
+    from obbiou.progress import bar
 
-    return tqdm(groups, desc=what, unit="frame", leave=False, file=sys.stderr)
+    return bar(groups, desc=what, unit="frame")
 
 
 def radians(table: Table, degrees: bool) -> np.ndarray:

@@ -121,11 +121,6 @@ def as_float_array(boxes: Any, name: str) -> np.ndarray:
     return np.ascontiguousarray(arr, dtype=np.float64)
 
 
-# The old private name, still imported by obbiou.boxes (being rewritten; it will import the
-# public name). Remove with that import.
-_as_float_array = as_float_array
-
-
 def infer_shape(dims: tuple[int, ...], shape: str | None = None, *, name: str = "boxes") -> str:
     """Name the layout of an array of dimensions ``dims``, or check the one given.
 
@@ -344,10 +339,13 @@ def _validate(arr: np.ndarray, layout: str, name: str) -> None:
         with np.errstate(over="ignore", invalid="ignore"):  # huge ones fail _too_large below
             failures.extend(_bad_polygons(arr))
     clean = arr if all_finite else np.where(finite, arr, 0.0)
-    # Sizes and spans of coordinates below 1e100 cannot overflow an area or a volume: one
-    # cheap pass spares the exact test for nearly all inputs.
-    if max(float(clean.max()), -float(clean.min())) >= 1e100:
+    # Coordinates and sizes within LIMIT cannot overflow an area, a volume or a squared
+    # distance: one cheap pass spares the exact tests for nearly all inputs.
+    if clean.size and max(float(clean.max()), -float(clean.min())) > LIMIT:
         failures.append(_too_large(clean, layout))
+        failures.append(_out_of_range(clean, layout))
+    if clean.size:
+        failures.append(_too_small(clean, layout))
     found = [f for f in failures if f is not None]
     if found:
         row, reason, column = min(found, key=lambda f: f[0])
@@ -406,6 +404,88 @@ def _too_large(arr: np.ndarray, layout: str) -> Failure:
     return row, f"box too large: its {what} overflows float64", None
 
 
+#: Largest magnitude of a coordinate or size. The kernels multiply up to three sizes
+#: (volumes) and square sums of coordinate differences (DIoU) in float64: (2e100)**3 is far
+#: from overflow, while sides near 1e154 overflowed a union and boxes 1.4e154 apart a
+#: squared distance.
+LIMIT = 1e100
+#: Smallest non-zero size: a product of three stays a normal float64 (1e-300 > 2.2e-308);
+#: sides near 1e-162 underflowed to an area of 0 and iou(x, x) was 0.
+TINY = 1e-100
+#: An upright box's height must be 0 or at least this share of its cz: its z interval is
+#: cz -+ height / 2 in float64, and a smaller height rounds away (a height of 1e-18 at
+#: cz = 5 gave an empty interval and iou(x, x) = 0).
+RESOLUTION = 2.0**-40
+
+
+def _out_of_range(arr: np.ndarray, layout: str) -> Failure:
+    """The first coordinate or size beyond +-LIMIT."""
+    bad = np.abs(arr) > LIMIT
+    if not bad.any():
+        return None
+    row = _first_bad(bad)
+    flat = arr[row].reshape(-1, arr.shape[-1])
+    vertex, col = (int(v) for v in np.argwhere(np.abs(flat) > LIMIT)[0])
+    where = _column_name(layout, col)
+    if layout == "polygon":
+        where = f"vertex {vertex} {where}"
+    reason = (
+        f"{where} {float(flat[vertex, col])!r} is beyond +-1e100, the largest coordinate or "
+        "size obbiou computes with (it multiplies sizes and squares distances in float64); "
+        "rescale the units"
+    )
+    return row, reason, vertex * arr.shape[-1] + col
+
+
+def _too_small(arr: np.ndarray, layout: str) -> Failure:
+    """The first non-zero size (or extent) below TINY."""
+    if layout in _SIZE_COLUMNS:
+        cols = list(_SIZE_COLUMNS[layout])
+        sizes = arr[:, cols[0] : cols[-1] + 1]
+        low = float(sizes.min())
+        lost: Failure = None
+        if layout == "upright" and not low >= RESOLUTION * float(np.abs(arr[:, 2]).max()):
+            height, cz = arr[:, 5], np.abs(arr[:, 2])
+            bad_h = (height > 0.0) & (height < RESOLUTION * cz)
+            if bad_h.any():
+                row = _first_bad(bad_h)
+                h, z = float(height[row]), float(arr[row, 2])
+                reason = (
+                    f"height {h!r} is lost in rounding at cz {z!r}"
+                    " (below 2**-40 of it: the z interval cz -+ height / 2 would be empty); "
+                    "rescale the units or move the origin"
+                )
+                lost = (row, reason, 5)
+        if low >= TINY:
+            return lost  # the common case: one pass
+        bad = (sizes > 0.0) & (sizes < TINY)
+        if not bad.any():
+            return lost
+        row = _first_bad(bad)
+        k = int(np.argmax(bad[row]))
+        tiny = (row, _tiny_reason(_column_name(layout, cols[k]), float(sizes[row, k])), cols[k])
+        return tiny if lost is None or tiny[0] <= lost[0] else lost
+    if layout == "polygon":
+        span = (arr.max(axis=1) - arr.min(axis=1)).max(axis=1)
+    else:
+        with np.errstate(over="ignore", invalid="ignore"):
+            span = np.stack([arr[:, hi] - arr[:, lo] for lo, hi in _EXTENT_COLUMNS[layout]], 1)
+        span = np.where(span > 0.0, span, np.inf).min(axis=1)
+        span = np.where(np.isinf(span), 0.0, span)
+    bad = (span > 0.0) & (span < TINY)
+    if not bad.any():
+        return None
+    row = _first_bad(bad)
+    return row, _tiny_reason("extent", float(span[row])), None
+
+
+def _tiny_reason(what: str, value: float) -> str:
+    return (
+        f"{what} {value!r} is below 1e-100, the smallest non-zero size obbiou computes with "
+        "(products of sizes would underflow); use 0 for a degenerate box or rescale the units"
+    )
+
+
 def _inverted_extent(arr: np.ndarray, layout: str, lo: int, hi: int) -> Failure:
     bad = arr[:, hi] < arr[:, lo]
     if not bad.any():
@@ -420,8 +500,12 @@ def _bad_polygons(poly: np.ndarray) -> list[Failure]:
     """Reject polygons that are not convex or wind around more than once.
 
     Zero-length edges and collinear vertices are allowed (a degenerate polygon has zero area
-    and overlaps nothing). Small wrong-way turns within rounding of the coordinates are
-    tolerated so that corners computed at map-metre offsets (~1e6) pass.
+    and overlaps nothing). A wrong-way turn is tolerated only within 1e-9 of the polygon's
+    own size (plus rounding of the cross products, again at its own size), never at the
+    size of its coordinates: a 1 mm polygon near x = 1e7 with a dent of 1e-5 of its size
+    is rejected (it was accepted when the tolerance grew with the coordinates, and its IoU
+    was then off by 4e-6). Corners of rectangles computed at map offsets still pass: their
+    rounding is far below 1e-9 of any rectangle that float64 resolves there.
     """
     # Work relative to each polygon's first vertex: exact enough, and tolerances then scale
     # with the polygon's own size rather than with its distance from the origin.
@@ -433,7 +517,7 @@ def _bad_polygons(poly: np.ndarray) -> list[Failure]:
     dot = (edges * nxt).sum(axis=-1)
     len_e = np.hypot(edges[..., 0], edges[..., 1])
     len_n = np.hypot(nxt[..., 0], nxt[..., 1])
-    scale = np.abs(poly).max(axis=(1, 2))[:, None] + np.abs(local).max(axis=(1, 2))[:, None]
+    scale = np.abs(local).max(axis=(1, 2))[:, None]  # the polygon's own size
     eps = np.finfo(np.float64).eps
     tol = 1e-9 * len_e * len_n + 16 * eps * scale * (len_e + len_n)
     # Orientation of each polygon from its signed area; degenerate ones (area 0) have no

@@ -252,13 +252,14 @@ def test_large_scene_against_shapely_strtree(serial_below, monkeypatch):
 
 
 def test_extreme_coordinates_and_sizes_do_not_hang():
-    # extents near the float64 limit and sizes over 300 orders of magnitude
+    # extents at the limits validation admits (+-1e100, sizes down to 1e-100: see
+    # obbiou.shapes.LIMIT and TINY) and sizes over 200 orders of magnitude
     a = np.array(
         [
-            [0, 0, 1e150, 1e150, 0.0],
-            [1e149, 0, 1e150, 1e150, 0.0],
-            [0, 0, 1e-300, 1e-300, 0.0],
-            [-1e307, 1e307, 1.0, 1.0, 0.3],
+            [0, 0, 1e100, 1e100, 0.0],
+            [1e99, 0, 1e100, 1e100, 0.0],
+            [0, 0, 1e-100, 1e-100, 0.0],
+            [-1e100, 1e100, 1.0, 1.0, 0.3],
         ]
     )
     p = overlapping_pairs(a)

@@ -7,7 +7,9 @@ No validation here; ``obbiou.boxes.fit_rotated`` checks the input and canonicali
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
+
+from obbiou._kernels import threads
 
 # A later hull edge replaces the best rectangle only if smaller by more than this relative
 # amount, so rectangles equal to rounding go to the edge met first (a stable tie rule).
@@ -172,23 +174,26 @@ def _fit_one(points, s, x, y, order, hx, hy, box, out):
     out[s, 4] = box[4]
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, nogil=True)
+def fit_spans(points, out, lo, hi):
+    """Sets lo..hi-1 of :func:`fit_rectangles`, with scratch buffers for the span (no
+    allocation per set)."""
+    kk = points.shape[1]
+    x = np.empty(kk)
+    y = np.empty(kk)
+    order = np.empty(kk, dtype=np.int64)
+    hx = np.empty(2 * kk + 1)
+    hy = np.empty(2 * kk + 1)
+    box = np.empty(5)
+    for s in range(lo, hi):
+        _fit_one(points, s, x, y, order, hx, hy, box, out)
+
+
 def fit_rectangles(points, out):
     """``points (N, K, 2)`` -> ``out (N, 5)`` rotated boxes (not yet canonical), K >= 1.
 
     Each set works relative to the centre of its own extent, so map-metre offsets lose
-    nothing in the hull and projection arithmetic. Sets are processed in blocks, each with
-    its own scratch buffers (no allocation per set).
+    nothing in the hull and projection arithmetic.
     """
-    n, kk = points.shape[0], points.shape[1]
-    block = 256
-    blocks = (n + block - 1) // block
-    for b in prange(blocks):
-        x = np.empty(kk)
-        y = np.empty(kk)
-        order = np.empty(kk, dtype=np.int64)
-        hx = np.empty(2 * kk + 1)
-        hy = np.empty(2 * kk + 1)
-        box = np.empty(5)
-        for s in range(b * block, min(n, (b + 1) * block)):
-            _fit_one(points, s, x, y, order, hx, hy, box, out)
+    n = points.shape[0]
+    threads.run(fit_spans, (points, out), n, serial=n < 2048)

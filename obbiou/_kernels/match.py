@@ -1,80 +1,86 @@
 """Numba kernels of evaluation: candidate pairs per frame, greedy matching, bootstrap AP.
 
-No validation and no Python objects here; :mod:`obbiou.evaluation.matching` and
-:mod:`obbiou.evaluation.bootstrap` prepare sorted, CSR-grouped arrays.
+No validation here; :mod:`obbiou.evaluation.matching` and :mod:`obbiou.evaluation.bootstrap`
+prepare sorted, CSR-grouped arrays. Each job is a serial body over a span of frames (or
+resamples) run by :mod:`obbiou._kernels.threads`; the functions without a body suffix are
+the thin drivers that allocate the outputs.
 
-Outcome codes per detection and threshold: 0 false positive, 1 true positive, 2 ignored
-(overlaps an ignore truth), 3 capped (beyond ``max_detections`` in its frame, not evaluated).
+Outcome codes per detection and threshold (:class:`obbiou._kernels.codes.Outcome`): 0 false
+positive, 1 true positive, 2 ignored (overlaps an ignore truth), 3 capped (beyond
+``max_detections`` in its frame, not evaluated).
 """
 
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
-FP = 0
-TP = 1
-IGNORED = 2
-CAPPED = 3
+from obbiou._kernels import threads
+from obbiou._kernels.codes import Outcome
+
+FP = int(Outcome.FP)
+TP = int(Outcome.TP)
+IGNORED = int(Outcome.IGNORED)
+CAPPED = int(Outcome.CAPPED)
+
+#: Below this many detections (or resamples x ranked rows) the bodies run on one thread.
+SERIAL_BELOW = 20_000
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, forceinline=True)
+def _envelopes_touch(det_env, d, truth_env, t, dim):
+    for k in range(dim):
+        if det_env[d, k] > truth_env[t, dim + k] or truth_env[t, k] > det_env[d, dim + k]:
+            return False
+    return True
+
+
+@njit(cache=True, nogil=True)
+def candidate_spans(det_ptr, truth_ptr, det_env, truth_env, det_live, ptr, first, second, f0, f1):
+    """Frames f0..f1-1 of :func:`candidate_pairs`: with ``first`` empty, count each
+    detection's pairs into ptr[d + 1]; else write them from ptr[d] on."""
+    dim = det_env.shape[1] // 2
+    fill = first.shape[0] > 0
+    for f in range(f0, f1):
+        for d in range(det_ptr[f], det_ptr[f + 1]):
+            if not det_live[d]:
+                continue
+            p = ptr[d] if fill else 0
+            for t in range(truth_ptr[f], truth_ptr[f + 1]):
+                if _envelopes_touch(det_env, d, truth_env, t, dim):
+                    if fill:
+                        first[p] = d
+                        second[p] = t
+                    p += 1
+            if not fill:
+                ptr[d + 1] = p
+
+
 def candidate_pairs(det_ptr, truth_ptr, det_env, truth_env, det_live):
     """All (detection, truth) pairs of the same frame whose envelopes overlap.
 
     ``det_env`` / ``truth_env`` are (n, 2*D) axis-aligned envelopes (mins then maxes).
-    Returns global (sorted-table) indices, grouped by detection in order. Touching
-    envelopes count (IoU is 0 then and harmless); only pairs that cannot overlap are left
-    out. Detections with ``det_live`` False get no pairs.
+    Returns ``ptr`` (n + 1) and global (sorted-table) indices ``first``, ``second``, grouped
+    by detection in order. Touching envelopes count (IoU is 0 then and harmless); only pairs
+    that cannot overlap are left out. Detections with ``det_live`` False get no pairs.
+    Two passes (count, then fill) so that the outputs are exactly sized.
     """
-    nframes = det_ptr.shape[0] - 1
-    dim = det_env.shape[1] // 2
     n = det_env.shape[0]
-    counts = np.zeros(n, dtype=np.int64)
-    for f in prange(nframes):
-        for d in range(det_ptr[f], det_ptr[f + 1]):
-            if not det_live[d]:
-                continue
-            c = 0
-            for t in range(truth_ptr[f], truth_ptr[f + 1]):
-                ok = True
-                for k in range(dim):
-                    if (
-                        det_env[d, k] > truth_env[t, dim + k]
-                        or truth_env[t, k] > det_env[d, dim + k]
-                    ):
-                        ok = False
-                        break
-                if ok:
-                    c += 1
-            counts[d] = c
+    frames = det_ptr.shape[0] - 1
+    serial = n < SERIAL_BELOW
     ptr = np.zeros(n + 1, dtype=np.int64)
-    for d in range(n):
-        ptr[d + 1] = ptr[d] + counts[d]
+    none = np.zeros(0, dtype=np.int64)
+    args = (det_ptr, truth_ptr, det_env, truth_env, det_live, ptr, none, none)
+    threads.run(candidate_spans, args, frames, serial=serial)
+    np.cumsum(ptr, out=ptr)
     first = np.empty(ptr[n], dtype=np.int64)
     second = np.empty(ptr[n], dtype=np.int64)
-    for f in prange(nframes):
-        for d in range(det_ptr[f], det_ptr[f + 1]):
-            if not det_live[d]:
-                continue
-            p = ptr[d]
-            for t in range(truth_ptr[f], truth_ptr[f + 1]):
-                ok = True
-                for k in range(dim):
-                    if (
-                        det_env[d, k] > truth_env[t, dim + k]
-                        or truth_env[t, k] > det_env[d, dim + k]
-                    ):
-                        ok = False
-                        break
-                if ok:
-                    first[p] = d
-                    second[p] = t
-                    p += 1
+    if ptr[n]:
+        args = (det_ptr, truth_ptr, det_env, truth_env, det_live, ptr, first, second)
+        threads.run(candidate_spans, args, frames, serial=serial)
     return ptr, first, second
 
 
-@njit(cache=True, parallel=True)
 def greedy_match(
     det_ptr,
     det_label,
@@ -91,20 +97,54 @@ def greedy_match(
 
     Detections of a frame must come in processing order (descending score, ties by input
     order); truths of a frame in input order, so that a lower index is the earlier truth.
+    Returns (outcome, matched truth, matched IoU, best IoU with a truth of the same label,
+    of another label; per truth: taken per threshold, best IoU same / other label).
     """
     n = det_label.shape[0]
     m = truth_label.shape[0]
     nk = thresholds.shape[0]
-    outcome = np.full((n, nk), CAPPED, dtype=np.int8)
-    matched_truth = np.full((n, nk), -1, dtype=np.int64)
-    matched_iou = np.zeros((n, nk))
-    best_same = np.zeros(n)
-    best_other = np.zeros(n)
-    truth_taken = np.zeros((m, nk), dtype=np.bool_)
-    truth_same = np.zeros(m)
-    truth_other = np.zeros(m)
-    nframes = det_ptr.shape[0] - 1
-    for f in prange(nframes):
+    out = (
+        np.full((n, nk), CAPPED, dtype=np.int8),
+        np.full((n, nk), -1, dtype=np.int64),
+        np.zeros((n, nk)),
+        np.zeros(n),
+        np.zeros(n),
+        np.zeros((m, nk), dtype=np.bool_),
+        np.zeros(m),
+        np.zeros(m),
+    )
+    inputs = (det_ptr, det_label, det_live, truth_ptr, truth_label, truth_ignore)
+    args = inputs + (pair_ptr, pair_truth, pair_iou, thresholds) + out
+    threads.run(greedy_spans, args, det_ptr.shape[0] - 1, serial=n < SERIAL_BELOW)
+    return out
+
+
+@njit(cache=True, nogil=True)
+def greedy_spans(
+    det_ptr,
+    det_label,
+    det_live,
+    truth_ptr,
+    truth_label,
+    truth_ignore,
+    pair_ptr,
+    pair_truth,
+    pair_iou,
+    thresholds,
+    outcome,
+    matched_truth,
+    matched_iou,
+    best_same,
+    best_other,
+    truth_taken,
+    truth_same,
+    truth_other,
+    f0,
+    f1,
+):
+    """Frames f0..f1-1 of :func:`greedy_match`, into its outputs."""
+    nk = thresholds.shape[0]
+    for f in range(f0, f1):
         for d in range(det_ptr[f], det_ptr[f + 1]):
             if not det_live[d]:
                 continue
@@ -159,22 +199,26 @@ def greedy_match(
                     matched_iou[d, k] = ign_v
                 else:
                     outcome[d, k] = FP
-    return (
-        outcome,
-        matched_truth,
-        matched_iou,
-        best_same,
-        best_other,
-        truth_taken,
-        truth_same,
-        truth_other,
-    )
 
 
-@njit(cache=True, parallel=True)
 def bootstrap_ap(
     weights, mixed_frame, code, run_ptr, run_frame, tp_total, fp_total, npos, kind, npoints
 ):
+    """AP of one label at every threshold for every row of frame ``weights``: see
+    :func:`bootstrap_spans`. Returns (B, K)."""
+    nb = weights.shape[0]
+    out = np.zeros((nb, code.shape[0]))
+    args = (weights, mixed_frame, code, run_ptr, run_frame, tp_total, fp_total, npos, kind)
+    serial = nb * (code.shape[1] + run_frame.shape[0]) < SERIAL_BELOW
+    threads.run(bootstrap_spans, args + (npoints, out), nb, serial=serial)
+    return out
+
+
+@njit(cache=True, nogil=True)
+def bootstrap_spans(
+    weights, mixed_frame, code, run_ptr, run_frame, tp_total, fp_total, npos, kind, npoints,
+    out, b0, b1,
+):  # fmt: skip
     """AP of one label at every threshold for every row of frame ``weights``.
 
     ``weights`` (B, F) int: how often each frame is drawn. The label's ranked detections come
@@ -195,11 +239,9 @@ def bootstrap_ap(
     first: the envelope becomes max(envelope, c / (c + fp)) and each copy adds that value.
     The compact (K, nm) int8 layout keeps each walk in cache.
     """
-    nb = weights.shape[0]
     nk, nm = code.shape
-    out = np.zeros((nb, nk))
     scale = npoints - 1.0
-    for b in prange(nb):
+    for b in range(b0, b1):
         pos = npos[b]
         if pos <= 0:
             for k in range(nk):
@@ -249,4 +291,3 @@ def bootstrap_ap(
                 if o == 2:
                     fp -= w
             out[b, k] = total / npoints if kind == 2 else total / pos
-    return out

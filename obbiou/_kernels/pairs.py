@@ -355,8 +355,14 @@ def rect_ordered(p, q):
     sa = p[R_SIZE]
     sb = q[R_SIZE]
     dz = min(p[R_Z1], q[R_Z1]) - max(p[R_Z0], q[R_Z0])
-    separate = (p[R_XMAX] <= q[R_XMIN]) | (q[R_XMAX] <= p[R_XMIN])
-    separate = separate | (p[R_YMAX] <= q[R_YMIN]) | (q[R_YMAX] <= p[R_YMIN])
+    # Extents that meet exactly mean an exact 0 (boxes sharing an edge in absolute
+    # coordinates), unless an extent has collapsed to a point: a side below the rounding of
+    # the centre's coordinates (1e-20 at x = 1) does that, and the box would be disjoint
+    # from itself. Those pairs are left to the exact tests of rect_area.
+    wide = (p[R_XMAX] > p[R_XMIN]) & (q[R_XMAX] > q[R_XMIN])
+    high = (p[R_YMAX] > p[R_YMIN]) & (q[R_YMAX] > q[R_YMIN])
+    separate = wide & ((p[R_XMAX] <= q[R_XMIN]) | (q[R_XMAX] <= p[R_XMIN]))
+    separate = separate | (high & ((p[R_YMAX] <= q[R_YMIN]) | (q[R_YMAX] <= p[R_YMIN])))
     separate = separate | (sa <= 0.0) | (sb <= 0.0) | (dz <= 0.0)
     area, redo = rect_area(p, q)
     inter = 0.0 if separate else min(area * dz, sa, sb)

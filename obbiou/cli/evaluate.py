@@ -97,7 +97,8 @@ def run(args: argparse.Namespace) -> int:
     if args.workers is not None or args.scheduler is not None:
         from obbiou.distributed import evaluate_distributed
 
-        cluster = {"workers": args.workers, "scheduler": args.scheduler}
+        # warm=True: the workers compile (or load from the cache) first, with its own bar
+        cluster = {"workers": args.workers, "scheduler": args.scheduler, "warm": True}
         result = evaluate_distributed(
             args.truth, args.detections, progress=not args.quiet, **cluster, **opts
         )

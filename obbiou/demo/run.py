@@ -78,9 +78,9 @@ def _suppress(scenario: Scenario, raw: Any, max_iou: float, progress: bool) -> A
     keep = []
     groups = [np.flatnonzero(frames == f) for f in scenario.frames]
     if progress:
-        from tqdm import tqdm
+        from obbiou.progress import bar
 
-        groups = tqdm(groups, desc=f"{scenario.name}: suppress", unit="frame", leave=False)
+        groups = bar(groups, desc=f"{scenario.name}: suppress", unit="frame")
     for rows in groups:
         if len(rows) == 0:
             continue

@@ -28,15 +28,28 @@ same path), a single file, a pandas DataFrame, or (for scene overlap) an array o
 Dask is an optional extra: ``pip install 'obbiou[dask]'``. Nothing here imports it until a
 function runs.
 
+First use compiles kernels on every worker (seconds per kernel group): give the workers one
+shared cache directory (``NUMBA_CACHE_DIR`` on a shared file system, set before they start)
+and call :func:`warm_workers` once, or pass ``warm=True`` to a job, to compile up front with
+a progress bar rather than inside the first tasks.
+
 Where things are: :mod:`~obbiou.distributed.cluster` (connecting, waiting for tasks),
 :mod:`~obbiou.distributed.sources` (inputs as partitions), :mod:`~obbiou.distributed.wire`
 (match records in a compact lossless form), :mod:`~obbiou.distributed.evaluate` and
-:mod:`~obbiou.distributed.tiles` (the two jobs).
+:mod:`~obbiou.distributed.tiles` (the two jobs), :mod:`~obbiou.distributed.warm` (compiling on
+the workers up front).
 """
 
 from obbiou.distributed.cluster import connect
 from obbiou.distributed.evaluate import evaluate_distributed
 from obbiou.distributed.tiles import overlapping_pairs_distributed
+from obbiou.distributed.warm import warm_workers
 from obbiou.errors import TaskFailed
 
-__all__ = ["evaluate_distributed", "overlapping_pairs_distributed", "connect", "TaskFailed"]
+__all__ = [
+    "evaluate_distributed",
+    "overlapping_pairs_distributed",
+    "warm_workers",
+    "connect",
+    "TaskFailed",
+]

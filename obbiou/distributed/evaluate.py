@@ -12,6 +12,7 @@ import numpy as np
 
 from obbiou.distributed.cluster import connect, item, release, thread_count, wait_for
 from obbiou.distributed.sources import partitions_of, submit_parts
+from obbiou.distributed.warm import warm_workers
 from obbiou.distributed.wire import pack_records, unpack_records
 from obbiou.errors import InvalidInput
 
@@ -153,6 +154,7 @@ def evaluate_distributed(
     workers: int | None = None,
     buckets: int | None = None,
     timeout: float | None = None,
+    warm: bool = False,
 ) -> Any:
     """Evaluate detections against ground truth with the matching on a Dask cluster.
 
@@ -191,6 +193,9 @@ def evaluate_distributed(
         Number of frame buckets (matching tasks); default two per worker thread.
     timeout : float, optional
         Give up (``TimeoutError``) when a stage takes longer than this many seconds.
+    warm : bool
+        Compile the kernels on every worker first (:func:`obbiou.distributed.warm_workers`,
+        with its own progress bar), so that no task waits for a compile.
 
     Returns
     -------
@@ -234,6 +239,8 @@ def evaluate_distributed(
     thresholds = parse_thresholds(iou)  # bad options fail here, before any work is sent
     match_options = {"max_detections": max_detections}
     with connect(client=client, scheduler=scheduler, workers=workers) as cl:
+        if warm:
+            warm_workers(cl, progress=progress, timeout=timeout)
         threads = thread_count(cl)
         n_buckets = int(buckets) if buckets is not None else 2 * threads
         if n_buckets < 1:

@@ -421,9 +421,9 @@ def _match_tables(
     steps = list(zip(bounds[:-1], bounds[1:], strict=False))
     bar = None
     if progress:
-        from tqdm.auto import tqdm
+        from obbiou.progress import Bar
 
-        bar = tqdm(total=n, desc="matching", unit="det")
+        bar = Bar(total=n, desc="matching", unit="det", leave=True, disable=False)
     for f0, f1 in steps:
         d0, d1 = det_ptr[f0], det_ptr[f1]
         t0, t1 = truth_ptr[f0], truth_ptr[f1]
