@@ -71,18 +71,24 @@ t0 = time.perf_counter(); obbiou.iou(big, big); extra = time.perf_counter() - t0
 FIRST_PAIRS = """
 import numpy as np, obbiou
 rng = np.random.default_rng(0)
-b = rng.uniform(0, 100, (50, 5)); b[:, 2:4] += 1
+def boxes(n, span):  # rotated boxes 5-30 long at random angles
+    return np.column_stack([rng.uniform(0, span, (n, 2)), rng.uniform(5, 30, (n, 2)),
+                            rng.uniform(-np.pi, np.pi, n)])
+b = boxes(50, 100)
 t0 = time.perf_counter(); obbiou.overlapping_pairs(b); first = time.perf_counter() - t0
-b = rng.uniform(0, 3000, (30000, 5)); b[:, 2:4] += 5
+b = boxes(30000, 3000)
 t0 = time.perf_counter(); obbiou.overlapping_pairs(b); extra = time.perf_counter() - t0
 """
 
 FIRST_SUPPRESS = """
 import numpy as np, obbiou
 rng = np.random.default_rng(0)
-b = rng.uniform(0, 100, (50, 5)); b[:, 2:4] += 5
+def boxes(n, span):  # rotated boxes 5-30 long at random angles
+    return np.column_stack([rng.uniform(0, span, (n, 2)), rng.uniform(5, 30, (n, 2)),
+                            rng.uniform(-np.pi, np.pi, n)])
+b = boxes(50, 100)
 t0 = time.perf_counter(); obbiou.suppress(b, rng.random(50)); first = time.perf_counter() - t0
-b = rng.uniform(0, 3000, (30000, 5)); b[:, 2:4] += 5
+b = boxes(30000, 3000)
 t0 = time.perf_counter(); obbiou.suppress(b, rng.random(30000)); extra = time.perf_counter() - t0
 """
 

@@ -290,6 +290,26 @@ def _read_scores(scores: Any, n: int, single: bool) -> np.ndarray:
     return np.ascontiguousarray(s)
 
 
+def score_order(scores: np.ndarray) -> np.ndarray:
+    """Indices by descending score, ties in input order (a stable sort).
+
+    numpy's quicksort argsort, and its stable (merge) sort only when scores tie: measured
+    (10 000 scores), 0.1 ms against 0.6 ms. (A numba pass that fixed the ties in place was
+    as fast but cost three seconds of compiling on first use.)
+
+    Examples
+    --------
+    >>> score_order(np.array([0.2, 0.9, 0.2, 0.5])).tolist()
+    [1, 3, 0, 2]
+    """
+    neg = -scores
+    order = np.argsort(neg)
+    ranked = neg[order]
+    if ranked.shape[0] > 1 and (ranked[1:] == ranked[:-1]).any():
+        order = np.argsort(neg, kind="stable")
+    return order
+
+
 def suppress(
     boxes: Any,
     scores: Any,
@@ -431,8 +451,7 @@ def suppress(
     if len(b) == 0 or cap == 0:
         return Kept(np.zeros(0, np.int64), np.zeros(0))
 
-    neg = -s
-    order = kernels.stable_ties(neg, np.argsort(neg))  # descending score, ties: input order
+    order = score_order(s)
     if decay is None:
         kind, pb, _ = _prepared(b, None)
         lab = np.zeros(0, np.int64) if codes is None else codes
@@ -440,7 +459,7 @@ def suppress(
         scene, index = grid.prepare_scene(
             kind, pb.rows, vert, pb.rows, vert, True, lab, lab, thr, b.is_3d, True
         )
-        kept = kernels.suppress_hard(scene, index, order, cap)
+        kept = kernels.SUPPRESS_HARD[kind](scene, index, order, cap)
         kept_scores = s[kept]
     else:
         # Linear decay touches only pairs above max_iou; gaussian every overlapping pair.

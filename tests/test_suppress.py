@@ -275,13 +275,13 @@ def test_hard_min_score_equals_filtering_first():
     )
 )
 def test_score_order_equals_a_stable_sort(values):
-    # suppression's score order: numpy's quicksort argsort, then runs of equal scores put
-    # in index order; reference: numpy's stable (merge) argsort
-    from obbiou._kernels import suppress as kernels
+    # suppression's score order: descending score, runs of equal scores in index order;
+    # reference: numpy's stable (merge) argsort of the negated scores
+    from obbiou.scene import score_order
 
     keys = np.array(values, dtype=np.float64)
-    order = kernels.stable_ties(keys, np.argsort(keys))
-    np.testing.assert_array_equal(order, np.argsort(keys, kind="stable"))
+    order = score_order(keys)
+    np.testing.assert_array_equal(order, np.argsort(-keys, kind="stable"))
 
 
 def exact_iou(a: np.ndarray, b: np.ndarray) -> Fraction:

@@ -57,10 +57,9 @@ from obbiou._kernels.pairs import (
     R_Z0,
     R_Z1,
     RECT_SCRATCH,
-    axis_pair,
-    poly_pair,
+    axis_list,
+    poly_list,
     rect_list,
-    rect_value,
 )
 
 # Relative padding of extents (see module docstring): far above rounding of corner
@@ -236,7 +235,6 @@ def _box_xy(kind, R, i):
     return R[i, P_XMIN], R[i, P_YMIN], R[i, P_XMAX], R[i, P_YMAX]
 
 
-@njit(cache=True)
 def base_cell(kind, R):
     """Level-0 cell size: twice the median extent of the indexed boxes ``R`` (prepared rows;
     of an evenly spaced sample of at most 4097 of them: the size only tunes speed), bounded
@@ -244,18 +242,27 @@ def base_cell(kind, R):
     self-pairs of 5e4 rotated boxes 8-40 px long (2 threads, no fresh pages, fastest of
     40 calls): 1.5x the median 8.7 ms, 2x 6.0-6.3 ms, 3x 6.2-7.4 ms. Read from
     the unpadded rows (the grid itself is built on the padded extents): the cell size
-    changes no result, only speed."""
+    changes no result, only speed. The median is numpy's (numba's would add a second of
+    compiling to the first scene call)."""
     n = R.shape[0]
     step = max(1, n // 4096)
     d = np.empty((n + step - 1) // step)
+    top = _sample_extents(kind, R, step, d)
+    return max(2.0 * float(np.median(d)), top * 2.0**-40, 1e-300)
+
+
+@njit(cache=True)
+def _sample_extents(kind, R, step, d):
+    """The larger side of the extents of every ``step``-th row into ``d``; the largest
+    side of all rows."""
     top = 0.0
-    for i in range(n):
+    for i in range(R.shape[0]):
         x0, y0, x1, y1 = _box_xy(kind, R, i)
         top = max(top, x1 - x0, y1 - y0)
     for k in range(d.shape[0]):
         x0, y0, x1, y1 = _box_xy(kind, R, k * step)
         d[k] = max(x1 - x0, y1 - y0)
-    return max(2.0 * np.median(d), top * 2.0**-40, 1e-300)
+    return top
 
 
 @njit(cache=True)
@@ -337,16 +344,6 @@ def arrange(kind, R, V, order, labels):
     Vs = _take(V, order) if kind == POLY else V
     ls = labels[order] if labels.shape[0] > 0 else labels
     return R, Vs, ls
-
-
-@njit(cache=True)
-def pair_iou(kind, A, VA, i, B, VB, j, is3d, buf):
-    """IoU of A[i] and B[j]: the measure kernels' own per-pair code."""
-    if kind == AXIS:
-        return axis_pair(A, i, B, j, IOU, is3d, buf)
-    if kind == RECT:
-        return rect_value(A, i, B, j, IOU, is3d, buf)
-    return poly_pair(VA, A, i, VB, B, j, IOU, buf)
 
 
 @njit(cache=True)
@@ -474,22 +471,25 @@ def _side_extents(kind, R, is3d, serial):
 SAMPLE_STRIDE = 16
 
 
+# The measure of the candidates, one kernel per kind: a scene compiles only its own kind's
+# pair code (shared with obbiou.measures), never the other two. Each is the measure kernels'
+# own list body, so values are bit for bit the all-pairs matrix entries (IoU is symmetric
+# bit for bit, so self-pairs need no reordering).
+
+
 @njit(cache=True)
-def _list_values(scene, ci, cj, n, out):
-    """IoU of the candidate pairs (a's row ci[k], b's row cj[k], spatial order), k < n, into
-    out[k]: the measure kernels' own per-pair code, so values are bit for bit the all-pairs
-    matrix entries. Rectangles take the vectorised loop over blocks of pairs."""
-    kind, A, VA, B, VB, is3d = scene[0], scene[1], scene[2], scene[6], scene[7], scene[15]
-    if kind == RECT:
-        rect_list(A, B, ci, cj, IOU, is3d, out, 0, n)
-        return
-    buf = scratch(VA, VB)
-    oa, same = scene[5], scene[11]
-    for k in range(n):
-        i, j = ci[k], cj[k]
-        if same and oa[j] < oa[i]:  # self-pairs: each pair in input order, as the matrix
-            i, j = j, i
-        out[k] = pair_iou(kind, A, VA, i, B, VB, j, is3d, buf)
+def _values_axis(scene, ci, cj, n, out):
+    axis_list(scene[1], scene[6], ci, cj, IOU, scene[15], out, 0, n)
+
+
+@njit(cache=True)
+def _values_rect(scene, ci, cj, n, out):
+    rect_list(scene[1], scene[6], ci, cj, IOU, scene[15], out, 0, n)
+
+
+@njit(cache=True)
+def _values_poly(scene, ci, cj, n, out):
+    poly_list(scene[2], scene[1], scene[7], scene[6], ci, cj, IOU, out, 0, n)
 
 
 @njit(cache=True, nogil=True)
@@ -508,16 +508,37 @@ def chunk_estimates(step, scene, grid, margin, est, c0, c1):
         est[c] = int(margin * found * SAMPLE_STRIDE) + 64 if hi > lo else 0
 
 
-@njit(cache=True, nogil=True)
-def chunk_pairs(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
-    """:func:`_chunk_pairs` for the chunks c0..c1-1 marked in ``todo``."""
+@njit(inline="always")
+def _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, values):
+    """:func:`_chunk_pairs` for the chunks c0..c1-1 marked in ``todo``. Written once; the
+    ``chunk_pairs_*`` kernels below bind ``values`` to their kind's measure (numba inlines
+    this body into each, so each is cached as a plain kernel)."""
     for c in range(c0, c1):
         if todo[c]:
-            _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo[c], hi[c], need, got)
+            _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo[c], hi[c], need, got, values)
 
 
-@njit(cache=True)
-def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got):
+@njit(cache=True, nogil=True)
+def chunk_pairs_axis(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
+    _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, _values_axis)
+
+
+@njit(cache=True, nogil=True)
+def chunk_pairs_rect(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
+    _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, _values_rect)
+
+
+@njit(cache=True, nogil=True)
+def chunk_pairs_poly(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
+    _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, _values_poly)
+
+
+#: The chunk kernel of each kind, by its code.
+CHUNK_PAIRS = (chunk_pairs_axis, chunk_pairs_rect, chunk_pairs_poly)
+
+
+@njit(inline="always")
+def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got, values):
     """The pairs of a's rows c * step ... (spatial order) with IoU above the threshold:
     candidates from one walk each into ci, cj [lo, hi), all of them counted into need[c];
     when they fit, their IoU into cv, and the pairs above the threshold compacted to the
@@ -535,7 +556,7 @@ def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got):
     need[c] = pos
     if pos > cap:
         return
-    _list_values(scene, ci, cj, pos, cv)
+    values(scene, ci, cj, pos, cv)
     thr = scene[14]
     kept = 0
     for k in range(pos):
@@ -665,11 +686,11 @@ def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial,
     got = np.zeros(chunks, np.int64)
     todo = np.ones(chunks, np.bool_)
     args = (step, scene, grid, ci, cj, cv, lo, hi, need, got, todo)
-    threads.run(chunk_pairs, args, chunks, serial=serial)
+    threads.run(CHUNK_PAIRS[kind], args, chunks, serial=serial)
     ci, cj, cv, redo = regrow(lo, hi, need, ci, cj, cv)
     if redo.any():
         args = (step, scene, grid, ci, cj, cv, lo, hi, need, got, redo)
-        threads.run(chunk_pairs, args, chunks, serial=serial)
+        threads.run(CHUNK_PAIRS[kind], args, chunks, serial=serial)
     return gather(scene, ci, cj, cv, lo, got)
 
 

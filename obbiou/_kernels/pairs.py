@@ -473,6 +473,17 @@ def rect_hull(a, b, buf):
 
 
 @njit(error_model="numpy", cache=True)
+def rect_inter_value(a, b, buf):
+    """Intersection size of rectangles a and b (row tuples): the vectorisable arithmetic,
+    or polygon clipping for the pairs it flags. The IoU-only paths (hard suppression) call
+    this rather than :func:`rect_measure`, so they compile no hull code."""
+    inter, redo = rect_intersection(a, b)
+    if redo:
+        inter = rect_slow(a, b, buf)
+    return inter
+
+
+@njit(error_model="numpy", cache=True)
 def rect_measure(a, b, measure, is3d, buf):
     """The measure of rectangles a and b (row tuples): every path ends here or, for IoU,
     intersection and coverage, in the same arithmetic in :func:`rect_block`.
@@ -481,9 +492,7 @@ def rect_measure(a, b, measure, is3d, buf):
     depend on which box came first; DIoU's centre distance and enclosing box are taken
     relative to the first box's centre, so map coordinates near 1e7 lose nothing.
     """
-    inter, redo = rect_intersection(a, b)
-    if redo:
-        inter = rect_slow(a, b, buf)
+    inter = rect_inter_value(a, b, buf)
     sa = a[R_SIZE]
     sb = b[R_SIZE]
     if measure == INTERSECTION or measure == IOU or measure == COVERAGE:

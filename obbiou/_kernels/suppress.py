@@ -11,8 +11,17 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from obbiou._kernels.grid import RECT, insert, pair_iou, scratch, walk
-from obbiou._kernels.pairs import rect_iou_verdict
+from obbiou._kernels.grid import insert, scratch, walk
+from obbiou._kernels.pairs import (
+    IOU,
+    R_SIZE,
+    axis_pair,
+    finish,
+    poly_pair,
+    rect_inter_value,
+    rect_iou_verdict,
+    rect_load,
+)
 
 
 @njit(cache=True)
@@ -36,23 +45,6 @@ def neighbours(n, first, second, values):
         val[fill[j]] = values[k]
         fill[j] += 1
     return ptr, nbr, val
-
-
-@njit(cache=True)
-def stable_ties(keys, order):
-    """Make ``order``, an ascending argsort of ``keys`` by any method, stable in place: each
-    run of equal keys in ascending index. Measured (10 000 scores): numpy's quicksort
-    argsort and this pass take 0.1 ms, its stable (merge) argsort 0.6 ms."""
-    n = order.shape[0]
-    a = 0
-    while a < n:
-        b = a + 1
-        while b < n and keys[order[b]] == keys[order[a]]:
-            b += 1
-        if b - a > 1:
-            order[a:b] = np.sort(order[a:b])
-        a = b
-    return order
 
 
 @njit(cache=True, forceinline=True)
@@ -171,32 +163,71 @@ def soft(scores, order, ptr, nbr, val, gaussian, max_iou, sigma, min_score, limi
     return kept[:nk], kept_s[:nk]
 
 
-@njit(cache=True)
-def exceeds(kind, A, VA, i, j, thr, is3d, buf):
-    """IoU(A[i], A[j]) > thr: for rectangles by cheap bounds when they decide (measured,
-    10 000 clustered detections: they decide 84 % of the overlapping pairs at 0.5), else the
-    exact value."""
-    if kind == RECT:
-        verdict = rect_iou_verdict(A, i, A, j, thr)
-        if verdict >= 0:
-            return verdict == 1
-    return pair_iou(kind, A, VA, i, A, VA, j, is3d, buf) > thr
+# "IoU(A[i], A[j]) > thr" of each kind; hard suppression compiles only its own kind's.
 
 
 @njit(cache=True)
-def suppress_hard(scene, grid, order, limit):
+def _exceeds_axis(scene, i, j, buf):
+    return axis_pair(scene[1], i, scene[1], j, IOU, scene[15], buf) > scene[14]
+
+
+@njit(cache=True)
+def _exceeds_rect(scene, i, j, buf):
+    """For rectangles by cheap bounds when they decide (measured, 10 000 clustered
+    detections: they decide 84 % of the overlapping pairs at 0.5), else the exact value."""
+    A, thr = scene[1], scene[14]
+    verdict = rect_iou_verdict(A, i, A, j, thr)
+    if verdict >= 0:
+        return verdict == 1
+    a, b = rect_load(A, i), rect_load(A, j)
+    inter = rect_inter_value(a, b, buf)
+    return finish(IOU, inter, a[R_SIZE], b[R_SIZE], 0.0, 0.0, 0.0) > thr  # as rect_measure
+
+
+@njit(cache=True)
+def _exceeds_poly(scene, i, j, buf):
+    V, A = scene[2], scene[1]
+    return poly_pair(V, A, i, V, A, j, IOU, buf) > scene[14]
+
+
+@njit(cache=True)
+def suppress_hard_axis(scene, grid, order, limit):
+    """:func:`_suppress_hard` of axis boxes."""
+    return _suppress_hard(scene, grid, order, limit, _exceeds_axis)
+
+
+@njit(cache=True)
+def suppress_hard_rect(scene, grid, order, limit):
+    """:func:`_suppress_hard` of rectangles (rotated, upright)."""
+    return _suppress_hard(scene, grid, order, limit, _exceeds_rect)
+
+
+@njit(cache=True)
+def suppress_hard_poly(scene, grid, order, limit):
+    """:func:`_suppress_hard` of polygons."""
+    return _suppress_hard(scene, grid, order, limit, _exceeds_poly)
+
+
+#: The hard-suppression kernel of each kind, by its code.
+SUPPRESS_HARD = (suppress_hard_axis, suppress_hard_rect, suppress_hard_poly)
+
+
+@njit(inline="always")
+def _suppress_hard(scene, grid, order, limit, exceeds):
     """Greedy hard suppression, lazily: walk ``order`` (input rows, best first); a box is
     kept unless an already kept box overlaps it with IoU > thr, found through the grid.
     IoU is computed only between a box and the kept boxes near it, and a box stops at the
     first kept box that suppresses it. Stops after ``limit`` kept boxes (< 0: no limit).
     ``scene``, ``grid``: :func:`obbiou._kernels.grid.prepare_scene` of the boxes with
-    themselves (``same``), the threshold and the labels.
+    themselves (``same``), the threshold and the labels. ``exceeds(scene, i, j, buf)``:
+    IoU(A[i], A[j]) > thr for the scene's kind. Written once; numba inlines it into each
+    kind's ``suppress_hard_*`` kernel, so each is cached as a plain kernel.
 
     The walks read a grid that holds the kept boxes only: each kept box is added to its
     cell (the static grid's layout, filled as boxes are kept). Measured on 10 000
     clustered detections: walks over the full grid with a per-item "is it kept" test
     took 2.3 ms before any IoU (the test mispredicts), this one a fraction of it."""
-    kind, A, VA, oa, thr, is3d = scene[0], scene[1], scene[2], scene[5], scene[14], scene[15]
+    VA, oa = scene[2], scene[5]
     n = oa.shape[0]
     where = np.empty(n, np.int64)
     for i in range(n):
@@ -219,7 +250,7 @@ def suppress_hard(scene, grid, order, limit):
                 near = np.empty(2 * m, np.int64)
                 walk(i, scene, grid, items, ends, True, near)
             for k in range(m):
-                if exceeds(kind, A, VA, i, near[k], thr, is3d, buf):
+                if exceeds(scene, i, near[k], buf):
                     suppressed = True
                     break
         if not suppressed:
