@@ -4,7 +4,8 @@ Public names only; the numba kernels live in ``obbiou._kernels`` and compile on 
 (``obbiou warmup`` compiles them all once and caches them on disk).
 """
 
-from obbiou import boxes
+from obbiou import boxes, tiles
+from obbiou.fusion import Fused, fuse
 from obbiou.measures import coverage, diou, giou, intersection, iou
 from obbiou.scene import Kept, Pairs, overlapping_pairs, suppress
 from obbiou.shapes import SHAPES
@@ -24,4 +25,7 @@ __all__ = [
     "suppress",
     "Pairs",
     "Kept",
+    "fuse",
+    "Fused",
+    "tiles",
 ]
