@@ -33,7 +33,7 @@ from obbiou.errors import InvalidInput
 from obbiou.fusion import fuse as _fuse
 from obbiou.fusion import label_codes, read_scores
 from obbiou.measures import pair_values
-from obbiou.scene import overlapping_pairs, suppress
+from obbiou.scene import suppress
 from obbiou.shapes import Boxes, read_boxes
 
 __all__ = ["grid", "shift", "crop", "merge", "Crop", "Merged", "seam_rows"]
@@ -446,6 +446,20 @@ def _inside(env: np.ndarray, core: np.ndarray) -> np.ndarray:
     )
 
 
+def _extent(data: np.ndarray, layout: str) -> np.ndarray:
+    """Enclosing axis boxes of validated 2D boxes, from the half-extents of each rectangle
+    (cheaper than :func:`obbiou.boxes.envelope`, which goes through the corners)."""
+    if layout == "axis":
+        return data
+    if layout == "polygon":
+        return np.concatenate([data.min(axis=1), data.max(axis=1)], axis=1)
+    c = np.abs(np.cos(data[:, 4]))
+    s = np.abs(np.sin(data[:, 4]))
+    ex = 0.5 * (c * data[:, 2] + s * data[:, 3])
+    ey = 0.5 * (s * data[:, 2] + c * data[:, 3])
+    return np.column_stack([data[:, 0] - ex, data[:, 1] - ey, data[:, 0] + ex, data[:, 1] + ey])
+
+
 def _default_border(tiles: np.ndarray) -> float:
     side = np.minimum(tiles[:, 2] - tiles[:, 0], tiles[:, 3] - tiles[:, 1])
     return float(side.min()) / 64.0 if side.size else 0.0
@@ -471,17 +485,64 @@ def seam_rows(env: np.ndarray, tile: np.ndarray, tiles: np.ndarray, border: floa
     at_seam = np.flatnonzero(~_inside(env, core[tile]))
     if at_seam.size == 0 or tiles.shape[0] < 2:
         return np.zeros(0, np.int64)
-    # Candidate tiles: those the box's extent overlaps (a pad keeps zero-area extents in).
-    span = max(float(np.abs(tiles).max()), 1.0)
-    pad = 1e-9 * span
-    q = env[at_seam].copy()
-    q[:, :2] -= pad
-    q[:, 2:] += pad
-    p = overlapping_pairs(q, tiles, shape="axis")
-    rows = at_seam[p.first]
-    other = p.second
-    held = (other != tile[rows]) & _inside(env[rows], core[other])
-    return np.unique(rows[held]).astype(np.int64)
+    # Candidate tiles: those registered in the cell of the extent's lower corner (a core
+    # that holds the extent holds that corner).
+    e = env[at_seam]
+    rows, other = _TileLookup(tiles).candidates(e[:, 0], e[:, 1])
+    own = tile[at_seam]
+    keep = other != own[rows]
+    rows, other = rows[keep], other[keep]
+    held = (
+        (e[rows, 0] >= core[other, 0])
+        & (e[rows, 1] >= core[other, 1])
+        & (e[rows, 2] <= core[other, 2])
+        & (e[rows, 3] <= core[other, 3])
+    )
+    return np.unique(at_seam[rows[held]]).astype(np.int64)
+
+
+class _TileLookup:
+    """Which tiles may hold a point: a uniform grid of cells over the tiles' extent, each
+    tile registered in every cell its closed extent touches. Points outside the extent
+    fall into the nearest border cell (cores reach to infinity there)."""
+
+    def __init__(self, tiles: np.ndarray) -> None:
+        lo = tiles[:, :2].min(axis=0)
+        span = np.maximum(tiles[:, 2:].max(axis=0) - lo, 1e-300)
+        side = float(np.minimum(tiles[:, 2] - tiles[:, 0], tiles[:, 3] - tiles[:, 1]).min())
+        # cells of a quarter of the smallest tile side (few tiles per cell), but no more
+        # than about 64 cells per tile
+        cell = max(side / 4, float(np.sqrt(span[0] * span[1] / (64.0 * tiles.shape[0]))))
+        self.lo, self.cell = lo, cell
+        self.shape = np.maximum(np.ceil(span / cell).astype(np.int64), 1)
+        c0 = self._cells(tiles[:, 0], tiles[:, 1])
+        c1 = self._cells(tiles[:, 2], tiles[:, 3])
+        nx = c1[0] - c0[0] + 1
+        count = nx * (c1[1] - c0[1] + 1)
+        owner = np.repeat(np.arange(tiles.shape[0]), count)
+        k = np.arange(owner.shape[0]) - np.repeat(np.cumsum(count) - count, count)
+        ix = c0[0][owner] + k % nx[owner]
+        iy = c0[1][owner] + k // nx[owner]
+        key = iy * self.shape[0] + ix
+        order = np.argsort(key, kind="stable")
+        self.items = owner[order]
+        self.ptr = np.zeros(int(self.shape[0] * self.shape[1]) + 1, np.int64)
+        np.cumsum(np.bincount(key, minlength=self.ptr.shape[0] - 1), out=self.ptr[1:])
+
+    def _cells(self, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        ix = np.clip(np.floor((x - self.lo[0]) / self.cell), 0, self.shape[0] - 1)
+        iy = np.clip(np.floor((y - self.lo[1]) / self.cell), 0, self.shape[1] - 1)
+        return ix.astype(np.int64), iy.astype(np.int64)
+
+    def candidates(self, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(point row, tile) for every tile registered in each point's cell."""
+        ix, iy = self._cells(x, y)
+        key = iy * self.shape[0] + ix
+        start = self.ptr[key]
+        count = self.ptr[key + 1] - start
+        rows = np.repeat(np.arange(x.shape[0]), count)
+        k = np.arange(rows.shape[0]) - np.repeat(np.cumsum(count) - count, count)
+        return rows, self.items[np.repeat(start, count) + k]
 
 
 def merge(
@@ -605,7 +666,7 @@ def merge(
             _fuse(empty, np.zeros(0), shape=b.shape) if fuse else None,
         )
     image = _shifted(b, t[idx, 0], t[idx, 1])
-    env = envelope(image, shape=b.shape)
+    env = _extent(image, b.shape)
     dropped = seam_rows(env, idx, t, band)
     keep = np.ones(n, bool)
     keep[dropped] = False
