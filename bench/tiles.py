@@ -107,7 +107,9 @@ def scene(side: float, objects: int, seed: int = 0):
     det = np.concatenate([det, fa])
     til = np.concatenate([til, fa_tile])
     scores = np.concatenate([scores, rng.uniform(0.05, 0.6, k)])
-    # into tile coordinates, as a detector reports them
+    # into tile coordinates, tile after tile, as a detector run over the tiles reports them
+    order = np.argsort(til, kind="stable")
+    det, til, scores = det[order], til[order], scores[order]
     boxes = shift(det, -tiles[til, 0], -tiles[til, 1])
     return tiles, boxes, scores, til.astype(np.int64), cut[keep].sum()
 

@@ -406,3 +406,78 @@ def test_merge_polygons_suppress():
     m = merge(boxes, [0.9, 0.8], [0, 1], tiles)
     assert len(m) == 1
     assert math.isclose(shapely.Polygon(m.boxes[0]).area, 100.0)
+
+
+# ------------------------------------------------------------------ plain reference
+
+
+def plain_merge(boxes, scores, tile, tiles, border, max_iou):
+    """The documented rule written out plainly with shapely: cores, the seam rule by
+    ``within`` on the enclosing boxes, then greedy suppression by shapely IoU."""
+    image = boxes.copy()
+    image[:, :2] += tiles[tile, :2]
+    g = shapely.polygons(corners(image, shape="rotated"))
+    lo, hi = tiles[:, :2].min(axis=0), tiles[:, 2:].max(axis=0)
+    big = 1e12
+    cores = []
+    for x0, y0, x1, y1 in tiles:
+        cores.append(
+            shapely.box(
+                x0 + border if x0 > lo[0] else -big,
+                y0 + border if y0 > lo[1] else -big,
+                x1 - border if x1 < hi[0] else big,
+                y1 - border if y1 < hi[1] else big,
+            )
+        )
+    dropped = []
+    for i, poly in enumerate(g):
+        env = shapely.box(*shapely.bounds(poly))
+        if env.within(cores[tile[i]]):
+            continue
+        if any(env.within(c) for u, c in enumerate(cores) if u != tile[i]):
+            dropped.append(i)
+    alive = [i for i in np.argsort(-scores, kind="stable") if i not in set(dropped)]
+    kept = []
+    for i in alive:
+        ok = True
+        for k in kept:
+            inter = g[i].intersection(g[k]).area
+            if inter / (g[i].area + g[k].area - inter) > max_iou:
+                ok = False
+                break
+        if ok:
+            kept.append(i)
+    return kept, dropped
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_merge_against_plain_reference(seed):
+    # An invented 1500 x 1100 mosaic in 512-px tiles overlapping by 96: detections in
+    # clusters (duplicates within and across tiles), some sticking out of their tile.
+    rng = np.random.default_rng(seed)
+    tiles = grid(1500, 1100, size=512, overlap=96)
+    k = 120
+    centre = rng.uniform(0, [1500, 1100], (k, 2))
+    rows = []
+    for c in centre:
+        home = np.flatnonzero(
+            (tiles[:, 0] <= c[0])
+            & (c[0] <= tiles[:, 2])
+            & (tiles[:, 1] <= c[1])
+            & (c[1] <= tiles[:, 3])
+        )
+        for t in rng.choice(home, size=min(len(home), 1 + rng.integers(0, 3)), replace=False):
+            for _ in range(1 + rng.integers(0, 2)):
+                length = rng.uniform(10, 70)
+                box = [*(c + rng.normal(0, 3, 2)), length, length * rng.uniform(0.2, 0.8)]
+                rows.append([*box, rng.uniform(-np.pi, np.pi), t])
+    rows = np.array(rows)
+    boxes = shift(rows[:, :5], -tiles[rows[:, 5].astype(int), 0], -tiles[rows[:, 5].astype(int), 1])
+    tile = rows[:, 5].astype(int)
+    scores = rng.uniform(0.1, 1.0, len(rows))
+    for border in (0.0, 8.0, 30.0):
+        m = merge(boxes, scores, tile, tiles, border=border, max_iou=0.4)
+        kept, dropped = plain_merge(boxes, scores, tile, tiles, border, 0.4)
+        assert m.at_seam.tolist() == sorted(dropped)
+        assert m.rows.tolist() == kept  # same boxes, same order (descending score)
+        assert len(dropped) > 5 and len(kept) < len(boxes) - len(dropped)  # both steps act
