@@ -30,8 +30,8 @@ import numpy as np
 
 from obbiou.boxes import envelope
 from obbiou.errors import InvalidInput
+from obbiou.fusion import Fused, label_codes, read_scores
 from obbiou.fusion import fuse as _fuse
-from obbiou.fusion import label_codes, read_scores
 from obbiou.measures import pair_values
 from obbiou.scene import suppress
 from obbiou.shapes import Boxes, read_boxes
@@ -399,7 +399,7 @@ class Merged:
     labels: np.ndarray | None
     rows: np.ndarray
     at_seam: np.ndarray
-    fused: Any = None
+    fused: Fused | None = None
 
     def __len__(self) -> int:
         return int(self.rows.shape[0])
@@ -468,8 +468,24 @@ def _default_border(tiles: np.ndarray) -> float:
 def seam_rows(env: np.ndarray, tile: np.ndarray, tiles: np.ndarray, border: float) -> np.ndarray:
     """Rows dropped by the seam rule of :func:`merge` (ascending int64).
 
-    ``env``: ``(N, 4)`` enclosing axis boxes of the detections in image coordinates;
-    ``tile``: each detection's tile index; ``tiles``: ``(T, 4)``; ``border`` >= 0.
+    A low-level helper: its inputs are trusted (no validation). See :func:`merge` for the
+    rule.
+
+    Parameters
+    ----------
+    env : numpy.ndarray
+        ``(N, 4)`` float64 enclosing axis boxes of the detections, in image coordinates.
+    tile : numpy.ndarray
+        ``(N,)`` int64 tile index of each detection.
+    tiles : numpy.ndarray
+        ``(T, 4)`` float64 axis tiles with positive width and height.
+    border : float
+        Width of the band along inner tile edges, >= 0.
+
+    Returns
+    -------
+    numpy.ndarray
+        int64 rows of ``env`` at the seam of their own tile and held by another tile's core.
 
     Examples
     --------
@@ -574,6 +590,7 @@ def merge(
        detection of the object is the one to trust, and the box at hand is likely cut
        by its tile's edge. A box held by no other core stays (an object larger than the
        overlap has no tile that sees it whole; suppression or fusion handles its copies).
+       The rule looks at geometry only, not at labels or scores.
     3. **Duplicates** across seams: hard suppression (:func:`obbiou.suppress`, IoU >
        ``max_iou``, within a label), or with ``fuse=True`` fusion (:func:`obbiou.fuse`,
        clusters at IoU >= ``max_iou``, ``expected=1``: the fused score is the members'
