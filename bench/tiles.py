@@ -2,7 +2,9 @@
 
 Run: ``python bench/tiles.py`` (20 000 x 20 000 px image, 1024-px tiles overlapping by
 200 px: 625 tiles, about 200 000 detections) or ``python bench/tiles.py --quick``
-(8 000 x 8 000 px, about 32 000 detections).
+(8 000 x 8 000 px, about 38 000 detections). ``--diagnose`` times the hard suppression
+of the merge's boxes whole, in spatial blocks and with scores in spatial order: where
+obbiou's time goes.
 
 The scene is invented (seeded): a harbour orthomosaic with rotated objects 8-60 px long.
 Each tile's simulated detector reports the objects that reach into the tile, each with a
@@ -180,14 +182,50 @@ def timed(fn, repeat: int):
     return statistics.median(walls), statistics.median(cpus), out
 
 
+def diagnose(side, tiles, boxes, scores, tile, repeat) -> None:
+    """Hard suppression of the same boxes: whole, in k x k spatial blocks (summed; not the
+    same result at block edges), and with scores that follow a spatial order."""
+    image = shift(boxes, tiles[tile, 0], tiles[tile, 1])
+    m = merge(boxes, scores, tile, tiles)
+    keep = np.ones(len(image), bool)
+    keep[m.at_seam] = False
+    image, scores = image[keep], scores[keep]
+
+    def run(b, s):
+        return obbiou.suppress(b, s, min_score=-np.inf)
+
+    _, cpu, _ = timed(lambda: run(image, scores), repeat)
+    print(f"suppress {len(image)} boxes whole: CPU {cpu * 1e3:.0f} ms")
+    for k in (2, 4, 8):
+        cell = np.clip(np.floor(image[:, :2] / (side / k)), 0, k - 1).astype(np.int64)
+        key = cell[:, 0] * k + cell[:, 1]
+        groups = [np.flatnonzero(key == g) for g in range(k * k)]
+        _, cpu, _ = timed(lambda g=groups: [run(image[i], scores[i]) for i in g], repeat)
+        print(f"suppress in {k} x {k} blocks (summed): CPU {cpu * 1e3:.0f} ms")
+    order = np.lexsort((image[:, 0], np.floor(image[:, 1] / SIZE)))
+    spatial = np.empty(len(order))
+    spatial[order] = np.linspace(1.0, 0.01, len(order))
+    _, cpu, _ = timed(lambda: run(image, spatial), repeat)
+    print(f"suppress whole, scores decreasing in row-major spatial order: CPU {cpu * 1e3:.0f} ms")
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--quick", action="store_true", help="an 8 000 px image instead")
     parser.add_argument("--repeat", type=int, default=5, help="timed runs of obbiou")
+    parser.add_argument(
+        "--diagnose",
+        action="store_true",
+        help="time obbiou.suppress on the merge's boxes whole, in spatial blocks, and with "
+        "scores in spatial order (where the merge's time goes)",
+    )
     args = parser.parse_args()
     side, objects = (8_000.0, 20_000) if args.quick else (20_000.0, 105_000)
     t0 = time.perf_counter()
     tiles, boxes, scores, tile, cut = scene(side, objects)
+    if args.diagnose:
+        diagnose(side, tiles, boxes, scores, tile, args.repeat)
+        return
     print(
         f"scene (invented): {side:.0f} x {side:.0f} px, {len(tiles)} tiles of {SIZE} px "
         f"overlapping by {OVERLAP}, {len(boxes)} detections ({cut} cut by a tile edge); "
