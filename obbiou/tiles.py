@@ -23,6 +23,7 @@ applicable safety standards and local regulation, and rely on qualified engineer
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 from typing import Any
 
@@ -460,6 +461,27 @@ def _extent(data: np.ndarray, layout: str) -> np.ndarray:
     return np.column_stack([data[:, 0] - ex, data[:, 1] - ey, data[:, 0] + ex, data[:, 1] + ey])
 
 
+def _warn_outside(env: np.ndarray, tile: np.ndarray, tiles: np.ndarray) -> None:
+    """Warn about boxes that lie wholly outside their own tile: a detector never reports
+    those, so they most likely came in image coordinates already, or with a wrong tile."""
+    own = tiles[tile]
+    out = (
+        (env[:, 2] < own[:, 0])
+        | (env[:, 0] > own[:, 2])
+        | (env[:, 3] < own[:, 1])
+        | (env[:, 1] > own[:, 3])
+    )
+    if out.any():
+        row = int(np.argmax(out))
+        warnings.warn(
+            f"merge: {int(out.sum())} of {len(out)} boxes lie wholly outside their own tile "
+            f"(first: boxes[{row}], tile {int(tile[row])}); merge expects boxes in the "
+            "coordinates of their tile: were they moved into the image already, or is the "
+            "tile index wrong?",
+            stacklevel=3,
+        )
+
+
 def _default_border(tiles: np.ndarray) -> float:
     side = np.minimum(tiles[:, 2] - tiles[:, 0], tiles[:, 3] - tiles[:, 1])
     return float(side.min()) / 64.0 if side.size else 0.0
@@ -623,6 +645,12 @@ def merge(
     fuse : bool
         Fuse duplicates into their score-weighted mean instead of keeping the best.
 
+    Warns
+    -----
+    UserWarning
+        When boxes lie wholly outside their own tile (likely already in image
+        coordinates, or a wrong tile index).
+
     Returns
     -------
     Merged
@@ -684,6 +712,7 @@ def merge(
         )
     image = _shifted(b, t[idx, 0], t[idx, 1])
     env = _extent(image, b.shape)
+    _warn_outside(env, idx, t)
     dropped = seam_rows(env, idx, t, band)
     keep = np.ones(n, bool)
     keep[dropped] = False

@@ -71,6 +71,29 @@ def test_grid_covers_every_pixel(width, height, size, overlap):
         assert np.all(steps <= size - overlap) and np.all(steps > 0)  # overlap at least
 
 
+@settings(max_examples=60, deadline=None)
+@given(
+    st.integers(1, 400),
+    st.integers(0, 399),
+    st.integers(0, 2000),
+    st.integers(0, 2000),
+)
+def test_grid_covers_any_image(size, overlap, extra_w, extra_h):
+    overlap = min(overlap, size - 1)
+    width, height = size + extra_w, size + extra_h
+    tiles = grid(width, height, size=size, overlap=overlap)
+    # shapely: the union of the tiles is the image
+    union = shapely.union_all(shapely.box(*tiles.T))
+    assert union.symmetric_difference(shapely.box(0, 0, width, height)).area == 0.0
+    # no more tiles than needed: one fewer start per axis would leave a gap
+    # (hand-worked: ceil((W - size) / (size - overlap)) + 1 starts per axis)
+    stride = size - overlap
+    nx = -(-(width - size) // stride) + 1
+    ny = -(-(height - size) // stride) + 1
+    assert tiles.shape == (nx * ny, 4)
+    assert np.all(tiles[:, 2] - tiles[:, 0] == size) and np.all(tiles[:, 3] - tiles[:, 1] == size)
+
+
 def test_grid_tile_count_of_the_benchmark_scene():
     # 20 000 px in 1024-px tiles advancing by 824: ceil((20000 - 1024) / 824) + 1 = 25 per
     # axis (hand-worked), 625 tiles.
@@ -481,3 +504,10 @@ def test_merge_against_plain_reference(seed):
         assert m.at_seam.tolist() == sorted(dropped)
         assert m.rows.tolist() == kept  # same boxes, same order (descending score)
         assert len(dropped) > 5 and len(kept) < len(boxes) - len(dropped)  # both steps act
+
+
+def test_merge_warns_when_boxes_are_in_image_coordinates():
+    tiles = grid(1848, 1024, size=1024, overlap=200)
+    # a box of tile 1 given in image coordinates (x = 1500) instead of tile ones (x = 676)
+    with pytest.warns(UserWarning, match=r"1 of 2 boxes lie wholly outside .*boxes\[1\]"):
+        merge([[500.0, 500, 20, 8, 0], [1500.0, 500, 20, 8, 0]], [0.9, 0.8], [0, 1], tiles)
