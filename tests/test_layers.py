@@ -1,7 +1,8 @@
 """The package's import graph, read with ``ast``: imports point down the layers, no module
 imports itself back through a cycle, and no private name crosses a module boundary.
 
-Layers, bottom to top (docs/design.md, "Layout"): shapes → boxes → measures → scene →
+Layers, bottom to top (docs/design.md, "Layout"): shapes → boxes → measures → scene (and
+fusion, beside it) →
 points → tiles → tables → frames → evaluation → distributed → demo → cli. ``errors`` and
 ``_kernels`` sit below all of them and may be used by all; the package root (``obbiou``, the
 public names) sits just above ``scene``. A module may import from its own layer and from
@@ -25,7 +26,7 @@ LAYERS = (
     "shapes",
     "boxes",
     "measures",
-    "scene",
+    "scene fusion",
     "",  # the package root: obbiou/__init__.py
     "points",
     "tiles",
