@@ -1,12 +1,12 @@
 """The package's import graph, read with ``ast``: imports point down the layers, no module
 imports itself back through a cycle, and no private name crosses a module boundary.
 
-Layers, bottom to top (docs/design.md, "Layout"): shapes → boxes → measures → scene →
-points → tiles → tables → frames → evaluation → warmup → distributed → demo → cli.
-``errors``, ``progress`` and ``_kernels`` sit below all of them and may be used by all; the
-package root (``obbiou``, the public names) sits just above ``scene``. A module may import
-from its own layer and from any layer below, never from one above. Imports inside
-functions count: a deferred import still ties the lower module to the higher one.
+Layers, bottom to top (docs/design.md, "Layout"): shapes → boxes → measures → scene (and
+fusion, beside it) → points → tiles → tables → frames → evaluation → warmup → distributed →
+demo → cli. ``errors``, ``progress`` and ``_kernels`` sit below all of them and may be used
+by all; the package root (``obbiou``, the public names) sits just above ``scene``. A module
+may import from its own layer and from any layer below, never from one above. Imports
+inside functions count: a deferred import still ties the lower module to the higher one.
 
 The checks are plain functions of ``{module name: source text}`` so that the tests below can
 also show them failing on small invented packages.
@@ -25,7 +25,7 @@ LAYERS = (
     "shapes",
     "boxes",
     "measures",
-    "scene",
+    "scene fusion",
     "",  # the package root: obbiou/__init__.py
     "points",
     "tiles",
