@@ -362,16 +362,21 @@ def _grid(ext: np.ndarray, z0: np.ndarray, z1: np.ndarray, n_points: int):
     x1, y1 = float(ext[:, 2].max()), float(ext[:, 3].max())
     span = max(x1 - x0, y1 - y0)
     side = _CELL_FACTOR * float(np.median(np.maximum(ext[:, 2] - ext[:, 0], ext[:, 3] - ext[:, 1])))
-    if not side > 0.0:
-        side = span / np.sqrt(len(ext)) if span > 0.0 else 1.0
     cap = max(1, min(_MAX_CELLS, 2 * n_points))
-    while True:
+    # No more cells than cap along the larger side, and a cell side whose inverse is finite
+    # (boxes of zero or subnormal size).
+    side = max(side, span / np.sqrt(cap), 1e-300)
+    if span == 0.0 and side == 1e-300:
+        side = 1.0
+    while np.isfinite(side * cap):
         inv = 1.0 / side
         nx = int(min((x1 - x0) * inv, 2.0**40)) + 1
         ny = int(min((y1 - y0) * inv, 2.0**40)) + 1
         if nx * ny <= cap:
             break
         side *= 1.5
+    else:  # boxes spread wider than float64 spans (~1.8e308): one cell
+        nx, ny, inv = 1, 1, 0.0
     grid_f = np.array([x0, y0, x1, y1, float(z0.min()), float(z1.max()), inv])
     return grid_f, np.array([nx, ny], np.int64)
 
@@ -381,8 +386,11 @@ def _grid_order(ext: np.ndarray, grid_f: np.ndarray, grid_i: np.ndarray) -> np.n
     reads the sorted points in nearly increasing order."""
     nx, ny = int(grid_i[0]), int(grid_i[1])
     inv = grid_f[-1]
-    ix = np.clip((ext[:, 0] - grid_f[0]) * inv, 0, nx - 1).astype(np.int64)
-    iy = np.clip((ext[:, 1] - grid_f[1]) * inv, 0, ny - 1).astype(np.int64)
+    with np.errstate(all="ignore"):  # inf * 0 on a one-cell grid: NaN, taken as cell 0
+        tx = np.nan_to_num((ext[:, 0] - grid_f[0]) * inv)
+        ty = np.nan_to_num((ext[:, 1] - grid_f[1]) * inv)
+    ix = np.clip(tx, 0, nx - 1).astype(np.int64)
+    iy = np.clip(ty, 0, ny - 1).astype(np.int64)
     return np.argsort(iy * nx + ix, kind="stable")
 
 

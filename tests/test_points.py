@@ -442,6 +442,13 @@ def test_grid_corner_cases():
     check_against(pts, boxes, inside, decided)
 
 
+def test_boxes_spread_beyond_float_range():
+    # Hand-worked: the span between the boxes overflows float64 (3.3e308); a one-cell grid.
+    boxes = [[-1.7e308, 0.0, -1.6e308, 1.0], [1.6e308, 0.0, 1.7e308, 1.0]]
+    pts = [[-1.65e308, 0.5], [1.65e308, 0.5], [0.0, 0.5], [1.65e308, 1.5]]
+    assert count_in_boxes(pts, boxes).tolist() == [1, 1]
+
+
 @pytest.mark.parametrize(
     "points, boxes, row, text",
     [
