@@ -333,14 +333,14 @@ def _prepare(b: Boxes):
         snapped, quarter = _quarter_turns(angle)
         odd = snapped & (quarter % 2 == 1)
         c, s = np.cos(angle), np.sin(angle)
+        # Quarter turns get cos and sin of exactly 0 and +-1: the frame test is then exact
+        # (u = +-dx or +-dy) and the kernel tells them by a zero cos or sin.
+        c = np.where(snapped, np.array([1.0, 0.0, -1.0, 0.0])[quarter], c)
+        s = np.where(snapped, np.array([0.0, 1.0, 0.0, -1.0])[quarter], s)
         ex = np.where(snapped, np.where(odd, hh, hw), np.abs(c) * hw + np.abs(s) * hh)
         ey = np.where(snapped, np.where(odd, hw, hh), np.abs(s) * hw + np.abs(c) * hh)
-        kinds = np.where(snapped, K.K_CENTRED, K.K_TURNED).astype(np.int64)
-        params[:, 0], params[:, 1], params[:, 4], params[:, 5] = cx, cy, cz, hz
-        params[:, 2] = np.where(snapped, ex, hw)
-        params[:, 3] = np.where(snapped, ey, hh)
-        params[:, 6] = np.where(snapped, 0.0, c)
-        params[:, 7] = np.where(snapped, 0.0, s)
+        kinds = np.full(m, K.K_FRAME, np.int64)
+        params[:] = np.column_stack([cx, cy, hw, hh, cz, hz, c, s])
         # Pad by far more than the rounding of the frame test (a few ulps of the size and
         # of the centre): padding only adds candidates, a missed cell would lose a point.
         pad = 1e-12 * (hw + hh)
@@ -440,9 +440,10 @@ def _run_scan(index, offsets: np.ndarray, out: np.ndarray, threads: int) -> np.n
     from obbiou._kernels import points as K
 
     m = index[1].shape[0]
+    counts = np.zeros(m, np.int64)
     if threads > 1 and m > 1:
         # Several chunks per thread: boxes differ widely in how many points they scan.
-        return K.scan_boxes(*index, offsets, out, int(min(m, 16 * threads)))
-    counts = np.zeros(m, np.int64)
-    K.scan_range(0, m, *index, offsets, out, counts)
+        K.scan_boxes(*index, offsets, out, counts, int(min(m, 16 * threads)))
+    else:
+        K.scan_range(0, m, *index, offsets, out, counts)
     return counts
