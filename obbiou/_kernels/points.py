@@ -18,6 +18,13 @@ a point that the inside test accepts.
 
 The inside tests are closed (a point on a face counts) and compare in each box's own frame,
 relative to its centre (see :func:`_within`, exact for axis-aligned faces).
+
+Measured on 10**6 invented lidar points and 10**4 upright boxes (``bench/points.py``, one
+thread, a shared machine): the sort takes 9-12 ms and the scan 13-16 ms. Tried and not
+kept: a grid over the boxes visited point by point, without sorting the points (30 ms
+inlined, 42 ms as written: points in arbitrary order make every box row a cache miss); a
+cell-by-cell scan of the sorted points against the boxes listed per cell (12 ms against
+15.7 ms for the scan, but a second kernel for the pairs, which must come out by box).
 """
 
 from __future__ import annotations
@@ -136,7 +143,7 @@ def sort_points(pts, grid_f, grid_i, keep_order):
 # overwrites it unless it was inside. With f = 0 (counting) every write goes to out[at]
 # and reads order[0]: the same code without a branch, compiled once. No branch on the
 # outcome either: an inside test that is true a third of the time defeats the branch
-# predictor (measured: 30 -> 12 ms for 1.3 M candidates).
+# predictor (measured: 30 -> 9 ms for 1.3 M candidates, one thread).
 
 
 @njit(cache=True)
