@@ -53,9 +53,13 @@ from obbiou.shapes import Boxes, read_boxes
 
 __all__ = ["Inside", "count_in_boxes", "points_in_boxes"]
 
-# Below this many points the kernels run on one thread: waking the worker threads of a
-# busy machine can cost more than the work (common practice, no source; see scene.py).
-_SERIAL_BELOW = 20_000
+# Below this many points the scan runs on one thread. Measured on the 2-core development
+# machine while other jobs ran (bench/points.py scenes, median of 15 calls, one thread
+# against two): 3e4 points 0.8 against 8.0 ms, 1e5 2.4 against 8.0 ms, 3e5 7.9 against
+# 16 ms, 1e6 29 against 37 ms; in an earlier, quieter run 1e6 took 36 against 24.5 ms.
+# A parallel region waits for its slowest thread, which a busy machine deschedules for a
+# time slice. A rule of thumb between the two.
+_SERIAL_BELOW = 200_000
 # An angle this close to k * pi / 2, relative to max(1, |angle|), is k quarter turns.
 _SNAP = 2.0**-50
 _HALF_PI = np.pi / 2

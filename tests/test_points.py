@@ -255,8 +255,9 @@ def test_parallel_and_serial_paths_agree(monkeypatch):
     # force reference), with enough points for the parallel path.
     pts, boxes = scene(30_000, 400, 7, spread=60.0)
     inside, decided = clear_membership(pts, boxes, 1e-9)
-    assert len(pts) >= P._SERIAL_BELOW
+    monkeypatch.setattr(P, "_SERIAL_BELOW", 10_000)
     parallel = points_in_boxes(pts, boxes)
+    np.testing.assert_array_equal(count_in_boxes(pts, boxes), parallel.counts())
     monkeypatch.setattr(P, "_SERIAL_BELOW", 10**9)
     serial = points_in_boxes(pts, boxes)
     np.testing.assert_array_equal(parallel.point, serial.point)
