@@ -4,7 +4,8 @@
 ``points_in_boxes(points, boxes)`` gives the (point, box) pairs themselves. Both find
 candidates with a spatial index (a uniform grid over the boxes' extents into which the
 points are sorted, see :mod:`obbiou._kernels.points`) and test only the points in the
-cells a box covers: never a points x boxes pass. Boxes are scanned in parallel.
+cells a box covers: never a points x boxes pass. From 200 000 points on, the boxes are
+scanned in parallel (numba threads; ``numba.set_num_threads`` sets how many).
 
 Layouts: ``(N, 3)`` points go with 3D boxes (``upright``, ``axis3``), ``(N, 2)`` points
 with 2D boxes (``axis``, ``rotated``, ``polygon``: convex, either winding). To count in
