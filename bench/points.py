@@ -102,12 +102,20 @@ def numpy_counts(pts: np.ndarray, boxes: np.ndarray) -> np.ndarray:
     return out
 
 
+CPU: dict[str, float] = {}  # median CPU seconds per call of the last timed() call
+
+
 def timed(fn, repeat: int) -> tuple[list[float], object]:
-    times, out = [], None
+    """Wall times of ``repeat`` calls of ``fn()`` and the last result; the median CPU time
+    of the process (all threads) per call goes to ``CPU["last"]``: far less disturbed than
+    wall time when other jobs share the machine."""
+    times, cpus, out = [], [], None
     for _ in range(repeat):
-        t = time.perf_counter()
+        c, t = time.process_time(), time.perf_counter()
         out = fn()
         times.append(time.perf_counter() - t)
+        cpus.append(time.process_time() - c)
+    CPU["last"] = statistics.median(cpus)
     return times, out
 
 
@@ -175,10 +183,15 @@ def main() -> None:
         return
 
     ours: dict[int, list[float]] = {}
-    for th in sorted({threads, 1}, reverse=True):
+    ours_cpu: dict[int, float] = {}
+    settings = sorted({threads, 1}, reverse=True) if n >= P._SERIAL_BELOW else [1]
+    if n < P._SERIAL_BELOW:
+        print(f"(below {P._SERIAL_BELOW:,} points the scan runs on one thread)")
+    for th in settings:
         numba.set_num_threads(th)
         times, counts = timed(lambda: P.count_in_boxes(pts, boxes), args.repeat + 1)
         ours[th] = times[1:]  # the first call sizes the arrays of the process
+        ours_cpu[th] = CPU["last"]
         fill, hits = timed(lambda: P.points_in_boxes(pts, boxes), args.repeat)
         rate = n / statistics.median(ours[th]) / 1e6
         print(f"obbiou count_in_boxes  {th} thread(s)  {span(ours[th])}  {rate:5.1f} M points/s")
@@ -186,6 +199,7 @@ def main() -> None:
     numba.set_num_threads(threads)
     peak = peak_rss_mb()
     theirs, ref = timed(lambda: shapely_counts(pts, boxes), max(3, args.repeat // 2))
+    theirs_cpu = CPU["last"]
     sample = max(1, m // 200)
     loop, part = timed(lambda: numpy_counts(pts, boxes[:sample]), 3)
     loop = [x * m / sample for x in loop]
@@ -198,6 +212,10 @@ def main() -> None:
             f"ratio shapely / obbiou ({th} thread(s)): median {ratio:5.0f}x, worst pairing "
             f"{worst:4.0f}x  (goal >= 50x: {'met' if ratio >= 50 else 'NOT met'}); numpy loop "
             f"/ obbiou {statistics.median(loop) / statistics.median(times):6.0f}x"
+        )
+        print(
+            f"    CPU time per call: obbiou {ours_cpu[th] * 1e3:.1f} ms (all threads), shapely "
+            f"{theirs_cpu * 1e3:.0f} ms: ratio {theirs_cpu / ours_cpu[th]:.0f}x"
         )
     print(f"peak memory: {peak:.0f} MB resident, {peak - rss0:+.0f} MB over the scene's arrays")
     print(f"points counted: {int(counts.sum()):,} (shapely's contains_xy: {int(ref.sum()):,})")
