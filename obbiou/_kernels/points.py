@@ -176,11 +176,33 @@ def _on_face(p, x, y, z):
 
 
 @njit(cache=True)
-def _run_frame(a, e, p, sp, order, out, at, f):
-    """Frame box: |u| <= hw and |v| <= hh in its own frame (u along the box's own x axis,
-    cos and sin in p[6], p[7]), relative to the centre, and |z - cz| <= hz."""
+def _run_frame(a, e, p, sp, order, out, at, f, ties):
+    """Frame box: |u| <= hw and |v| <= hh in its frame (u along the box's own x axis,
+    cos and sin in p[6], p[7]), relative to the centre, and |z - cz| <= hz.
+
+    Counting (f = 0) keeps the loop free of calls: points whose rounded frame coordinate
+    lands exactly on a face are noted in ``ties`` (room for e - a + 1) and settled after
+    the loop. A call to :func:`_on_face` inside the loop, even if rarely taken, made it
+    twice as slow (measured: 15.8 against 7.2-8.7 ms for 1.3 M candidates).
+    """
     cx, cy, hw, hh, cz, hz, c, s = p[0], p[1], p[2], p[3], p[4], p[5], p[6], p[7]
     n = 0
+    if f == 0:
+        t = 0
+        for k in range(a, e):
+            dx = sp[k, 0] - cx
+            dy = sp[k, 1] - cy
+            u = abs(dx * c + dy * s)
+            v = abs(dy * c - dx * s)
+            w = abs(sp[k, 2] - cz)
+            inside = (u <= hw) & (v <= hh) & (w <= hz)
+            ties[t] = k
+            t += inside & ((u == hw) | (v == hh) | (w == hz))
+            n += inside
+        for i in range(t):  # on a face to rounding: rare; the exact verdict
+            k = ties[i]
+            n -= not _on_face(p, sp[k, 0], sp[k, 1], sp[k, 2])
+        return n
     for k in range(a, e):
         dx = sp[k, 0] - cx
         dy = sp[k, 1] - cy
@@ -190,7 +212,7 @@ def _run_frame(a, e, p, sp, order, out, at, f):
         inside = (u <= hw) & (v <= hh) & (w <= hz)
         if inside & ((u == hw) | (v == hh) | (w == hz)):  # on a face: rare
             inside = _on_face(p, sp[k, 0], sp[k, 1], sp[k, 2])
-        out[at + n * f] = order[k * f]
+        out[at + n] = order[k]
         n += inside
     return n
 
@@ -221,12 +243,12 @@ def _run_polygon(a, e, p, verts, sp, order, out, at, f):
 
 
 @njit(cache=True)
-def _hits(kind, a, e, p, verts, sp, order, out, at, f):
+def _hits(kind, a, e, p, verts, sp, order, out, at, f, ties):
     """The points a..e-1 inside one box of kind ``kind`` (see the runs above)."""
     if kind == K_BOUNDS:
         return _run_bounds(a, e, p, sp, order, out, at, f)
     if kind == K_FRAME:
-        return _run_frame(a, e, p, sp, order, out, at, f)
+        return _run_frame(a, e, p, sp, order, out, at, f, ties)
     return _run_polygon(a, e, p, verts, sp, order, out, at, f)
 
 
@@ -300,6 +322,15 @@ def scan_range(
     scratch = np.empty(most + 1, np.int64)
     spare = np.empty(most + 1, np.int64)
     bounds = np.empty(most + 2, np.int64)  # starts of the runs: at most one per hit
+    longest = 0  # the longest run of candidates (a grid row under a box): room for ties
+    if not fill:
+        for i in range(lo, hi):
+            b = boxes[i]
+            ix0 = _cell(ext[b, 0], x0, invx, nx)
+            ix1 = _cell(ext[b, 2], x0, invx, nx)
+            for iy in range(_cell(ext[b, 1], y0, invy, ny), _cell(ext[b, 3], y0, invy, ny) + 1):
+                longest = max(longest, first[iy * nx + ix1 + 1] - first[iy * nx + ix0])
+    ties = np.empty(longest + 1, np.int64)
     for i in range(lo, hi):
         b = boxes[i]
         kind = kinds[b]
@@ -316,7 +347,9 @@ def scan_range(
             qb = iy * nx + ix1 + 1
             step = 1 if fill else qb - qa
             for q in range(qa, qb, step):
-                got = _hits(kind, first[q], first[q + step], p, vb, sp, order, scratch, n * f, f)
+                got = _hits(
+                    kind, first[q], first[q + step], p, vb, sp, order, scratch, n * f, f, ties
+                )
                 if fill and got > 0:
                     bounds[nr] = n
                     nr += 1
