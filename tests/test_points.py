@@ -202,6 +202,56 @@ def test_faces_exact_at_large_offsets_fractions():
     assert 0 < len(want) < len(pts)  # the check tells inside from outside
 
 
+def ulps_around(v, k=6):
+    """The 2k floats nearest v (k below it, v itself and k - 1 above it)."""
+    x = v
+    for _ in range(k):
+        x = np.nextafter(x, -np.inf)
+    out = []
+    for _ in range(2 * k):
+        out.append(x)
+        x = np.nextafter(x, np.inf)
+    return out
+
+
+@pytest.mark.parametrize("angle", [0.0, np.pi / 2, np.pi])
+@pytest.mark.parametrize("three", [False, True])
+def test_faces_exact_where_the_difference_rounds(angle, three):
+    # When point and centre are not within a factor 2 of each other, fl(p - c) is rounded
+    # and can land exactly on the half size for points just inside or just outside. The
+    # exact rational reference (fractions) decides; both counting and the pairs must agree.
+    cx, cy, cz = 1.1, 0.3, 0.7
+    w, h, height = 2.0, 0.5, 5.0
+    hx, hy = (w / 2, h / 2) if angle != np.pi / 2 else (h / 2, w / 2)
+    xs = ulps_around(cx + hx) + ulps_around(cx - hx)
+    ys = ulps_around(cy + hy) + ulps_around(cy - hy)
+    zs = ulps_around(cz + height / 2) + ulps_around(cz - height / 2)
+    pts = [[x, cy, cz] for x in xs] + [[cx, y, cz] for y in ys] + [[cx, cy, z] for z in zs]
+    pts = np.array(pts if three else [p[:2] for p in pts[: len(xs) + len(ys)]])
+    box = [cx, cy, cz, w, h, height, angle] if three else [cx, cy, w, h, angle]
+    half = (hx, hy, height / 2)
+    centre = (cx, cy, cz)
+    want = [
+        k
+        for k, p in enumerate(pts)
+        if all(
+            abs(Fraction(v) - Fraction(c)) <= Fraction(a)
+            for v, c, a in zip(p, centre[: len(p)], half[: len(p)], strict=True)
+        )
+    ]
+    rounded_on_face = [
+        k
+        for k, p in enumerate(pts)
+        if any(abs(v - c) == a for v, c, a in zip(p, centre[: len(p)], half[: len(p)], strict=True))
+        and k not in want
+    ]
+    assert rounded_on_face  # the case this test is about: rounds onto a face, is outside
+    assert points_in_boxes(pts, box).point.tolist() == want
+    assert int(count_in_boxes(pts, box)) == len(want)
+    many = np.tile(pts, (3000, 1))  # the same through the parallel driver
+    assert int(count_in_boxes(many, box)) == 3000 * len(want)
+
+
 def test_zero_size_boxes_hold_only_points_on_them():
     # Closed sets (hand-worked): a zero-width rectangle is a segment, a zero-size upright
     # box a point.
