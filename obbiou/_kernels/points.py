@@ -20,11 +20,13 @@ The inside tests are closed (a point on a face counts) and compare in each box's
 relative to its centre (see :func:`_within`, exact for axis-aligned faces).
 
 Measured on 10**6 invented lidar points and 10**4 upright boxes (``bench/points.py``, one
-thread, a shared machine): the sort takes 9-12 ms and the scan 13-16 ms. Tried and not
-kept: a grid over the boxes visited point by point, without sorting the points (30 ms
-inlined, 42 ms as written: points in arbitrary order make every box row a cache miss); a
-cell-by-cell scan of the sorted points against the boxes listed per cell (12 ms against
-15.7 ms for the scan, but a second kernel for the pairs, which must come out by box).
+thread, a shared machine): the sort takes 9-12 ms and the counting scan 8-11 ms (1.3 M
+candidates). Tried and not kept, each measured against the box-by-box scan of its time
+(15.7 ms, before the frame loop lost its call): a grid over the boxes visited point by
+point without sorting the points (30 ms inlined, 42 ms as written: points in arbitrary
+order make each box row a cache miss); a cell-by-cell scan of the sorted points against
+the boxes listed per cell (12 ms); a grid-row-by-row scan (15.2 ms); a two-pass sort by
+row, then column (15.6 against 12 ms for the sort).
 """
 
 from __future__ import annotations
