@@ -160,9 +160,9 @@ def main() -> None:
     args = ap.parse_args()
     n, m = (10**5, 10**3) if args.quick else (10**6, 10**4)
     pts, boxes = yard(n, m)
-    import numba
+    from obbiou._kernels import threads as T
 
-    threads = numba.get_num_threads()
+    threads = T.count()
     print(
         f"invented yard: {n:,} points, {m:,} upright boxes; {threads} threads; "
         f"load average {os.getloadavg()[0]:.1f} (shared machine)"
@@ -187,8 +187,9 @@ def main() -> None:
     settings = sorted({threads, 1}, reverse=True) if n >= P._SERIAL_BELOW else [1]
     if n < P._SERIAL_BELOW:
         print(f"(below {P._SERIAL_BELOW:,} points the scan runs on one thread)")
+    below = P._SERIAL_BELOW
     for th in settings:
-        numba.set_num_threads(th)
+        P._SERIAL_BELOW = below if th > 1 else float("inf")  # one thread: the serial path
         times, counts = timed(lambda: P.count_in_boxes(pts, boxes), args.repeat + 1)
         ours[th] = times[1:]  # the first call sizes the arrays of the process
         ours_cpu[th] = CPU["last"]
@@ -196,7 +197,7 @@ def main() -> None:
         rate = n / statistics.median(ours[th]) / 1e6
         print(f"obbiou count_in_boxes  {th} thread(s)  {span(ours[th])}  {rate:5.1f} M points/s")
         print(f"obbiou points_in_boxes {th} thread(s)  {span(fill)}  {len(hits):,} pairs")
-    numba.set_num_threads(threads)
+    P._SERIAL_BELOW = below
     peak = peak_rss_mb()
     theirs, ref = timed(lambda: shapely_counts(pts, boxes), max(3, args.repeat // 2))
     theirs_cpu = CPU["last"]

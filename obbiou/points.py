@@ -4,8 +4,8 @@
 ``points_in_boxes(points, boxes)`` gives the (point, box) pairs themselves. Both find
 candidates with a spatial index (a uniform grid over the boxes' extents into which the
 points are sorted, see :mod:`obbiou._kernels.points`) and test only the points in the
-cells a box covers: never a points x boxes pass. From 200 000 points on, the boxes are
-scanned in parallel (numba threads; ``numba.set_num_threads`` sets how many).
+cells a box covers: never a points x boxes pass. From 50 000 points on, the boxes are
+scanned on all cores (``NUMBA_NUM_THREADS`` threads, see :mod:`obbiou._kernels.threads`).
 
 Layouts: ``(N, 3)`` points go with 3D boxes (``upright``, ``axis3``), ``(N, 2)`` points
 with 2D boxes (``axis``, ``rotated``, ``polygon``: convex, either winding). To count in
@@ -50,17 +50,17 @@ from typing import Any
 import numpy as np
 
 from obbiou.errors import InvalidInput
-from obbiou.shapes import Boxes, read_boxes
+from obbiou.shapes import LIMIT, Boxes, as_float_array, read_boxes
 
 __all__ = ["Inside", "count_in_boxes", "points_in_boxes"]
 
-# Below this many points the scan runs on one thread. Measured on the 2-core development
-# machine while other jobs ran (bench/points.py scenes, median of 15 calls, one thread
-# against two): 3e4 points 0.8 against 8.0 ms, 1e5 2.4 against 8.0 ms, 3e5 7.9 against
-# 16 ms, 1e6 29 against 37 ms; in an earlier, quieter run 1e6 took 36 against 24.5 ms.
-# A parallel region waits for its slowest thread, which a busy machine deschedules for a
-# time slice. A rule of thumb between the two.
-_SERIAL_BELOW = 200_000
+# Below this many points the scan runs on one thread (common practice, no source: handing
+# spans to threads costs more than small scans). Measured on the 2-core machine while other
+# jobs kept both cores busy (bench/points.py scenes, medians of 15 calls, one thread
+# against the thread pool): 3e4 points 0.67 / 0.64 ms, 1e5 1.92 / 1.95 ms, 1e6 25.9 / 26.1
+# ms: with no idle core there is nothing to gain, and with the thread pool nothing to lose
+# either (numba's prange driver, tried first, lost at every size: 1e6 29 against 37 ms).
+_SERIAL_BELOW = 50_000
 # An angle this close to k * pi / 2, relative to max(1, |angle|), is k quarter turns.
 _SNAP = 2.0**-50
 _HALF_PI = np.pi / 2
@@ -261,36 +261,30 @@ def _read(points: Any, boxes: Any, shape: str | None) -> tuple[np.ndarray, Boxes
 
 
 def _read_points(points: Any, default_dim: int) -> np.ndarray:
-    """(N, 2) or (N, 3) finite float64 points, C-contiguous; an empty 1-D array is no points."""
-    try:
-        arr = np.asarray(points)
-    except Exception as exc:  # e.g. ragged nested lists
-        raise InvalidInput("points", f"cannot read as an array of numbers ({exc})") from None
-    if arr.dtype == object:
-        try:
-            arr = arr.astype(np.float64)
-        except (TypeError, ValueError):
-            raise InvalidInput(
-                "points", "cannot read as an array of numbers (ragged rows or non-numeric values)"
-            ) from None
-    if arr.dtype.kind not in "fiub":
-        raise InvalidInput("points", f"expected real numbers, got dtype {arr.dtype}")
+    """(N, 2) or (N, 3) finite float64 points, C-contiguous; an empty 1-D array is no points.
+    Coordinates beyond +-1e100 are rejected as for boxes (:data:`obbiou.shapes.LIMIT`)."""
+    arr = as_float_array(points, "points")
     if arr.ndim == 1 and arr.size == 0:
         arr = arr.reshape(0, default_dim)
     if arr.ndim != 2 or arr.shape[1] not in (2, 3):
         raise InvalidInput(
             "points", f"expected (N, 2) or (N, 3) points, got an array of shape {arr.shape}"
         )
-    arr = np.ascontiguousarray(arr, dtype=np.float64)
     with np.errstate(over="ignore", invalid="ignore"):
-        all_finite = bool(np.isfinite(arr.sum()))  # one fast pass for the common case
-    if not all_finite:
-        bad = ~np.isfinite(arr)
+        total = float(arr.sum())  # one fast pass for the common case
+    if not np.isfinite(total) or (arr.size and max(arr.max(), -arr.min()) > LIMIT):
+        bad = ~np.isfinite(arr) | (np.abs(arr) > LIMIT)
         if bad.any():
             row = int(np.argmax(bad.any(axis=1)))
             col = int(np.argmax(bad[row]))
-            v = arr[row, col]
-            what = "NaN" if np.isnan(v) else ("+inf" if v > 0 else "-inf")
+            v = float(arr[row, col])
+            what = (
+                "NaN"
+                if np.isnan(v)
+                else ("+inf" if v == np.inf else "-inf")
+                if np.isinf(v)
+                else f"{v!r}, beyond +-1e100 (the largest coordinate obbiou computes with)"
+            )
             raise InvalidInput("points", f"{'xyz'[col]} is {what}", row=row, column=col)
     return arr
 
@@ -403,9 +397,9 @@ def _grid_order(ext: np.ndarray, grid_f: np.ndarray, grid_i: np.ndarray) -> np.n
 
 
 def _threads(n: int) -> int:
-    from numba import get_num_threads
+    from obbiou._kernels import threads
 
-    return get_num_threads() if n >= _SERIAL_BELOW else 1
+    return threads.count() if n >= _SERIAL_BELOW else 1
 
 
 def _scan(pts: np.ndarray, b: Boxes, *, fill: bool) -> tuple[np.ndarray, Inside | None]:
@@ -446,12 +440,9 @@ def _scan(pts: np.ndarray, b: Boxes, *, fill: bool) -> tuple[np.ndarray, Inside 
 
 def _run_scan(index, offsets: np.ndarray, out: np.ndarray, threads: int) -> np.ndarray:
     from obbiou._kernels import points as K
+    from obbiou._kernels import threads as T
 
     m = index[1].shape[0]
     counts = np.zeros(m, np.int64)
-    if threads > 1 and m > 1:
-        # Several chunks per thread: boxes differ widely in how many points they scan.
-        K.scan_boxes(*index, offsets, out, counts, int(min(m, 16 * threads)))
-    else:
-        K.scan_range(0, m, *index, offsets, out, counts)
+    T.run(K.scan_range, (*index, offsets, out, counts), m, serial=threads == 1 or m == 1)
     return counts

@@ -9,7 +9,8 @@ grid of square cells (a stable counting sort by cell, rows of cells in order), s
 cells ``ix0 .. ix1`` of one grid row hold one contiguous run of sorted points. Each box
 then scans, row by row, the runs of the cells its extent covers and tests only those
 points: the cost is the binning (linear in the points) plus the candidates, never
-points x boxes. Boxes are independent, so the scan runs in parallel over chunks of boxes.
+points x boxes. Boxes are independent, so the scan runs on spans of boxes, on all cores
+(:func:`obbiou._kernels.threads.run`).
 
 Cells are found with ``floor((x - x0) * inv)``, clamped to the grid, for points and for box
 extents alike. Each step is monotone in ``x``, so a point whose x lies in a box's extent
@@ -32,7 +33,7 @@ row, then column (15.6 against 12 ms for the sort).
 from __future__ import annotations
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 # Box kinds (the public layer writes one parameter row of 8 floats per box):
 K_BOUNDS = 0  # axis, axis3: x_min, y_min, x_max, y_max, z_min, z_max
@@ -106,9 +107,10 @@ def sort_points(pts, grid_f, grid_i, keep_order):
     within a cell; one dummy entry unless ``keep_order``: counting needs no rows) and the
     sorted points (x, y, z rows: one cache line serves all three coordinates in the scan).
 
-    Serial: a parallel region costs up to a scheduler time slice on a busy machine
-    (measured: 8 ms), about what this takes for 10**6 points. Tried and slower: a
-    two-pass sort by row then column (15.6 against 12 ms for 786 000 points).
+    Serial: linear in the points, about 10 ms for 10**6. Tried and slower on the shared
+    2-core machine: the same sort over chunks of points with a histogram per chunk, in
+    parallel (22 against 14 ms), and a two-pass sort by row, then column (15.6 against
+    12 ms).
     """
     nx, ny = grid_i[0], grid_i[1]
     ncells = nx * ny
@@ -289,10 +291,8 @@ def _merge_runs(src, dst, bounds, nr):
     return src
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def scan_range(
-    lo,
-    hi,
     boxes,
     kinds,
     params,
@@ -306,8 +306,11 @@ def scan_range(
     offsets,
     out,
     counts,
+    lo,
+    hi,
 ):
-    """Serial body over boxes[lo:hi]: count the points inside each box b into counts[b];
+    """Kernel body over boxes[lo:hi] (run on spans by :func:`obbiou._kernels.threads.run`;
+    spans write disjoint outputs): count the points inside each box b into counts[b];
     when ``out`` is not empty, also write their input rows to ``out[offsets[b]:]`` in
     ascending order (the second pass of :func:`points_in_boxes`).
 
@@ -371,44 +374,3 @@ def scan_range(
             at = offsets[b]
             for k in range(n):
                 out[at + k] = merged[k]
-
-
-@njit(cache=True, parallel=True)
-def scan_boxes(
-    boxes,
-    kinds,
-    params,
-    verts,
-    ext,
-    grid_f,
-    grid_i,
-    first,
-    order,
-    sp,
-    offsets,
-    out,
-    counts,
-    chunks,
-):
-    """Parallel driver of :func:`scan_range` over chunks of boxes (counts come in zeroed:
-    an array made here would become a parallel loop of its own, compiled on top)."""
-    m = kinds.shape[0]
-    step = (m + chunks - 1) // chunks
-    for c in prange(chunks):
-        scan_range(
-            c * step,
-            min(m, (c + 1) * step),
-            boxes,
-            kinds,
-            params,
-            verts,
-            ext,
-            grid_f,
-            grid_i,
-            first,
-            order,
-            sp,
-            offsets,
-            out,
-            counts,
-        )
