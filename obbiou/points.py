@@ -52,7 +52,7 @@ import numpy as np
 from obbiou.errors import InvalidInput
 from obbiou.shapes import LIMIT, Boxes, as_float_array, read_boxes
 
-__all__ = ["Inside", "count_in_boxes", "points_in_boxes"]
+__all__ = ["Inside", "count_in_boxes", "points_in_boxes", "warmup"]
 
 # Below this many points the scan runs on one thread (common practice, no source: handing
 # spans to threads costs more than small scans). Measured on the 2-core machine while other
@@ -231,6 +231,17 @@ def points_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> Ins
     pts, b = _read(points, boxes, shape)
     _, inside = _scan(pts, b, fill=True)
     return inside
+
+
+def warmup() -> None:
+    """Compile the points kernels once (they are cached on disk): one set serves every
+    layout, small and large inputs, counts and pairs.
+
+    Examples
+    --------
+    >>> warmup()
+    """
+    points_in_boxes([[0.5, 0.5, 0.5]], [[0.0, 0.0, 0.0, 1.0, 1.0, 1.0, 0.3]])
 
 
 # ------------------------------------------------------------------------------ input
