@@ -1,0 +1,459 @@
+"""Lidar points inside boxes: how many points each box holds, and which.
+
+``count_in_boxes(points, boxes)`` gives the number of points inside each box;
+``points_in_boxes(points, boxes)`` gives the (point, box) pairs themselves. Both find
+candidates with a spatial index (a uniform grid over the boxes' extents into which the
+points are sorted, see :mod:`obbiou._kernels.points`) and test only the points in the
+cells a box covers: never a points x boxes pass. From 50 000 points on, the boxes are
+scanned on all cores (``NUMBA_NUM_THREADS`` threads, see :mod:`obbiou._kernels.threads`).
+
+Layouts: ``(N, 3)`` points go with 3D boxes (``upright``, ``axis3``), ``(N, 2)`` points
+with 2D boxes (``axis``, ``rotated``, ``polygon``: convex, either winding). To count in
+the ground plane, pass ``points[:, :2]`` and ``obbiou.boxes.footprint(boxes)``.
+
+Conventions (all layouts of :mod:`obbiou.shapes`): angles (``angle``, ``yaw``) in radians,
+counter-clockwise from +x towards +y; ``width`` along the box's own x axis, ``height``
+along its own y axis; for ``upright`` boxes ``length`` along the heading (yaw), ``width``
+across it, ``height`` along +z, and ``cz`` the centre of the box (not its bottom).
+
+Which points count (the exactness rule):
+
+* Boxes are **closed**: a point on a face, an edge or a corner is inside.
+* ``axis`` and ``axis3`` boxes compare coordinates with their bounds: exact.
+* ``rotated`` and ``upright`` boxes test ``|u| <= width / 2`` and ``|v| <= height / 2``
+  (``length``/``width``/``height`` for upright) in the box's own frame, relative to its
+  centre. An angle within a few units in the last place of a multiple of pi/2 (within
+  ``2**-50 * max(1, |angle|)`` of ``k * pi / 2``) is taken as exactly k quarter turns: no
+  float equals pi/2, and ``cos(np.pi / 2)`` is 6e-17, not 0, which would move faces by
+  rounding. Such boxes, and the z test of every upright box, compare the exact difference
+  of point and centre with the half size (no tolerance): a point exactly on a face is
+  inside, a point one ulp beyond it is outside.
+* At other angles the frame coordinates are computed in float64 from the rounded cosine
+  and sine: a point within about 1e-16 x its distance from the centre of a face may fall
+  on either side. Such a point is on the face to the precision of the box itself.
+* Polygons: a point is inside when no edge has it strictly on its left while another has
+  it strictly on its right (sign of a cross product; the vertices' bounding box settles
+  flat polygons). Exact for axis-parallel edges; for slanted edges the cross product is
+  rounded like the frame coordinates above.
+* A box of zero size holds only the points exactly on it (a zero-width box is a segment).
+
+Counting points in boxes of a vehicle or robot does not establish that a perception
+system is safe; for machines near people follow the applicable safety standards and
+local regulation, and rely on qualified engineers.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from obbiou.errors import InvalidInput
+from obbiou.shapes import LIMIT, Boxes, as_float_array, read_boxes
+
+__all__ = ["Inside", "count_in_boxes", "points_in_boxes", "warmup"]
+
+# Below this many points the scan runs on one thread (common practice, no source: handing
+# spans to threads costs more than small scans). Measured on the 2-core machine while other
+# jobs kept both cores busy (bench/points.py scenes, medians of 15 calls, one thread
+# against the thread pool): 3e4 points 0.67 / 0.64 ms, 1e5 1.92 / 1.95 ms, 1e6 25.9 / 26.1
+# ms: with no idle core there is nothing to gain, and with the thread pool nothing to lose
+# either (numba's prange driver, tried first, lost at every size: 1e6 29 against 37 ms).
+_SERIAL_BELOW = 50_000
+# An angle this close to k * pi / 2, relative to max(1, |angle|), is k quarter turns.
+_SNAP = 2.0**-50
+_HALF_PI = np.pi / 2
+# Cell side of the grid, as a multiple of the median box extent (bench/points.py --cells).
+_CELL_FACTOR = 1.0
+# Cells this many times narrower in x than in y: a box scans one run of points per grid row,
+# so narrow columns cut the candidates at no extra cost per run (bench/points.py --cells).
+_CELL_ASPECT = 1.0
+# At most this many grid cells (2**22 cells: 32 MB of cell offsets), and at most 2 per point.
+_MAX_CELLS = 2**22
+
+
+@dataclass(frozen=True)
+class Inside:
+    """Which points lie inside which boxes: one entry per (point, box) pair.
+
+    Sorted by ``(box, point)``; a point inside two boxes appears twice.
+
+    Attributes
+    ----------
+    point : numpy.ndarray
+        int64 rows of the points.
+    box : numpy.ndarray
+        int64 rows of the boxes.
+    n_points, n_boxes : int
+        Number of points and of boxes of the call.
+    """
+
+    point: np.ndarray
+    box: np.ndarray
+    n_points: int
+    n_boxes: int
+
+    def __len__(self) -> int:
+        return int(self.point.shape[0])
+
+    def counts(self) -> np.ndarray:
+        """The number of points inside each box: int64 ``(n_boxes,)``, as
+        :func:`count_in_boxes` gives it."""
+        return np.bincount(self.box, minlength=self.n_boxes).astype(np.int64)
+
+
+def count_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> np.ndarray:
+    """Count the points inside each box.
+
+    Parameters
+    ----------
+    points : array_like
+        ``(N, 3)`` points ``x, y, z`` for ``upright`` and ``axis3`` boxes, ``(N, 2)`` points
+        ``x, y`` for ``axis``, ``rotated`` and ``polygon`` boxes. Finite numbers.
+    boxes : array_like
+        ``(M, C)`` boxes (``(M, K, 2)`` polygons), or one box. Angles in radians,
+        counter-clockwise; ``upright``: ``cx, cy, cz, length, width, height, yaw`` with
+        ``length`` along the heading and ``cz`` the centre.
+    shape : str, optional
+        The box layout; inferred from the trailing dimensions when ``None``.
+
+    Returns
+    -------
+    numpy.ndarray
+        int64 ``(M,)``: how many points lie inside each box (closed boxes: a point on a
+        face counts); a 0-d count for a single box.
+
+    Raises
+    ------
+    InvalidInput
+        For points that are not finite or not ``(N, 2)`` / ``(N, 3)`` (naming the first bad
+        row), or whose dimension does not fit the box layout.
+    ValueError
+        For invalid boxes (see :func:`obbiou.boxes.check`).
+
+    Notes
+    -----
+    The exactness rule (faces of axis-aligned and quarter-turned boxes are exact; other
+    angles to rounding) is in the module docstring of :mod:`obbiou.points`.
+
+    Examples
+    --------
+    Invented warehouse lidar: two pallets, 1.25 m long, 0.75 m wide, 1 m high, centre
+    0.5 m above the floor; the second turned by 90 degrees.
+
+    >>> pallets = [[0.0, 0.0, 0.5, 1.25, 0.75, 1.0, 0.0],
+    ...            [5.0, 0.0, 0.5, 1.25, 0.75, 1.0, np.pi / 2]]
+    >>> returns = [[0.625, 0.0, 0.5],    # on the front face of the first pallet
+    ...            [0.0, 0.375, 1.0],    # on a top edge of the first pallet
+    ...            [5.375, 0.0, 0.25],   # on a side face of the turned pallet
+    ...            [5.0, 0.625, 0.0],    # on a bottom edge of the turned pallet
+    ...            [5.0, 0.635, 0.5],    # 1 cm beyond its front face
+    ...            [9.0, 9.0, 0.0]]      # floor
+    >>> count_in_boxes(returns, pallets)
+    array([2, 2])
+
+    Exact means exact on the numbers as stored: ``0.4`` and ``5.4`` are not what they
+    print, and ``5.4 - 5.0 > 0.8 / 2`` in float64, so that point lies just outside.
+
+    >>> int(count_in_boxes([[5.4, 0.0]], [5.0, 0.0, 0.8, 1.0, 0.0]))
+    0
+
+    In the plane, with a polygon given clockwise:
+
+    >>> count_in_boxes([[0.5, 0.5], [1.0, 0.0], [2.0, 2.0]], [[[0, 0], [0, 1], [1, 1], [1, 0]]])
+    array([2])
+
+    An empty point set, and a single box (the result drops the box axis):
+
+    >>> count_in_boxes(np.zeros((0, 3)), pallets)
+    array([0, 0])
+    >>> int(count_in_boxes([[0.5, 0.5]], [0, 0, 1, 1]))
+    1
+    >>> count_in_boxes([[0.5, 0.5, 0.0]], [0, 0, 1, 1])  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: points: (N, 3) points go with 3D boxes (upright, axis3), ...
+    """
+    pts, b = _read(points, boxes, shape)
+    counts = _scan(pts, b, fill=False)[0]
+    return counts[0] if b.single else counts
+
+
+def points_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> Inside:
+    """Which points lie inside which boxes.
+
+    Parameters
+    ----------
+    points : array_like
+        ``(N, 3)`` points ``x, y, z`` for ``upright`` and ``axis3`` boxes, ``(N, 2)`` points
+        ``x, y`` for ``axis``, ``rotated`` and ``polygon`` boxes. Finite numbers.
+    boxes : array_like
+        ``(M, C)`` boxes (``(M, K, 2)`` polygons), or one box. Angles in radians,
+        counter-clockwise; ``upright``: ``cx, cy, cz, length, width, height, yaw`` with
+        ``length`` along the heading and ``cz`` the centre.
+    shape : str, optional
+        The box layout; inferred from the trailing dimensions when ``None``.
+
+    Returns
+    -------
+    Inside
+        int64 ``point`` and ``box`` rows of every (point, box) pair with the point inside
+        the closed box, sorted by ``(box, point)``; a point inside two boxes appears twice.
+
+    Raises
+    ------
+    InvalidInput
+        For points that are not finite or not ``(N, 2)`` / ``(N, 3)`` (naming the first bad
+        row), or whose dimension does not fit the box layout.
+    ValueError
+        For invalid boxes (see :func:`obbiou.boxes.check`).
+
+    Examples
+    --------
+    Invented: two shelves of a warehouse floor plan (rotated boxes, metres) that share the
+    line x = 1; the point on it is inside both.
+
+    >>> shelves = [[0.0, 0.0, 2.0, 1.0, 0.0], [2.0, 0.0, 2.0, 1.0, 0.0]]
+    >>> hits = points_in_boxes([[1.0, 0.0], [2.5, 0.5], [7.0, 0.0]], shelves)
+    >>> hits.point, hits.box, len(hits)
+    (array([0, 0, 1]), array([0, 1, 1]), 3)
+    >>> hits.counts()
+    array([1, 2])
+
+    3D: a person (0.6 x 0.6 x 1.8 m, centre 0.9 m above the floor) and a point on the top.
+
+    >>> len(points_in_boxes([[10.0, 2.0, 1.8]], [10.0, 2.0, 0.9, 0.6, 0.6, 1.8, 0.3]))
+    1
+    >>> len(points_in_boxes(np.zeros((0, 2)), shelves))
+    0
+    """
+    pts, b = _read(points, boxes, shape)
+    _, inside = _scan(pts, b, fill=True)
+    return inside
+
+
+def warmup() -> None:
+    """Compile the points kernels once (they are cached on disk): one set serves every
+    layout, small and large inputs, counts and pairs.
+
+    Examples
+    --------
+    >>> warmup()
+    """
+    points_in_boxes([[0.5, 0.5, 0.5]], [[0.0, 0.0, 0.0, 1.0, 1.0, 1.0, 0.3]])
+
+
+# ------------------------------------------------------------------------------ input
+
+
+def _read(points: Any, boxes: Any, shape: str | None) -> tuple[np.ndarray, Boxes]:
+    b = read_boxes(boxes, shape, name="boxes")
+    pts = _read_points(points, 3 if b.is_3d else 2)
+    dim = pts.shape[1]
+    if dim == 3 and not b.is_3d:
+        raise InvalidInput(
+            "points",
+            f"(N, 3) points go with 3D boxes (upright, axis3), the boxes are {b.shape!r}; "
+            "for the ground plane pass points[:, :2]",
+        )
+    if dim == 2 and b.is_3d:
+        hint = (
+            "pass obbiou.boxes.footprint(boxes)"
+            if b.shape == "upright"
+            else "pass boxes[:, [0, 1, 3, 4]]"
+        )
+        raise InvalidInput(
+            "points",
+            f"(N, 2) points go with 2D boxes (axis, rotated, polygon), the boxes are "
+            f"{b.shape!r}; to count in the ground plane {hint}",
+        )
+    return pts, b
+
+
+def _read_points(points: Any, default_dim: int) -> np.ndarray:
+    """(N, 2) or (N, 3) finite float64 points, C-contiguous; an empty 1-D array is no points.
+    Coordinates beyond +-1e100 are rejected as for boxes (:data:`obbiou.shapes.LIMIT`)."""
+    arr = as_float_array(points, "points")
+    if arr.ndim == 1 and arr.size == 0:
+        arr = arr.reshape(0, default_dim)
+    if arr.ndim != 2 or arr.shape[1] not in (2, 3):
+        raise InvalidInput(
+            "points", f"expected (N, 2) or (N, 3) points, got an array of shape {arr.shape}"
+        )
+    with np.errstate(over="ignore", invalid="ignore"):
+        total = float(arr.sum())  # one fast pass for the common case
+    if not np.isfinite(total) or (arr.size and max(arr.max(), -arr.min()) > LIMIT):
+        bad = ~np.isfinite(arr) | (np.abs(arr) > LIMIT)
+        if bad.any():
+            row = int(np.argmax(bad.any(axis=1)))
+            col = int(np.argmax(bad[row]))
+            v = float(arr[row, col])
+            what = (
+                "NaN"
+                if np.isnan(v)
+                else ("+inf" if v == np.inf else "-inf")
+                if np.isinf(v)
+                else f"{v!r}, beyond +-1e100 (the largest coordinate obbiou computes with)"
+            )
+            raise InvalidInput("points", f"{'xyz'[col]} is {what}", row=row, column=col)
+    return arr
+
+
+# ------------------------------------------------------------------------- preparation
+
+
+def _quarter_turns(angle: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Which angles are multiples of pi/2 up to rounding (the snap rule), and k mod 4."""
+    k = np.round(angle / _HALF_PI)
+    snapped = np.abs(angle - k * _HALF_PI) <= _SNAP * np.maximum(1.0, np.abs(angle))
+    return snapped, k.astype(np.int64) % 4
+
+
+def _prepare(b: Boxes):
+    """Kernel rows of the boxes: kind codes, 8 parameters, polygon vertices, padded extents
+    in the plane (x0, y0, x1, y1) and the z range of each box."""
+    from obbiou._kernels import points as K
+
+    d = b.data
+    m = len(b)
+    params = np.zeros((m, K.N_PARAMS))
+    verts = np.zeros((1, 3, 2))
+    inf = np.full(m, np.inf)
+    if b.shape in ("axis", "axis3"):
+        kinds = np.full(m, K.K_BOUNDS, np.int64)
+        lo = d[:, :3] if b.shape == "axis3" else d[:, :2]
+        hi = d[:, 3:] if b.shape == "axis3" else d[:, 2:]
+        z0, z1 = (lo[:, 2], hi[:, 2]) if b.shape == "axis3" else (-inf, inf)
+        ext = np.column_stack([lo[:, 0], lo[:, 1], hi[:, 0], hi[:, 1]])
+        params[:, :6] = np.column_stack([ext, z0, z1])
+    elif b.shape == "polygon":
+        kinds = np.full(m, K.K_POLYGON, np.int64)
+        verts = d
+        ext = np.column_stack(
+            [d[:, :, 0].min(1), d[:, :, 1].min(1), d[:, :, 0].max(1), d[:, :, 1].max(1)]
+        )
+        z0, z1 = -inf, inf
+        params[:, :6] = np.column_stack([ext, z0, z1])
+    else:
+        if b.shape == "rotated":
+            cx, cy, w, h, angle = d.T
+            cz, hz = np.zeros(m), inf
+        else:
+            cx, cy, cz, w, h, height, angle = d.T
+            hz = height / 2
+        hw, hh = w / 2, h / 2
+        snapped, quarter = _quarter_turns(angle)
+        odd = snapped & (quarter % 2 == 1)
+        c, s = np.cos(angle), np.sin(angle)
+        # Quarter turns get cos and sin of exactly 0 and +-1: the frame test is then exact
+        # (u = +-dx or +-dy) and the kernel tells them by a zero cos or sin.
+        c = np.where(snapped, np.array([1.0, 0.0, -1.0, 0.0])[quarter], c)
+        s = np.where(snapped, np.array([0.0, 1.0, 0.0, -1.0])[quarter], s)
+        ex = np.where(snapped, np.where(odd, hh, hw), np.abs(c) * hw + np.abs(s) * hh)
+        ey = np.where(snapped, np.where(odd, hw, hh), np.abs(s) * hw + np.abs(c) * hh)
+        kinds = np.full(m, K.K_FRAME, np.int64)
+        params[:] = np.column_stack([cx, cy, hw, hh, cz, hz, c, s])
+        # Pad by far more than the rounding of the frame test (a few ulps of the size and
+        # of the centre): padding only adds candidates, a missed cell would lose a point.
+        pad = 1e-12 * (hw + hh)
+        padx = pad + 1e-14 * np.abs(cx)
+        pady = pad + 1e-14 * np.abs(cy)
+        ext = np.column_stack([cx - ex - padx, cy - ey - pady, cx + ex + padx, cy + ey + pady])
+        with np.errstate(invalid="ignore"):  # cz - inf for rotated boxes is -inf, fine
+            z0, z1 = cz - hz, cz + hz
+    return kinds, np.ascontiguousarray(params), np.ascontiguousarray(verts), ext, z0, z1
+
+
+def _grid(ext: np.ndarray, z0: np.ndarray, z1: np.ndarray, n_points: int):
+    """The grid over the union of the box extents: float and int parameters for the kernels.
+
+    Cells are squares of about the median box extent (a box then scans 1-4 cells and the
+    points of an area a few times its own), at most 2 per point and :data:`_MAX_CELLS`.
+    """
+    x0, y0 = float(ext[:, 0].min()), float(ext[:, 1].min())
+    x1, y1 = float(ext[:, 2].max()), float(ext[:, 3].max())
+    span = max(x1 - x0, y1 - y0)
+    side = _CELL_FACTOR * float(np.median(np.maximum(ext[:, 2] - ext[:, 0], ext[:, 3] - ext[:, 1])))
+    cap = max(1, min(_MAX_CELLS, 2 * n_points))
+    # No more cells than cap along the larger side, and a cell side whose inverse is finite
+    # (boxes of zero or subnormal size).
+    side = max(side, span / np.sqrt(cap), 1e-300)
+    if span == 0.0 and side == 1e-300:
+        side = 1.0
+    while np.isfinite(side * cap):
+        invy = 1.0 / side
+        invx = _CELL_ASPECT / side
+        nx = int(min((x1 - x0) * invx, 2.0**40)) + 1
+        ny = int(min((y1 - y0) * invy, 2.0**40)) + 1
+        if nx * ny <= cap:
+            break
+        side *= 1.5
+    else:  # boxes spread wider than float64 spans (~1.8e308): one cell
+        nx, ny, invx, invy = 1, 1, 0.0, 0.0
+    grid_f = np.array([x0, y0, x1, y1, float(z0.min()), float(z1.max()), invx, invy])
+    return grid_f, np.array([nx, ny], np.int64)
+
+
+def _grid_order(ext: np.ndarray, grid_f: np.ndarray, grid_i: np.ndarray) -> np.ndarray:
+    """The boxes by the grid cell of their lower-left corner (row by row): the scan then
+    reads the sorted points in nearly increasing order."""
+    nx, ny = int(grid_i[0]), int(grid_i[1])
+    with np.errstate(all="ignore"):  # inf * 0 on a one-cell grid: NaN, taken as cell 0
+        tx = np.nan_to_num((ext[:, 0] - grid_f[0]) * grid_f[6])
+        ty = np.nan_to_num((ext[:, 1] - grid_f[1]) * grid_f[7])
+    ix = np.clip(tx, 0, nx - 1).astype(np.int64)
+    iy = np.clip(ty, 0, ny - 1).astype(np.int64)
+    return np.argsort(iy * nx + ix, kind="stable")
+
+
+def _threads(n: int) -> int:
+    from obbiou._kernels import threads
+
+    return threads.count() if n >= _SERIAL_BELOW else 1
+
+
+def _scan(pts: np.ndarray, b: Boxes, *, fill: bool) -> tuple[np.ndarray, Inside | None]:
+    """Counts per box, and with ``fill`` the (point, box) pairs."""
+    from obbiou._kernels import points as K
+
+    n, m = pts.shape[0], len(b)
+    empty = np.zeros(0, np.int64)
+    if n == 0 or m == 0:
+        return np.zeros(m, np.int64), Inside(empty, empty, n, m)
+    kinds, params, verts, ext, z0, z1 = _prepare(b)
+    grid_f, grid_i = _grid(ext, z0, z1, n)
+    first, order, sp = K.sort_points(pts, grid_f, grid_i, fill)
+    index = (
+        _grid_order(ext, grid_f, grid_i),
+        kinds,
+        params,
+        verts,
+        ext,
+        grid_f,
+        grid_i,
+        first,
+        order,
+        sp,
+    )
+    threads = _threads(n)
+    counts = _run_scan(index, empty, empty, threads)
+    if not fill:
+        return counts, None
+    offsets = np.zeros(m + 1, np.int64)
+    np.cumsum(counts, out=offsets[1:])
+    point = np.empty(int(offsets[-1]), np.int64)
+    if len(point):
+        _run_scan(index, offsets, point, threads)
+    box = np.repeat(np.arange(m, dtype=np.int64), counts)
+    return counts, Inside(point, box, n, m)
+
+
+def _run_scan(index, offsets: np.ndarray, out: np.ndarray, threads: int) -> np.ndarray:
+    from obbiou._kernels import points as K
+    from obbiou._kernels import threads as T
+
+    m = index[1].shape[0]
+    counts = np.zeros(m, np.int64)
+    T.run(K.scan_range, (*index, offsets, out, counts), m, serial=threads == 1 or m == 1)
+    return counts
