@@ -14,7 +14,7 @@ on a shared file system, or the same image for every worker) and warm it once, o
 Examples
 --------
 >>> [name for name, _ in GROUPS]
-['overlap', 'box tools', 'scene', 'evaluation']
+['overlap', 'box tools', 'points', 'scene', 'fusion', 'evaluation']
 """
 
 from __future__ import annotations
@@ -32,7 +32,9 @@ __all__ = ["GROUPS", "PHASES", "run", "compile_group"]
 GROUPS: list[tuple[str, str]] = [
     ("overlap", "obbiou.measures:warmup"),
     ("box tools", "obbiou.boxes:warmup"),
+    ("points", "obbiou.points:warmup"),
     ("scene", "obbiou.scene:warmup"),
+    ("fusion", "obbiou.fusion:warmup"),
     ("evaluation", "obbiou.evaluation.protocol:warmup"),
 ]
 
@@ -40,12 +42,14 @@ GROUPS: list[tuple[str, str]] = [
 DESCRIPTIONS = {
     "overlap": "overlap measures: iou, giou, diou, intersection, coverage",
     "box tools": "box tools: fit_rotated",
+    "points": "lidar points: count_in_boxes, points_in_boxes",
+    "fusion": "box fusion: fuse",
     "scene": "scene: overlapping_pairs, suppress (hard, linear, gaussian)",
     "evaluation": "evaluation: matching, AP, bootstrap",
 }
 
 #: Groups in the order they may start: the second phase calls the first one's kernels.
-PHASES: list[list[str]] = [["overlap", "box tools"], ["scene", "evaluation"]]
+PHASES: list[list[str]] = [["overlap", "box tools", "points"], ["scene", "evaluation", "fusion"]]
 
 
 def compile_group(name: str) -> float:
