@@ -226,7 +226,7 @@ def _matrix(pa: Prepared, pb: Prepared, code: int) -> np.ndarray:
         bt = np.empty((pairs.RECT_COLUMNS, m + 8))  # padded: rows not a multiple of 4 KiB apart
         bt[:, :m] = pb.rows.T
         args = (pa.rows, bt, m, code, pa.is_3d, out)
-        threads.run(pairs.rect_matrix_rows, args, n, serial=serial)
+        threads.run(pairs.rect_body("matrix", code), args, n, serial=serial)
     return out.reshape(n, m)
 
 
@@ -240,7 +240,7 @@ def _pairs(pa: Prepared, pb: Prepared, first: np.ndarray, second: np.ndarray, co
         args = (pa.vertices, pa.rows, pb.vertices, pb.rows, first, second, code, out)
         threads.run(pairs.poly_list, args, n, serial=serial)
     else:
-        body = pairs.axis_list if pa.kind == "axis" else pairs.rect_list
+        body = pairs.axis_list if pa.kind == "axis" else pairs.rect_body("list", code)
         args = (pa.rows, pb.rows, first, second, code, pa.is_3d, out)
         threads.run(body, args, n, serial=serial)
     return out
@@ -252,7 +252,8 @@ def _rect_elementwise(a: Boxes, b: Boxes, code: int) -> np.ndarray:
     out = np.empty(len(a))
     la, lb = _LAYOUT_CODES[a.shape], _LAYOUT_CODES[b.shape]
     args = (a.data, la, b.data, lb, code, a.is_3d, out)
-    threads.run(pairs.rect_elementwise, args, len(a), serial=len(a) < PARALLEL_MIN)
+    body = pairs.rect_body("elementwise", code)
+    threads.run(body, args, len(a), serial=len(a) < PARALLEL_MIN)
     return out
 
 
@@ -464,8 +465,9 @@ del _f
 def warmup() -> None:
     """Compile every overlap kernel once (cached on disk for later processes).
 
-    One call per layout and job compiles everything: the measure is a run-time value of
-    the kernels, and small and large inputs run the same compiled bodies.
+    One call per layout, job and family of measures compiles everything (IoU, intersection
+    and coverage share bodies; GIoU and DIoU share others); small and large inputs run the
+    same compiled bodies.
 
     Examples
     --------
@@ -481,6 +483,7 @@ def warmup() -> None:
     idx = np.array([0, 1], dtype=np.int64)
     for data in cases:
         boxes = read_boxes(data)
-        iou(boxes.data, boxes.data)
-        iou(boxes.data, boxes.data, elementwise=True)
-        pair_values(boxes, boxes, idx, idx)
+        for measure in (iou, giou):  # the fast and the full bodies
+            measure(boxes.data, boxes.data)
+            measure(boxes.data, boxes.data, elementwise=True)
+            pair_values(boxes, boxes, idx, idx, measure=measure.__name__)

@@ -54,7 +54,7 @@ def _rect_overlap(ax, ay, aw, ah, at, bx, by, bw, bh, bt, xs, ys, us, vs):
         ys[k] = py + sx * uy + sy * ux
     ahw = 0.5 * aw
     ahh = 0.5 * ah
-    n = clip_axis(xs, ys, 4, us, vs, 1.0, ahw)
+    n = clip_axis(xs, ys, np.int64(4), us, vs, 1.0, ahw)
     n = clip_axis(us, vs, n, xs, ys, -1.0, ahw)
     n = clip_axis(ys, xs, n, vs, us, 1.0, ahh)
     n = clip_axis(vs, us, n, ys, xs, -1.0, ahh)

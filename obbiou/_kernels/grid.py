@@ -479,17 +479,17 @@ SAMPLE_STRIDE = 16
 
 @njit(cache=True)
 def _values_axis(scene, ci, cj, n, out):
-    axis_list(scene[1], scene[6], ci, cj, IOU, scene[15], out, 0, n)
+    axis_list(scene[1], scene[6], ci, cj, np.int64(IOU), scene[15], out, np.int64(0), n)
 
 
 @njit(cache=True)
 def _values_rect(scene, ci, cj, n, out):
-    rect_list(scene[1], scene[6], ci, cj, IOU, scene[15], out, 0, n)
+    rect_list(scene[1], scene[6], ci, cj, np.int64(IOU), scene[15], out, np.int64(0), n)
 
 
 @njit(cache=True)
 def _values_poly(scene, ci, cj, n, out):
-    poly_list(scene[2], scene[1], scene[7], scene[6], ci, cj, IOU, out, 0, n)
+    poly_list(scene[2], scene[1], scene[7], scene[6], ci, cj, np.int64(IOU), out, np.int64(0), n)
 
 
 @njit(cache=True, nogil=True)
@@ -504,7 +504,7 @@ def chunk_estimates(step, scene, grid, margin, est, c0, c1):
         lo, hi = c * step, min(n, (c + 1) * step)
         found = 0
         for i in range(lo, hi, SAMPLE_STRIDE):
-            found += walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], False, none)
+            found += walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], np.bool_(False), none)
         est[c] = int(margin * found * SAMPLE_STRIDE) + 64 if hi > lo else 0
 
 
@@ -547,9 +547,9 @@ def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got, values):
     n = scene[1].shape[0]
     cell_ptr = grid[2]
     cap = cj.shape[0]
-    pos = 0
+    pos = np.int64(0)
     for i in range(c * step, min(n, (c + 1) * step)):
-        m = walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], False, cj[min(pos, cap) :])
+        m = walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], np.bool_(False), cj[min(pos, cap) :])
         for k in range(pos, min(pos + m, cap)):
             ci[k] = i
         pos += m
@@ -566,43 +566,37 @@ def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got, values):
     got[c] = kept
 
 
-@njit(cache=True)
+# chunk_room and regrow are plain numpy: they run once per scene, and as numba kernels their
+# array slicing cost two seconds of compiling on first use.
+
+
 def chunk_room(est):
     """Each chunk's buffer span [lo[c], hi[c]) for the room ``est[c]``, and buffers of the
     total size for ci, cj (int64) and cv (float64)."""
-    chunks = est.shape[0]
-    lo = np.zeros(chunks, np.int64)
-    hi = np.zeros(chunks, np.int64)
-    end = 0
-    for c in range(chunks):
-        lo[c] = end
-        end += est[c]
-        hi[c] = end
+    hi = np.cumsum(est).astype(np.int64)
+    lo = hi - est
+    end = int(hi[-1]) if hi.shape[0] else 0
     return lo, hi, np.empty(end, np.int64), np.empty(end, np.int64), np.empty(end)
 
 
-@njit(cache=True)
 def regrow(lo, hi, need, ci, cj, cv):
     """After a pass in which some chunks overflowed (need[c] > hi[c] - lo[c]): buffers with
     exactly the room they need at the end, the other chunks' pairs copied over. Returns
     (ci, cj, cv, redo): redo[c] for the chunks to walk again."""
     redo = need > hi - lo
-    extra = 0
-    for c in range(need.shape[0]):
-        if redo[c]:
-            extra += need[c]
-    if extra == 0:
+    if not redo.any():
         return ci, cj, cv, redo
     end = ci.shape[0]
-    ci2 = np.empty(end + extra, np.int64)
-    cj2 = np.empty(end + extra, np.int64)
-    cv2 = np.empty(end + extra)
-    ci2[:end], cj2[:end], cv2[:end] = ci, cj, cv
-    for c in range(need.shape[0]):
-        if redo[c]:
-            lo[c], hi[c] = end, end + need[c]
-            end += need[c]
-    return ci2, cj2, cv2, redo
+    extra = need[redo]
+    hi[redo] = end + np.cumsum(extra)
+    lo[redo] = hi[redo] - extra
+    grow = int(extra.sum())
+    return (
+        np.concatenate([ci, np.empty(grow, np.int64)]),
+        np.concatenate([cj, np.empty(grow, np.int64)]),
+        np.concatenate([cv, np.empty(grow)]),
+        redo,
+    )
 
 
 @njit(cache=True)
@@ -645,19 +639,23 @@ def gather(scene, ci, cj, cv, lo, got):
 
 @njit(cache=True)
 def _sort_small(keys, values):
-    """Insertion sort of short rows (a box overlaps few others), values carried along."""
-    if keys.shape[0] > 32:
-        o = np.argsort(keys)
-        keys[:] = keys[o].copy()
-        values[:] = values[o].copy()
-        return
-    for p in range(1, keys.shape[0]):
-        k, v = keys[p], values[p]
-        q = p - 1
-        while q >= 0 and keys[q] > k:
-            keys[q + 1], values[q + 1] = keys[q], values[q]
-            q -= 1
-        keys[q + 1], values[q + 1] = k, v
+    """Shell sort of a row's pairs by key (a box overlaps few others: mostly the last,
+    insertion-sort pass), values carried along. numba's argsort would add a second and a
+    half of compiling to the first scene call; a row of thousands still sorts in well under
+    a millisecond."""
+    n = keys.shape[0]
+    gap = 1
+    while gap < n // 3:
+        gap = 3 * gap + 1
+    while gap > 0:
+        for p in range(gap, n):
+            k, v = keys[p], values[p]
+            q = p - gap
+            while q >= 0 and keys[q] > k:
+                keys[q + gap], values[q + gap] = keys[q], values[q]
+                q -= gap
+            keys[q + gap], values[q + gap] = k, v
+        gap //= 3
 
 
 def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial, margin=1.25):
@@ -707,5 +705,5 @@ def _count_candidates(scene, grid):
     cell_ptr = grid[2]
     total = 0
     for i in range(scene[1].shape[0]):
-        total += walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], False, none)
+        total += walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], np.bool_(False), none)
     return total

@@ -153,9 +153,9 @@ def axis_hull(P, p, Q, q, is3d, buf):
     oy = P[p, AX_Y0]
     xs = buf[0]
     ys = buf[1]
-    axis_corners(P, p, ox, oy, xs, ys, 0)
-    axis_corners(Q, q, ox, oy, xs, ys, 4)
-    hull = hull_area(xs, ys, 8, buf[2], buf[3])
+    axis_corners(P, p, ox, oy, xs, ys, np.int64(0))
+    axis_corners(Q, q, ox, oy, xs, ys, np.int64(4))
+    hull = hull_area(xs, ys, np.int64(8), buf[2], buf[3])
     if is3d:
         hull *= max(P[p, AX_Z1], Q[q, AX_Z1]) - min(P[p, AX_Z0], Q[q, AX_Z0])
     return hull
@@ -423,7 +423,7 @@ def rect_clip(phw, phh, px, py, ux, uy, vx, vy, parea, qarea, buf):
     y1[2] = py + uy + vy
     x1[3] = px - ux + vx
     y1[3] = py - uy + vy
-    n = clip_axis(x1, y1, 4, x2, y2, 1.0, phw)
+    n = clip_axis(x1, y1, np.int64(4), x2, y2, 1.0, phw)
     n = clip_axis(x2, y2, n, x1, y1, -1.0, phw)
     n = clip_axis(y1, x1, n, y2, x2, 1.0, phh)
     n = clip_axis(y2, x2, n, y1, x1, -1.0, phh)
@@ -469,7 +469,7 @@ def rect_hull(a, b, buf):
     ys[6] = py + uy + vy
     xs[7] = px - ux + vx
     ys[7] = py - uy + vy
-    return hull_area(xs, ys, 8, buf[2], buf[3])
+    return hull_area(xs, ys, np.int64(8), buf[2], buf[3])
 
 
 @njit(error_model="numpy", cache=True)
@@ -628,20 +628,47 @@ def rect_inter_row(a, BT, out):
 RECT_BLOCK = 256
 
 
+# IoU, intersection and coverage (the "fast" measures) and GIoU, DIoU (the "full" ones) run
+# in separate compiled bodies, so that a first IoU compiles no hull code: measured, the
+# hull (GIoU) and distance (DIoU) code was over a second of the first call's compiling.
+
+
 @njit(error_model="numpy", cache=True)
 def rect_block(PT, QT, measure, is3d, out, buf):
-    """out[k] = the measure of column k of PT with column k of QT: IoU, intersection and
-    coverage by the vectorised loop, its flagged (near-parallel) pairs redone; GIoU and
-    DIoU pair by pair. Bit for bit the values of :func:`rect_measure`."""
-    fast = measure == INTERSECTION or measure == IOU or measure == COVERAGE
-    if fast:
-        rect_inter_columns(PT, QT, out)
+    """out[k] = a fast measure of column k of PT with column k of QT: the vectorised loop,
+    its flagged (near-parallel) pairs redone by clipping. Bit for bit :func:`rect_measure`."""
+    rect_inter_columns(PT, QT, out)
     for k in range(out.shape[0]):
         v = out[k]
-        if not fast or v < 0.0:
-            out[k] = rect_measure(rect_load_t(PT, k), rect_load_t(QT, k), measure, is3d, buf)
-        elif measure != INTERSECTION:
-            out[k] = finish(measure, v, PT[R_SIZE, k], QT[R_SIZE, k], 0.0, 0.0, 0.0)
+        if v < 0.0:
+            v = rect_inter_value(rect_load_t(PT, k), rect_load_t(QT, k), buf)
+        out[k] = finish(measure, v, PT[R_SIZE, k], QT[R_SIZE, k], 0.0, 0.0, 0.0)
+
+
+@njit(error_model="numpy", cache=True)
+def rect_block_full(PT, QT, measure, is3d, out, buf):
+    """out[k] = any measure (GIoU, DIoU) of column k of PT with column k of QT."""
+    for k in range(out.shape[0]):
+        out[k] = rect_measure(rect_load_t(PT, k), rect_load_t(QT, k), measure, is3d, buf)
+
+
+@njit(error_model="numpy", cache=True)
+def rect_row(a, BT, measure, is3d, row, buf):
+    """row[j] = a fast measure of box ``a`` (row tuple) with column j of BT: the
+    vectorised loop of :func:`rect_inter_row`, flagged pairs redone by clipping."""
+    rect_inter_row(a, BT, row)
+    for j in range(row.shape[0]):
+        v = row[j]
+        if v < 0.0:
+            v = rect_inter_value(a, rect_load_t(BT, j), buf)
+        row[j] = finish(measure, v, a[R_SIZE], BT[R_SIZE, j], 0.0, 0.0, 0.0)
+
+
+@njit(error_model="numpy", cache=True)
+def rect_row_full(a, BT, measure, is3d, row, buf):
+    """row[j] = any measure (GIoU, DIoU) of box ``a`` with column j of BT."""
+    for j in range(row.shape[0]):
+        row[j] = rect_measure(a, rect_load_t(BT, j), measure, is3d, buf)
 
 
 # --------------------------------------------------------------------------------------
@@ -781,30 +808,15 @@ def axis_list(A, B, first, second, measure, is3d, out, lo, hi):
         out[k] = axis_pair(A, first[k], B, second[k], measure, is3d, buf)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
-def rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi):
-    """Rows lo..hi-1 of the all-pairs matrix of prepared rectangles A with B, given as
-    its transposed rows BT (16, >= m): the vectorised loop of :func:`rect_inter_row`,
-    then the pairs it flagged and the finishing arithmetic as in :func:`rect_block`."""
+@njit(inline="always")
+def _rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi, row_fn):
     buf = np.empty((4, RECT_SCRATCH))
-    fast = measure == INTERSECTION or measure == IOU or measure == COVERAGE
     for i in range(lo, hi):
-        a = rect_load(A, i)
-        row = out[i * m : (i + 1) * m]
-        if fast:
-            rect_inter_row(a, BT, row)
-        for j in range(m):
-            v = row[j]
-            if not fast or v < 0.0:
-                row[j] = rect_measure(a, rect_load_t(BT, j), measure, is3d, buf)
-            elif measure != INTERSECTION:
-                row[j] = finish(measure, v, a[R_SIZE], BT[R_SIZE, j], 0.0, 0.0, 0.0)
+        row_fn(rect_load(A, i), BT, measure, is3d, out[i * m : (i + 1) * m], buf)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
-def rect_list(A, B, first, second, measure, is3d, out, lo, hi):
-    """out[k] = the measure of (A[first[k]], B[second[k]]) for k in lo..hi-1, prepared
-    rectangles gathered block by block into columns for :func:`rect_block`."""
+@njit(inline="always")
+def _rect_list(A, B, first, second, measure, is3d, out, lo, hi, block):
     # Rows of the scratch blocks are padded off a multiple of 4096 bytes apart: sixteen
     # streams exactly 4 KiB apart would fight over the same L1 cache sets.
     PT = np.empty((RECT_COLUMNS, RECT_BLOCK + 8))
@@ -815,13 +827,11 @@ def rect_list(A, B, first, second, measure, is3d, out, lo, hi):
         for k in range(n):
             rect_store_t(PT, k, rect_load(A, first[s + k]))
             rect_store_t(QT, k, rect_load(B, second[s + k]))
-        rect_block(PT, QT, measure, is3d, out[s : s + n], buf)
+        block(PT, QT, measure, is3d, out[s : s + n], buf)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
-def rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi):
-    """out[k] = the measure of box k of a with box k of b, k in lo..hi-1, straight from
-    the box data (layouts ``la``, ``lb``): no (N, 16) arrays of prepared rows."""
+@njit(inline="always")
+def _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, block):
     PT = np.empty((RECT_COLUMNS, RECT_BLOCK + 8))
     QT = np.empty((RECT_COLUMNS, RECT_BLOCK + 8))
     buf = np.empty((4, RECT_SCRATCH))
@@ -830,7 +840,55 @@ def rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi):
         for k in range(n):
             rect_store_t(PT, k, rect_tuple(Da, s + k, la))
             rect_store_t(QT, k, rect_tuple(Db, s + k, lb))
-        rect_block(PT, QT, measure, is3d, out[s : s + n], buf)
+        block(PT, QT, measure, is3d, out[s : s + n], buf)
+
+
+# The bodies of the three jobs, each for the fast and the full measures (the generic
+# bodies above are written once; numba inlines them, so each of these is a plain cached
+# kernel). Matrices: rows lo..hi-1 of A with B given as its transposed rows BT (16, >= m).
+# Lists: out[k] for the pairs (A[first[k]], B[second[k]]), k in lo..hi-1, gathered block by
+# block into columns. Elementwise: box k of a with box k of b straight from the box data
+# (layouts la, lb), no (N, 16) arrays.
+
+
+@njit(error_model="numpy", cache=True, nogil=True)
+def rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi):
+    _rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi, rect_row)
+
+
+@njit(error_model="numpy", cache=True, nogil=True)
+def rect_matrix_rows_full(A, BT, m, measure, is3d, out, lo, hi):
+    _rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi, rect_row_full)
+
+
+@njit(error_model="numpy", cache=True, nogil=True)
+def rect_list(A, B, first, second, measure, is3d, out, lo, hi):
+    _rect_list(A, B, first, second, measure, is3d, out, lo, hi, rect_block)
+
+
+@njit(error_model="numpy", cache=True, nogil=True)
+def rect_list_full(A, B, first, second, measure, is3d, out, lo, hi):
+    _rect_list(A, B, first, second, measure, is3d, out, lo, hi, rect_block_full)
+
+
+@njit(error_model="numpy", cache=True, nogil=True)
+def rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi):
+    _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, rect_block)
+
+
+@njit(error_model="numpy", cache=True, nogil=True)
+def rect_elementwise_full(Da, la, Db, lb, measure, is3d, out, lo, hi):
+    _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, rect_block_full)
+
+
+def rect_body(job: str, measure: int):
+    """The rectangle body of ``job`` ("matrix", "list", "elementwise") for a measure code."""
+    full = measure in (GIOU, DIOU)
+    return {
+        "matrix": (rect_matrix_rows, rect_matrix_rows_full),
+        "list": (rect_list, rect_list_full),
+        "elementwise": (rect_elementwise, rect_elementwise_full),
+    }[job][full]
 
 
 @njit(error_model="numpy", cache=True, nogil=True)

@@ -354,7 +354,7 @@ def scan_range(
         iy0 = _cell(ext[b, 1], y0, invy, ny)
         iy1 = _cell(ext[b, 3], y0, invy, ny)
         n = 0
-        nr = 0
+        nr = np.int64(0)
         for iy in range(iy0, iy1 + 1):
             qa = iy * nx + ix0
             qb = iy * nx + ix1 + 1

@@ -134,7 +134,7 @@ def soft(scores, order, ptr, nbr, val, gaussian, max_iou, sigma, min_score, limi
     nk = 0
     while size > 0 and nk != limit:
         i = hx[0]
-        size = _remove(hs, hx, pos, size, 0)
+        size = _remove(hs, hx, pos, size, np.int64(0))
         done[i] = True
         kept[nk] = i
         kept_s[nk] = cur[i]
@@ -168,7 +168,7 @@ def soft(scores, order, ptr, nbr, val, gaussian, max_iou, sigma, min_score, limi
 
 @njit(cache=True)
 def _exceeds_axis(scene, i, j, buf):
-    return axis_pair(scene[1], i, scene[1], j, IOU, scene[15], buf) > scene[14]
+    return axis_pair(scene[1], i, scene[1], j, np.int64(IOU), scene[15], buf) > scene[14]
 
 
 @njit(cache=True)
@@ -181,13 +181,15 @@ def _exceeds_rect(scene, i, j, buf):
         return verdict == 1
     a, b = rect_load(A, i), rect_load(A, j)
     inter = rect_inter_value(a, b, buf)
-    return finish(IOU, inter, a[R_SIZE], b[R_SIZE], 0.0, 0.0, 0.0) > thr  # as rect_measure
+    return (
+        finish(np.int64(IOU), inter, a[R_SIZE], b[R_SIZE], 0.0, 0.0, 0.0) > thr
+    )  # as rect_measure
 
 
 @njit(cache=True)
 def _exceeds_poly(scene, i, j, buf):
     V, A = scene[2], scene[1]
-    return poly_pair(V, A, i, V, A, j, IOU, buf) > scene[14]
+    return poly_pair(V, A, i, V, A, j, np.int64(IOU), buf) > scene[14]
 
 
 @njit(cache=True)
@@ -243,12 +245,12 @@ def _suppress_hard(scene, grid, order, limit, exceeds):
         if nk == limit:
             break
         i = where[order[p]]
-        m = walk(i, scene, grid, items, ends, True, near)
+        m = walk(i, scene, grid, items, ends, np.bool_(True), near)
         suppressed = False
         if m > 0:
             if m > near.shape[0]:  # rare: more kept neighbours than the buffer holds
                 near = np.empty(2 * m, np.int64)
-                walk(i, scene, grid, items, ends, True, near)
+                walk(i, scene, grid, items, ends, np.bool_(True), near)
             for k in range(m):
                 if exceeds(scene, i, near[k], buf):
                     suppressed = True
