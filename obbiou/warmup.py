@@ -2,10 +2,12 @@
 
 numba compiles a kernel on its first use and caches it on disk (``NUMBA_CACHE_DIR``, by
 default ``__pycache__`` beside obbiou's sources); every later process loads it in
-milliseconds. :func:`run` compiles all of them now: the kernels fall into independent
-groups (:data:`GROUPS`), each compiled in a process of its own, ``jobs`` at a time. Groups
-that call kernels of another group come in a later phase, so that they load those from the
-cache instead of compiling them twice.
+milliseconds. :func:`run` compiles all of them now: the kernels fall into groups
+(:data:`GROUPS`), each compiled in a process of its own, ``jobs`` at a time, longest first.
+A group that mostly calls another group's kernels waits for it (:data:`AFTER`) and loads
+them from the cache instead of compiling them twice. The scene group does not wait for the
+overlap group, whose list kernels it shares: measured on 2 cores, it took 12.7 s after that
+group and 13.0-13.4 s beside it, and the whole warmup 17.0-17.6 s.
 
 For a Dask cluster, point every worker at one shared cache directory (``NUMBA_CACHE_DIR``
 on a shared file system, or the same image for every worker) and warm it once, or let
@@ -14,7 +16,7 @@ on a shared file system, or the same image for every worker) and warm it once, o
 Examples
 --------
 >>> [name for name, _ in GROUPS]
-['overlap', 'box tools', 'points', 'scene', 'fusion', 'evaluation']
+['scene', 'overlap', 'points', 'box tools', 'evaluation', 'fusion']
 """
 
 from __future__ import annotations
@@ -24,19 +26,23 @@ import multiprocessing
 import os
 import time
 from collections.abc import Callable
-from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 
-__all__ = ["GROUPS", "PHASES", "run", "compile_group"]
+__all__ = ["GROUPS", "AFTER", "run", "compile_group"]
 
-#: The kernel groups: a name and the function that compiles the group by using it.
+#: The kernel groups, longest first: a name and the function that compiles the group by
+#: using it.
 GROUPS: list[tuple[str, str]] = [
-    ("overlap", "obbiou.measures:warmup"),
-    ("box tools", "obbiou.boxes:warmup"),
-    ("points", "obbiou.points:warmup"),
     ("scene", "obbiou.scene:warmup"),
-    ("fusion", "obbiou.fusion:warmup"),
+    ("overlap", "obbiou.measures:warmup"),
+    ("points", "obbiou.points:warmup"),
+    ("box tools", "obbiou.boxes:warmup"),
     ("evaluation", "obbiou.evaluation.protocol:warmup"),
+    ("fusion", "obbiou.fusion:warmup"),
 ]
+
+#: Groups that start only when these have finished (they call their kernels).
+AFTER: dict[str, tuple[str, ...]] = {"evaluation": ("overlap",), "fusion": ("scene",)}
 
 #: What each group compiles, for progress lines.
 DESCRIPTIONS = {
@@ -47,9 +53,6 @@ DESCRIPTIONS = {
     "scene": "scene: overlapping_pairs, suppress (hard, linear, gaussian)",
     "evaluation": "evaluation: matching, AP, bootstrap",
 }
-
-#: Groups in the order they may start: the second phase calls the first one's kernels.
-PHASES: list[list[str]] = [["overlap", "box tools", "points"], ["scene", "evaluation", "fusion"]]
 
 
 def compile_group(name: str) -> float:
@@ -101,16 +104,21 @@ def run(
         if report is not None:
             report(name, seconds)
 
+    order = [name for name, _ in GROUPS]
     if jobs == 1:
-        for phase in PHASES:
-            for name in phase:
-                finished(name, compile_group(name))
+        for name in order:  # GROUPS lists every group after the groups it waits for
+            finished(name, compile_group(name))
         return done
     # "spawn": a fresh interpreter per worker, never a fork of a process that runs threads
     context = multiprocessing.get_context("spawn")
+    running: dict = {}
     with ProcessPoolExecutor(max_workers=int(jobs), mp_context=context) as pool:
-        for phase in PHASES:
-            futures = {name: pool.submit(compile_group, name) for name in phase}
-            for name, future in futures.items():
-                finished(name, future.result())
+        while order or running:
+            for name in list(order):
+                if len(running) < jobs and all(g in done for g in AFTER.get(name, ())):
+                    running[pool.submit(compile_group, name)] = name
+                    order.remove(name)
+            first, _ = wait(running, return_when=FIRST_COMPLETED)
+            for future in first:
+                finished(running.pop(future), future.result())
     return done

@@ -13,7 +13,7 @@ from __future__ import annotations
 from typing import Any
 
 from obbiou.distributed.cluster import connect, wait_for
-from obbiou.warmup import PHASES, compile_group
+from obbiou.warmup import AFTER, GROUPS, compile_group
 
 __all__ = ["warm_workers"]
 
@@ -51,7 +51,10 @@ def warm_workers(
     out: dict[str, dict[str, float]] = {}
     with connect(client=client, scheduler=scheduler, workers=workers) as cl:
         addresses = sorted(cl.scheduler_info()["workers"])
-        for number, phase in enumerate(PHASES, 1):
+        names = [name for name, _ in GROUPS]
+        first = [n for n in names if n not in AFTER]  # then the groups that wait for them
+        phases = [first, [n for n in names if n in AFTER]]
+        for number, phase in enumerate(phases, 1):
             tasks = [(a, g) for a in addresses for g in phase]
             futures = [
                 cl.submit(compile_group, g, workers=[a], allow_other_workers=False, pure=False)
@@ -61,7 +64,7 @@ def warm_workers(
                 cl,
                 futures,
                 [f"compiling {g} on {a}" for a, g in tasks],
-                stage=f"compiling kernels, phase {number} of {len(PHASES)}",
+                stage=f"compiling kernels, phase {number} of {len(phases)}",
                 progress=progress,
                 timeout=timeout,
             )
