@@ -28,6 +28,7 @@ from typing import Any
 
 import numpy as np
 
+from obbiou.errors import InvalidInput
 from obbiou.shapes import Boxes, as_float_array, check, read_boxes
 
 __all__ = [
@@ -165,7 +166,7 @@ def footprint(boxes: Any, *, shape: str | None = None) -> np.ndarray:
     elif b.shape == "axis3":
         out = b.data[:, [0, 1, 3, 4]]
     else:
-        raise ValueError(f"boxes: footprint needs 3D boxes (upright or axis3), got {b.shape!r}")
+        raise InvalidInput("boxes", f"footprint needs 3D boxes (upright or axis3), got {b.shape!r}")
     return _finish(np.ascontiguousarray(out), b)
 
 
@@ -430,9 +431,9 @@ def flip_y(boxes: Any, *, shape: str | None = None, height: float | None = None)
         try:
             base = float(height)
         except (TypeError, ValueError):
-            raise ValueError(f"height: expected a number, got {height!r}") from None
+            raise InvalidInput("height", f"expected a number, got {height!r}") from None
         if not np.isfinite(base):
-            raise ValueError(f"height: must be finite, got {base!r}")
+            raise InvalidInput("height", f"must be finite, got {base!r}")
 
     def mirror(y: np.ndarray) -> np.ndarray:
         return (base - y) + 0.0
@@ -469,19 +470,20 @@ def _read_points(points: Any, shape: str | None) -> tuple[np.ndarray, bool, Boxe
         single = arr.ndim == 2
         sets = arr[np.newaxis] if single else arr
         if sets.shape[0] and sets.shape[1] == 0:
-            raise ValueError("points: a point set needs at least one point, got K=0")
+            raise InvalidInput("points", "a point set needs at least one point, got K=0")
         finite = np.isfinite(sets)
         if not finite.all():
             row, vertex, col = (int(v) for v in np.argwhere(~finite)[0])
             value = sets[row, vertex, col]
             what = "NaN" if np.isnan(value) else ("+inf" if value > 0 else "-inf")
-            raise ValueError(f"points[{row}]: point {vertex} {'xy'[col]} is {what}")
+            raise InvalidInput("points", f"point {vertex} {'xy'[col]} is {what}", row=row)
         return sets, single, None
     b = read_boxes(arr, shape, name="points")
     if b.is_3d:
-        raise ValueError(
-            f"points: fit_rotated needs 2D point sets or 2D boxes, got {b.shape!r} boxes "
-            "(fit their ground-plane boxes: fit_rotated(footprint(boxes)))"
+        raise InvalidInput(
+            "points",
+            f"fit_rotated needs 2D point sets or 2D boxes, got {b.shape!r} boxes "
+            "(fit their ground-plane boxes: fit_rotated(footprint(boxes)))",
         )
     return b.data, b.single, b
 

@@ -34,6 +34,7 @@ from typing import Any
 
 import numpy as np
 
+from obbiou.errors import InvalidInput
 from obbiou.shapes import Boxes, read_boxes, same_length
 
 __all__ = [
@@ -79,10 +80,11 @@ def _kind_for(a: str, b: str) -> str:
     """The common kernel kind of layouts ``a`` and ``b``, or a ValueError."""
     if (a in _2D) != (b in _2D):
         two, three = (a, b) if a in _2D else (b, a)
-        raise ValueError(
+        reason = (
             f"cannot compare 2D boxes ({two!r}) with 3D boxes ({three!r}); for bird's-eye "
             "view take obbiou.boxes.footprint of the 3D boxes"
         )
+        raise InvalidInput("b", reason, message=reason)
     if a in _2D:
         if "polygon" in (a, b):
             return "poly"
@@ -152,7 +154,7 @@ def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
     if kind in ("axis", "rect"):
         layout = _LAYOUT_CODES.get(shp)
         if layout is None or (kind == "axis" and shp not in ("axis", "axis3")):
-            raise ValueError(f"{shp!r} boxes cannot be prepared as {kind!r}")
+            raise InvalidInput("kind", f"{shp!r} boxes cannot be prepared as {kind!r}")
         if len(d) == 0:
             return Prepared(
                 kind, boxes.is_3d, np.zeros((0, 7 if kind == "axis" else 16)), empty, boxes
@@ -174,10 +176,10 @@ def prepare(boxes: Boxes, kind: str | None = None) -> Prepared:
 
             verts = corners(d, shape=shp)
         else:
-            raise ValueError(f"{shp!r} boxes are 3D and cannot be prepared as polygons")
+            raise InvalidInput("kind", f"{shp!r} boxes are 3D and cannot be prepared as polygons")
         verts, rows = _polygon_rows(np.ascontiguousarray(verts, dtype=np.float64))
         return Prepared("poly", False, rows, verts, boxes)
-    raise ValueError(f"unknown kind {kind!r}; expected 'axis', 'rect' or 'poly'")
+    raise InvalidInput("kind", f"unknown {kind!r}; expected 'axis', 'rect' or 'poly'")
 
 
 #: From this many boxes :func:`prepare` computes rectangle rows on all threads (measured,
@@ -260,11 +262,11 @@ def _rect_elementwise(a: Boxes, b: Boxes, code: int) -> np.ndarray:
 def _index(idx: Any, name: str, limit: int) -> np.ndarray:
     arr = np.asarray(idx)
     if arr.ndim != 1 or (arr.size and arr.dtype.kind not in "iu"):
-        raise ValueError(f"{name}: expected a 1-D array of integer indices")
+        raise InvalidInput(name, "expected a 1-D array of integer indices")
     arr = np.ascontiguousarray(arr, dtype=np.int64)
     if arr.size and (arr.min() < 0 or arr.max() >= limit):
         bad = int(np.argmax((arr < 0) | (arr >= limit)))
-        raise ValueError(f"{name}[{bad}]: index {int(arr[bad])} out of range for {limit} boxes")
+        raise InvalidInput(name, f"index {int(arr[bad])} out of range for {limit} boxes", row=bad)
     return arr
 
 
@@ -315,14 +317,13 @@ def pair_values(
     array([], dtype=float64)
     """
     if measure not in MEASURES:
-        raise ValueError(f"measure: unknown {measure!r}; expected one of {', '.join(MEASURES)}")
+        raise InvalidInput("measure", f"unknown {measure!r}; expected one of {', '.join(MEASURES)}")
     pa, pb = prepare_pair(a, b)
     first = _index(first, "first", len(pa))
     second = _index(second, "second", len(pb))
     if first.shape[0] != second.shape[0]:
-        raise ValueError(
-            f"first and second must have equal lengths: {first.shape[0]} and {second.shape[0]}"
-        )
+        reason = f"first and second must have equal lengths: {first.shape[0]} and {second.shape[0]}"
+        raise InvalidInput("second", reason, message=reason)
     return _pairs(pa, pb, first, second, MEASURES[measure])
 
 

@@ -24,6 +24,7 @@ from typing import Any
 
 import numpy as np
 
+from obbiou.errors import InvalidInput
 from obbiou.shapes import Boxes, read_boxes
 
 __all__ = ["Pairs", "Kept", "overlapping_pairs", "suppress", "warmup"]
@@ -132,22 +133,22 @@ def _serial(n: int) -> bool:
 def _label_codes(labels: Any, n: int) -> np.ndarray:
     arr = np.asarray(labels)
     if arr.ndim != 1:
-        raise ValueError(f"labels: expected one label per box (1-D), got shape {arr.shape}")
+        raise InvalidInput("labels", f"expected one label per box (1-D), got shape {arr.shape}")
     if arr.shape[0] != n:
-        raise ValueError(f"labels: {arr.shape[0]} labels for {n} boxes")
+        raise InvalidInput("labels", f"{arr.shape[0]} labels for {n} boxes")
     if arr.dtype.kind == "f":
         bad = ~np.isfinite(arr)
         if bad.any():
             row = int(np.argmax(bad))
-            raise ValueError(f"labels[{row}]: {float(arr[row])!r} is not a valid label")
+            raise InvalidInput("labels", f"{float(arr[row])!r} is not a valid label", row=row)
     if arr.dtype == object:
         for row, v in enumerate(arr):
             if v is None or (isinstance(v, float) and not np.isfinite(v)):
-                raise ValueError(f"labels[{row}]: {v!r} is not a valid label")
+                raise InvalidInput("labels", f"{v!r} is not a valid label", row=row)
     try:
         _, codes = np.unique(arr, return_inverse=True)
     except TypeError:
-        raise ValueError("labels: labels of mixed types cannot be compared") from None
+        raise InvalidInput("labels", "labels of mixed types cannot be compared") from None
     return np.ascontiguousarray(codes.reshape(-1), dtype=np.int64)
 
 
@@ -189,9 +190,9 @@ def _unit_interval(value: Any, name: str) -> float:
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise ValueError(f"{name}: expected a number in [0, 1], got {value!r}") from None
+        raise InvalidInput(name, f"expected a number in [0, 1], got {value!r}") from None
     if not 0.0 <= v <= 1.0:  # also rejects NaN
-        raise ValueError(f"{name}: expected a number in [0, 1], got {v!r}")
+        raise InvalidInput(name, f"expected a number in [0, 1], got {v!r}")
     return v
 
 
@@ -264,9 +265,10 @@ def overlapping_pairs(a: Any, b: Any = None, *, shape: str | None = None, min_io
     if b is not None:
         bb = read_boxes(b, shape, name="b")
         if bb.is_3d != ba.is_3d:
-            raise ValueError(
-                f"b: {bb.shape!r} boxes cannot be paired with a of layout {ba.shape!r} (one is "
-                "3D, the other 2D); for bird's-eye view pass obbiou.boxes.footprint(...)"
+            raise InvalidInput(
+                "b",
+                f"{bb.shape!r} boxes cannot be paired with a of layout {ba.shape!r} (one is "
+                "3D, the other 2D); for bird's-eye view pass obbiou.boxes.footprint(...)",
             )
     first, second, iou = _pairs(ba, bb, thr)
     return Pairs(first, second, iou, len(ba), len(ba if bb is None else bb))
@@ -276,17 +278,19 @@ def _read_scores(scores: Any, n: int, single: bool) -> np.ndarray:
     try:
         s = np.asarray(scores, dtype=np.float64)
     except (TypeError, ValueError):
-        raise ValueError("scores: cannot read as an array of numbers") from None
+        raise InvalidInput("scores", "cannot read as an array of numbers") from None
     if s.ndim == 0 and single:
         s = s.reshape(1)
     if s.ndim != 1:
-        raise ValueError(f"scores: expected one score per box (1-D), got shape {s.shape}")
+        raise InvalidInput("scores", f"expected one score per box (1-D), got shape {s.shape}")
     if s.shape[0] != n:
-        raise ValueError(f"scores: {s.shape[0]} scores for {n} boxes")
+        raise InvalidInput("scores", f"{s.shape[0]} scores for {n} boxes")
     bad = ~np.isfinite(s)
     if bad.any():
         row = int(np.argmax(bad))
-        raise ValueError(f"scores[{row}]: score is {float(s[row])!r}, expected a finite number")
+        raise InvalidInput(
+            "scores", f"score is {float(s[row])!r}, expected a finite number", row=row
+        )
     return np.ascontiguousarray(s)
 
 
@@ -414,31 +418,33 @@ def suppress(
     s = _read_scores(scores, n, b.single)
     thr = _unit_interval(max_iou, "max_iou")
     if decay not in _DECAYS:
-        raise ValueError(f"decay: expected None, 'linear' or 'gaussian', got {decay!r}")
+        raise InvalidInput("decay", f"expected None, 'linear' or 'gaussian', got {decay!r}")
     try:
         sig = float(sigma)
     except (TypeError, ValueError):
-        raise ValueError(f"sigma: expected a positive number, got {sigma!r}") from None
+        raise InvalidInput("sigma", f"expected a positive number, got {sigma!r}") from None
     if not sig > 0.0 or not np.isfinite(sig):
-        raise ValueError(f"sigma: expected a positive number, got {sig!r}")
+        raise InvalidInput("sigma", f"expected a positive number, got {sig!r}")
     try:
         floor = float(min_score)
     except (TypeError, ValueError):
-        raise ValueError(f"min_score: expected a number, got {min_score!r}") from None
+        raise InvalidInput("min_score", f"expected a number, got {min_score!r}") from None
     if np.isnan(floor):
-        raise ValueError("min_score: expected a number, got nan")
+        raise InvalidInput("min_score", "expected a number, got nan")
     if limit is None:
         cap = -1
     else:
         if isinstance(limit, bool) or not isinstance(limit, (int, np.integer)) or limit < 0:
-            raise ValueError(f"limit: expected None or an integer >= 0, got {limit!r}")
+            raise InvalidInput("limit", f"expected None or an integer >= 0, got {limit!r}")
         cap = int(limit)
     codes = None if labels is None else _label_codes(labels, n)
     if decay is not None and (s < 0).any():
         row = int(np.argmax(s < 0))
-        raise ValueError(
-            f"scores[{row}]: negative score {float(s[row])!r}; soft suppression decays scores "
-            "towards 0 and needs scores >= 0"
+        raise InvalidInput(
+            "scores",
+            f"negative score {float(s[row])!r}; soft suppression decays scores towards 0 and "
+            "needs scores >= 0",
+            row=row,
         )
 
     # Boxes below min_score take no part.

@@ -193,7 +193,7 @@ def wait_for(
                 exc = fut.exception()
                 name = by_key.get(fut.key, stage)
                 client.cancel(list(futures))
-                if isinstance(exc, ValueError):  # bad input (the gate's InvalidInput among them)
+                if isinstance(exc, InvalidInput):  # bad input; anything else is TaskFailed
                     raise InvalidInput(name, str(exc)) from exc
                 raise TaskFailed(f"{name}: task failed: {type(exc).__name__}: {exc}") from exc
             if fut.status == "cancelled":
