@@ -76,6 +76,15 @@ def _pad(lo, hi):
     return lo - p, hi + p
 
 
+def pad_extents(env):
+    """:func:`_pad` of every row of ``env`` (N, 4): x_min, y_min, x_max, y_max, in numpy, for
+    the code outside the kernels that must agree with the index (the Dask tiles): the one
+    padding rule."""
+    env = np.asarray(env, dtype=np.float64)
+    p = _PAD * (np.abs(env[:, :2]) + np.abs(env[:, 2:])) + 1e-300
+    return np.concatenate([env[:, :2] - p, env[:, 2:] + p], axis=1)
+
+
 @njit(cache=True)
 def _cell(x, g, inv, n):
     """Cell of coordinate x on an axis from g with cells of size 1 / inv, clamped to n."""

@@ -75,9 +75,11 @@ class _Grid:
 def _reach(data: np.ndarray, shape: str) -> np.ndarray:
     """Ground-plane extents ``(N, 4)`` = x_min, y_min, x_max, y_max, slightly widened.
 
-    The widening (a few ulps of the coordinates' magnitude) makes sure that two boxes the
-    overlap kernel sees as overlapping, however thinly, have intersecting extents here.
+    The widening is the spatial index's own (a few ulps of the coordinates' magnitude,
+    :func:`obbiou._kernels.grid.pad_extents`): two boxes the overlap kernel sees as
+    overlapping, however thinly, have intersecting extents here as in the index.
     """
+    from obbiou._kernels.grid import pad_extents
     from obbiou.boxes import envelope
 
     if len(data) == 0:
@@ -85,8 +87,7 @@ def _reach(data: np.ndarray, shape: str) -> np.ndarray:
     env = envelope(data, shape=shape)
     if env.shape[1] == 6:
         env = env[:, [0, 1, 3, 4]]
-    pad = 1e-12 * (np.abs(env).max(axis=1, keepdims=True) + 1.0)
-    return np.concatenate([env[:, :2] - pad, env[:, 2:] + pad], axis=1)
+    return pad_extents(env)
 
 
 def _prepare(part: Any, shape: str | None, what: str) -> tuple[np.ndarray, str, np.ndarray]:
