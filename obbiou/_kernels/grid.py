@@ -30,6 +30,8 @@ rejects.
 
 from __future__ import annotations
 
+from collections import namedtuple
+
 import numpy as np
 from numba import njit
 
@@ -205,6 +207,14 @@ def build_index(kind, R, base):
         box_level[pos] = level[j]
     return order, levels, bounds, cell_ptr, box_cell, box_level
 
+
+#: One side or both of a scene, in spatial order, as the kernels read it (numba types a
+#: namedtuple by its fields: read by name, not by position). Rows, vertices (polygons),
+#: padded extents, sizes, the spatial order (input row of each position) and labels of a
+#: and b; ``same``: b is a (self-pairs); ``thr``: the IoU threshold; ``is3d``.
+Scene = namedtuple("Scene", "kind A VA ea sa oa B VB eb sb ob same la lb thr is3d")
+#: The grid over b (see :func:`build_index`).
+Grid = namedtuple("Grid", "levels bounds cell_ptr box_cell box_level")
 
 # Prepared-row kinds (see obbiou._kernels.pairs): the measure of a pair is the very kernel
 # function the all-pairs matrices use, so values are bit for bit the matrix entries.
@@ -384,8 +394,16 @@ def walk(i, scene, grid, items, ends, growing, out):
     210 ns per walk (10 000 clustered detections).
     """
     levels, bounds, cell_ptr, box_cell, box_level = grid
-    ea, sa = scene[3], scene[4]
-    eb, sb, _, same, labels_a, labels_b, thr, is3d = scene[8:]
+    ea, sa = scene.ea, scene.sa
+    eb, sb, same, labels_a, labels_b, thr, is3d = (
+        scene.eb,
+        scene.sb,
+        scene.same,
+        scene.la,
+        scene.lb,
+        scene.thr,
+        scene.is3d,
+    )
     x0, y0, x1, y1, z0, z1 = ea[i, 0], ea[i, 1], ea[i, 2], ea[i, 3], ea[i, 4], ea[i, 5]
     use_labels = labels_a.shape[0] > 0
     forward = same and not growing
@@ -446,7 +464,7 @@ def walk(i, scene, grid, items, ends, growing, out):
 @njit(cache=True, forceinline=True)
 def insert(i, grid, items, ends):
     """Add b's row i (spatial order) to the growing grid (``items``, ``ends``), in its cell."""
-    c = grid[3][i]
+    c = grid.box_cell[i]
     items[ends[c]] = i
     ends[c] += 1
 
@@ -464,8 +482,8 @@ def prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, seria
     else:
         B, VB, lb = arrange(kind, B, VB, ob, labels_b)
         eb, sb = _side_extents(kind, B, is3d, serial)
-    scene = (kind, A, VA, ea, sa, oa, B, VB, eb, sb, ob, same, la, lb, float(thr), is3d)
-    return scene, (levels, bounds, cell_ptr, box_cell, box_level)
+    scene = Scene(kind, A, VA, ea, sa, oa, B, VB, eb, sb, ob, same, la, lb, float(thr), is3d)
+    return scene, Grid(levels, bounds, cell_ptr, box_cell, box_level)
 
 
 def _side_extents(kind, R, is3d, serial):
@@ -488,17 +506,17 @@ SAMPLE_STRIDE = 16
 
 @njit(cache=True)
 def _values_axis(scene, ci, cj, n, out):
-    axis_list(scene[1], scene[6], ci, cj, np.int64(IOU), scene[15], out, np.int64(0), n)
+    axis_list(scene.A, scene.B, ci, cj, np.int64(IOU), scene.is3d, out, np.int64(0), n)
 
 
 @njit(cache=True)
 def _values_rect(scene, ci, cj, n, out):
-    rect_list(scene[1], scene[6], ci, cj, np.int64(IOU), scene[15], out, np.int64(0), n)
+    rect_list(scene.A, scene.B, ci, cj, np.int64(IOU), scene.is3d, out, np.int64(0), n)
 
 
 @njit(cache=True)
 def _values_poly(scene, ci, cj, n, out):
-    poly_list(scene[2], scene[1], scene[7], scene[6], ci, cj, np.int64(IOU), out, np.int64(0), n)
+    poly_list(scene.VA, scene.A, scene.VB, scene.B, ci, cj, np.int64(IOU), out, np.int64(0), n)
 
 
 @njit(cache=True, nogil=True)
@@ -506,8 +524,8 @@ def chunk_estimates(step, scene, grid, margin, est, c0, c1):
     """For chunks c0..c1-1: room for the candidates of a's rows c * step ...: those of
     every SAMPLE_STRIDE-th row, scaled up by ``margin``, plus 64, into est[c]. Only sizes a
     buffer: a chunk that overflows it is walked again with exact room."""
-    n = scene[1].shape[0]
-    cell_ptr = grid[2]
+    n = scene.A.shape[0]
+    cell_ptr = grid.cell_ptr
     none = cell_ptr[:0]
     for c in range(c0, c1):
         lo, hi = c * step, min(n, (c + 1) * step)
@@ -553,8 +571,8 @@ def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got, values):
     when they fit, their IoU into cv, and the pairs above the threshold compacted to the
     front, their number into got[c]."""
     ci, cj, cv = ci[lo:hi], cj[lo:hi], cv[lo:hi]
-    n = scene[1].shape[0]
-    cell_ptr = grid[2]
+    n = scene.A.shape[0]
+    cell_ptr = grid.cell_ptr
     cap = cj.shape[0]
     pos = np.int64(0)
     for i in range(c * step, min(n, (c + 1) * step)):
@@ -566,7 +584,7 @@ def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got, values):
     if pos > cap:
         return
     values(scene, ci, cj, pos, cv)
-    thr = scene[14]
+    thr = scene.thr
     kept = 0
     for k in range(pos):
         if cv[k] > thr:
@@ -614,7 +632,7 @@ def gather(scene, ci, cj, cv, lo, got):
     and b's spatial rows, chunk c's at ci[lo[c]:lo[c] + got[c]]), sorted by (first,
     second): a counting scatter by first (for self-pairs the smaller input row of the
     two), then a short sort within each row."""
-    oa, ob, same = scene[5], scene[10], scene[11]
+    oa, ob, same = scene.oa, scene.ob, scene.same
     n = oa.shape[0]
     ptr = np.zeros(n + 1, np.int64)
     for c in range(got.shape[0]):
@@ -711,8 +729,8 @@ def candidate_count(kind, A, VA, B, VB, same, thr, is3d):
 @njit(cache=True)
 def _count_candidates(scene, grid):
     none = np.zeros(0, np.int64)
-    cell_ptr = grid[2]
+    cell_ptr = grid.cell_ptr
     total = 0
-    for i in range(scene[1].shape[0]):
+    for i in range(scene.A.shape[0]):
         total += walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], np.bool_(False), none)
     return total

@@ -168,14 +168,14 @@ def soft(scores, order, ptr, nbr, val, gaussian, max_iou, sigma, min_score, limi
 
 @njit(cache=True)
 def _exceeds_axis(scene, i, j, buf):
-    return axis_pair(scene[1], i, scene[1], j, np.int64(IOU), scene[15], buf) > scene[14]
+    return axis_pair(scene.A, i, scene.A, j, np.int64(IOU), scene.is3d, buf) > scene.thr
 
 
 @njit(cache=True)
 def _exceeds_rect(scene, i, j, buf):
     """For rectangles by cheap bounds when they decide (measured, 10 000 clustered
     detections: they decide 84 % of the overlapping pairs at 0.5), else the exact value."""
-    A, thr = scene[1], scene[14]
+    A, thr = scene.A, scene.thr
     verdict = rect_iou_verdict(A, i, A, j, thr)
     if verdict >= 0:
         return verdict == 1
@@ -188,8 +188,8 @@ def _exceeds_rect(scene, i, j, buf):
 
 @njit(cache=True)
 def _exceeds_poly(scene, i, j, buf):
-    V, A = scene[2], scene[1]
-    return poly_pair(V, A, i, V, A, j, np.int64(IOU), buf) > scene[14]
+    V, A = scene.VA, scene.A
+    return poly_pair(V, A, i, V, A, j, np.int64(IOU), buf) > scene.thr
 
 
 @njit(cache=True)
@@ -229,12 +229,12 @@ def _suppress_hard(scene, grid, order, limit, exceeds):
     cell (the static grid's layout, filled as boxes are kept). Measured on 10 000
     clustered detections: walks over the full grid with a per-item "is it kept" test
     took 2.3 ms before any IoU (the test mispredicts), this one a fraction of it."""
-    VA, oa = scene[2], scene[5]
+    VA, oa = scene.VA, scene.oa
     n = oa.shape[0]
     where = np.empty(n, np.int64)
     for i in range(n):
         where[oa[i]] = i
-    cell_ptr = grid[2]
+    cell_ptr = grid.cell_ptr
     items = np.empty(n, np.int64)  # kept boxes, cell by cell
     ends = cell_ptr[:-1].copy()  # end of each cell's kept boxes in ``items``
     buf = scratch(VA, VA)
