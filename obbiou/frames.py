@@ -32,7 +32,7 @@ from obbiou.errors import InvalidInput
 from obbiou.scene import overlapping_pairs, suppress
 from obbiou.tables import Table, comparable_frame_ids, frame_groups
 
-__all__ = ["suppress_frames", "overlap_frames", "radians"]
+__all__ = ["suppress_frames", "overlap_frames", "merge_frames", "radians"]
 
 #: Below this many frames no progress bar is shown (it would only flicker).
 _BAR_FROM = 50
@@ -182,3 +182,94 @@ def overlap_frames(
         )
     columns = ["frame", "first", "second", "first_label", "second_label", "iou"]
     return pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=columns)
+
+
+def merge_frames(
+    table: Table,
+    tiles: np.ndarray,
+    *,
+    tile_column: str = "tile",
+    max_iou: float = 0.5,
+    border: float | None = None,
+    fuse: bool = False,
+    across_labels: bool = False,
+    degrees: bool = False,
+    progress: bool = False,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`obbiou.tiles.merge` image by image: per-tile detections in, one set per image.
+
+    Each frame of ``table`` is one large image; its rows are detections in the coordinates
+    of the tile named by the integer column ``tile_column`` (an index into ``tiles``, the
+    same tiles for every image, e.g. :func:`obbiou.tiles.grid`).
+
+    Returns
+    -------
+    (numpy.ndarray, numpy.ndarray, numpy.ndarray)
+        The source row of each output box (int64, into ``table``; with ``fuse=True`` the
+        best member of its cluster), the boxes in image coordinates (angles in radians;
+        polygons flattened to ``px0 py0 px1 py1 ...``) and their scores; images in order of
+        first appearance, boxes by descending score within an image.
+
+    Raises
+    ------
+    obbiou.errors.InvalidInput
+        When the table has no ``tile_column`` or a tile index is not a whole number in
+        ``[0, len(tiles))`` (naming the first bad row).
+
+    Examples
+    --------
+    Two tiles of one invented harbour image; a vessel on the seam is seen by both:
+
+    >>> from obbiou.tables import read_table
+    >>> from obbiou.tiles import grid
+    >>> tiles = grid(1800, 1000, size=1000, overlap=200)
+    >>> t = read_table({"frame": ["img"] * 2, "label": ["vessel"] * 2, "score": [0.9, 0.8],
+    ...                 "tile": [0, 1], "cx": [900.0, 100.0], "cy": [500.0, 500.0],
+    ...                 "width": [60.0, 60.0], "height": [20.0, 20.0], "angle": [0.0, 0.0]},
+    ...                role="detections")
+    >>> rows, boxes, scores = merge_frames(t, tiles)
+    >>> rows.tolist(), boxes.round(1).tolist(), scores.tolist()
+    ([0], [[900.0, 500.0, 60.0, 20.0, 0.0]], [0.9])
+    """
+    from obbiou.errors import InvalidInput
+    from obbiou.tiles import merge
+
+    if tile_column not in table.extra:
+        raise InvalidInput(
+            "tile_column", f"the table has no column {tile_column!r} naming each row's tile"
+        )
+    raw = np.asarray(table.extra[tile_column])
+    with np.errstate(invalid="ignore"):
+        as_float = np.asarray(raw, dtype=np.float64) if raw.dtype.kind in "iuf" else None
+    if as_float is None:
+        raise InvalidInput(tile_column, f"tile indices must be numbers, got {raw.dtype}")
+    bad = ~np.isfinite(as_float) | (as_float != np.round(as_float))
+    bad |= (as_float < 0) | (as_float >= len(tiles))
+    if bad.any():
+        row = int(np.argmax(bad))
+        reason = f"tile index {raw[row].item()!r} is not a whole number in [0, {len(tiles)})"
+        raise InvalidInput(tile_column, reason, row=row)
+    tile = as_float.astype(np.int64)
+    boxes = radians(table, degrees)
+    keep: list[np.ndarray] = []
+    out_boxes: list[np.ndarray] = []
+    out_scores: list[np.ndarray] = []
+    for rows in _bar(frame_groups(table.frame), progress, "merge"):
+        merged = merge(
+            boxes[rows],
+            table.score[rows],
+            tile[rows],
+            tiles,
+            labels=None if across_labels else table.label[rows],
+            shape=table.shape,
+            max_iou=max_iou,
+            border=border,
+            fuse=fuse,
+        )
+        keep.append(rows[merged.rows])
+        out_boxes.append(np.asarray(merged.boxes, dtype=np.float64).reshape(len(merged), -1))
+        out_scores.append(np.asarray(merged.scores, dtype=np.float64))
+    idx = np.concatenate(keep) if keep else np.zeros(0, dtype=np.int64)
+    width = boxes.reshape(len(boxes), -1).shape[1] if len(boxes) else 0
+    flat = np.concatenate(out_boxes) if out_boxes else np.zeros((0, width))
+    return idx, flat, (np.concatenate(out_scores) if out_scores else np.zeros(0))

@@ -19,7 +19,7 @@ import sys
 import textwrap
 from collections.abc import Sequence
 
-from obbiou.cli import compare, demo, evaluate, overlap, suppress, warmup
+from obbiou.cli import compare, demo, evaluate, overlap, stitch, suppress, warmup
 from obbiou.cli.options import BAD_INPUT, HelpFormatter, Parser
 from obbiou.errors import InvalidInput, TaskFailed
 
@@ -33,6 +33,7 @@ COMMANDS = {
     "compare": compare,
     "suppress": suppress,
     "overlap": overlap,
+    "stitch": stitch,
     "warmup": warmup,
 }
 

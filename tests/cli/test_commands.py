@@ -23,7 +23,7 @@ import shapely
 ROOT = Path(__file__).resolve().parents[2]
 
 
-COMMANDS = ("demo", "evaluate", "compare", "suppress", "overlap", "warmup")
+COMMANDS = ("demo", "evaluate", "compare", "suppress", "overlap", "stitch", "warmup")
 ROTATED = ["cx", "cy", "width", "height", "angle"]
 
 
