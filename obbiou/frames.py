@@ -77,6 +77,7 @@ def suppress_frames(
     limit: int | None = None,
     degrees: bool = False,
     progress: bool = False,
+    bev: bool = False,
 ) -> tuple[Table, np.ndarray]:
     """Non-maximum suppression frame by frame (and, by default, within each label).
 
@@ -93,6 +94,8 @@ def suppress_frames(
         the rows kept are returned as they were read).
     progress : bool
         Show a progress bar on stderr (for 50 frames or more).
+    bev : bool
+        3D boxes by the IoU of their ground-plane footprints (as :func:`obbiou.suppress`).
 
     Returns
     -------
@@ -114,6 +117,7 @@ def suppress_frames(
             sigma=sigma,
             min_score=min_score,
             limit=limit,
+            bev=bev,
         )
         keep.append(rows[np.asarray(kept.indices, dtype=np.int64)])
         scores.append(np.asarray(kept.scores, dtype=np.float64))
@@ -122,13 +126,19 @@ def suppress_frames(
 
 
 def overlap_frames(
-    a: Table, b: Table | None = None, *, min_iou: float = 0.0, progress: bool = False
+    a: Table,
+    b: Table | None = None,
+    *,
+    min_iou: float = 0.0,
+    progress: bool = False,
+    bev: bool = False,
 ) -> Any:
     """The overlapping pairs of each frame, as a pandas DataFrame.
 
     With one table, its pairs with itself (``first < second``); with two, the pairs between
     boxes of the same frame (frame ids matched by :func:`obbiou.tables.comparable_frame_ids`,
-    so ``7`` in one table meets ``"7"`` in the other).
+    so ``7`` in one table meets ``"7"`` in the other). ``bev``: 3D boxes by the IoU of their
+    ground-plane footprints (as :func:`obbiou.overlapping_pairs`).
 
     Returns
     -------
@@ -157,14 +167,14 @@ def overlap_frames(
     parts = []
     for rows in _bar(frame_groups(a.frame), progress, "overlap"):
         if same:
-            pairs = overlapping_pairs(a.boxes.data[rows], shape=a.shape, min_iou=min_iou)
+            pairs = overlapping_pairs(a.boxes.data[rows], shape=a.shape, min_iou=min_iou, bev=bev)
             other = rows
         else:
             other = b_rows.get(a_ids[rows[0]])
             if other is None:
                 continue
             pairs = overlapping_pairs(
-                a.boxes.data[rows], b.boxes.data[other], shape=shape, min_iou=min_iou
+                a.boxes.data[rows], b.boxes.data[other], shape=shape, min_iou=min_iou, bev=bev
             )
         first = rows[np.asarray(pairs.first, dtype=np.int64)]
         second = other[np.asarray(pairs.second, dtype=np.int64)]

@@ -186,6 +186,20 @@ def _pairs(
     )
 
 
+def _ground(b: Boxes, bev: bool, name: str) -> Boxes:
+    """The boxes, or with ``bev`` their ground-plane footprints (3D boxes only)."""
+    if not bev:
+        return b
+    if not b.is_3d:
+        raise InvalidInput(
+            "bev", f"bev=True takes the footprints of 3D boxes; {name} holds {b.shape!r} boxes"
+        )
+    from obbiou.boxes import footprint
+
+    ground = np.ascontiguousarray(footprint(b.data, shape=b.shape), dtype=np.float64)
+    return Boxes(ground, "rotated" if b.shape == "upright" else "axis", b.single)
+
+
 def _unit_interval(value: Any, name: str) -> float:
     try:
         v = float(value)
@@ -196,7 +210,9 @@ def _unit_interval(value: Any, name: str) -> float:
     return v
 
 
-def overlapping_pairs(a: Any, b: Any = None, *, shape: str | None = None, min_iou: float = 0.0):
+def overlapping_pairs(
+    a: Any, b: Any = None, *, shape: str | None = None, min_iou: float = 0.0, bev: bool = False
+):
     """The pairs of boxes that overlap, found with a spatial index (never an N x M matrix).
 
     Parameters
@@ -215,6 +231,9 @@ def overlapping_pairs(a: Any, b: Any = None, *, shape: str | None = None, min_io
     min_iou : float
         Report pairs with IoU > ``min_iou`` (with the default 0, every pair with a
         positive overlap). In [0, 1].
+    bev : bool
+        Bird's-eye view: 3D boxes by the IoU of their ground-plane footprints
+        (:func:`obbiou.boxes.footprint`) instead of their volumes.
 
     Returns
     -------
@@ -258,12 +277,14 @@ def overlapping_pairs(a: Any, b: Any = None, *, shape: str | None = None, min_io
     >>> p = overlapping_pairs([[0, 0, 1, 4, 2, 2, 0], [0, 0, 2, 4, 2, 2, 0]])
     >>> p.iou
     array([0.33333333])
+    >>> overlapping_pairs([[0, 0, 1, 4, 2, 2, 0], [0, 0, 2, 4, 2, 2, 0]], bev=True).iou
+    array([1.])
     """
     thr = _unit_interval(min_iou, "min_iou")
-    ba = read_boxes(a, shape, name="a")
+    ba = _ground(read_boxes(a, shape, name="a"), bev, "a")
     bb = None
     if b is not None:
-        bb = read_boxes(b, shape, name="b")
+        bb = _ground(read_boxes(b, shape, name="b"), bev, "b")
         if bb.is_3d != ba.is_3d:
             raise InvalidInput(
                 "b",
@@ -325,6 +346,7 @@ def suppress(
     sigma: float = 0.5,
     min_score: float = 0.0,
     limit: int | None = None,
+    bev: bool = False,
 ) -> Kept:
     """Non-maximum suppression: remove (or, softly, down-weight) duplicate detections.
 
@@ -363,6 +385,9 @@ def suppress(
         With gaussian decay and ``min_score=0`` every box is kept, re-scored.
     limit : int, optional
         Keep at most this many boxes: the first ``limit`` selected, i.e. the best.
+    bev : bool
+        Bird's-eye view: 3D boxes suppress each other by the IoU of their ground-plane
+        footprints (:func:`obbiou.boxes.footprint`) instead of their volumes.
 
     Returns
     -------
@@ -413,7 +438,7 @@ def suppress(
     from obbiou._kernels import grid
     from obbiou._kernels import suppress as kernels
 
-    b = read_boxes(boxes, shape, name="boxes")
+    b = _ground(read_boxes(boxes, shape, name="boxes"), bev, "boxes")
     n = len(b)
     s = _read_scores(scores, n, b.single)
     thr = _unit_interval(max_iou, "max_iou")

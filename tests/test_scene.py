@@ -328,3 +328,19 @@ def test_inputs_are_left_unchanged(layout):
     again = overlapping_pairs(a, shape=layout)  # and a second call sees the same scene
     np.testing.assert_array_equal(again.first, first.first)
     np.testing.assert_array_equal(again.iou, first.iou)
+
+
+def test_bev_pairs_are_the_pairs_of_the_footprints():
+    # bev=True is overlapping_pairs(footprint(...)) (the documented composition); and a
+    # hand-worked case: a pallet on a rack above another has 3D IoU 0, BEV IoU 1
+    rng = np.random.default_rng(12)
+    up = make_scene(rng, "clusters", "upright", 300)
+    got = overlapping_pairs(up, bev=True)
+    want = overlapping_pairs(obbiou.boxes.footprint(up))
+    np.testing.assert_array_equal(got.first, want.first)
+    np.testing.assert_array_equal(got.iou, want.iou)
+    stacked = [[5.0, 2.0, 0.5, 1.2, 0.8, 1.0, 0.3], [5.0, 2.0, 2.5, 1.2, 0.8, 1.0, 0.3]]
+    assert len(overlapping_pairs(stacked)) == 0
+    assert overlapping_pairs(stacked, bev=True).iou.tolist() == [1.0]
+    with pytest.raises(obbiou.errors.InvalidInput, match="bev=True takes the footprints"):
+        overlapping_pairs([[0, 0, 2, 1, 0.0]], bev=True)

@@ -429,3 +429,19 @@ def test_parallel_and_serial_kernels_agree(monkeypatch):
     for x, y in zip(results[0], results[1], strict=True):
         np.testing.assert_array_equal(x.indices, y.indices)
         np.testing.assert_array_equal(x.scores, y.scores)
+
+
+def test_bev_suppression_is_suppression_of_the_footprints():
+    # bev=True is suppress(footprint(...)) (the documented composition); hand-worked: two
+    # stacked pallets overlap only in the ground plane
+    import obbiou
+
+    rng = np.random.default_rng(13)
+    up = make_scene(rng, "clusters", "upright", 300)
+    scores = rng.random(300)
+    got = suppress(up, scores, bev=True, max_iou=0.3)
+    want = suppress(obbiou.boxes.footprint(up), scores, max_iou=0.3)
+    np.testing.assert_array_equal(got.indices, want.indices)
+    stacked = [[5.0, 2.0, 0.5, 1.2, 0.8, 1.0, 0.3], [5.0, 2.0, 2.5, 1.2, 0.8, 1.0, 0.3]]
+    assert suppress(stacked, [0.9, 0.8]).indices.tolist() == [0, 1]
+    assert suppress(stacked, [0.9, 0.8], bev=True).indices.tolist() == [0]

@@ -35,6 +35,11 @@ def configure(p: argparse.ArgumentParser) -> None:
         default=None,
         help="output table (.csv, .parquet, .jsonl; default: CSV on stdout)",
     )
+    p.add_argument(
+        "--bev",
+        action="store_true",
+        help="3D boxes by the IoU of their ground-plane footprints (bird's-eye view)",
+    )
     add_common(p)
 
 
@@ -51,6 +56,6 @@ def run(args: argparse.Namespace) -> int:
         b = read_table(args.second, role=role, shape=args.shape, degrees=args.degrees)
     if not 0.0 <= args.min_iou < 1.0:
         raise bad_option("--min-iou", f"--min-iou: expected a number in [0, 1), got {args.min_iou}")
-    out = overlap_frames(a, b, min_iou=args.min_iou, progress=not args.quiet)
+    out = overlap_frames(a, b, min_iou=args.min_iou, progress=not args.quiet, bev=args.bev)
     emit(out, args.out, f"found {len(out)} overlapping pairs")
     return 0

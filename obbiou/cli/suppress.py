@@ -67,6 +67,11 @@ def configure(p: argparse.ArgumentParser) -> None:
         default=None,
         help="output table (.csv, .parquet, .jsonl; default: CSV on stdout)",
     )
+    p.add_argument(
+        "--bev",
+        action="store_true",
+        help="3D boxes by the IoU of their ground-plane footprints (bird's-eye view)",
+    )
     add_common(p)
 
 
@@ -90,6 +95,7 @@ def run(args: argparse.Namespace) -> int:
         limit=args.limit,
         degrees=args.degrees,
         progress=not args.quiet,
+        bev=args.bev,
     )
     out = kept.to_frame()
     out["score"] = scores

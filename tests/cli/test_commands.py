@@ -7,6 +7,7 @@ called in-process on the same files (the JSON of ``evaluate`` is ``Evaluation.to
 
 from __future__ import annotations
 
+import io
 import json
 import math
 import os
@@ -450,3 +451,31 @@ def test_warmup():
     assert proc.returncode == 0, proc.stderr
     assert "overlap measures" in proc.stdout and "scene" in proc.stdout
     assert "evaluation" in proc.stdout and proc.stdout.strip().splitlines()[-1].startswith("done")
+
+
+def test_bev_flag_of_suppress_and_overlap(tmp_path):
+    # hand-worked: two pallets stacked on a rack (same footprint, 1 m apart in height)
+    # have 3D IoU 0 and bird's-eye-view IoU 1 (invented warehouse rows)
+    rows = pd.DataFrame(
+        {
+            "frame": [0, 0],
+            "label": ["pallet", "pallet"],
+            "score": [0.9, 0.8],
+            "cx": [5.0, 5.0],
+            "cy": [2.0, 2.0],
+            "cz": [0.5, 2.5],
+            "length": [1.2, 1.2],
+            "width": [0.8, 0.8],
+            "height": [1.0, 1.0],
+            "yaw": [0.3, 0.3],
+        }
+    )
+    path = tmp_path / "stacked.csv"
+    rows.to_csv(path, index=False)
+    plain = run("suppress", str(path), "-q")
+    bev = run("suppress", str(path), "--bev", "-q")
+    assert plain.returncode == 0 and bev.returncode == 0, plain.stderr + bev.stderr
+    assert "kept 2 of 2" in plain.stderr and "kept 1 of 2" in bev.stderr
+    pairs = run("overlap", str(path), "--bev", "-q")
+    assert pairs.returncode == 0, pairs.stderr
+    assert pd.read_csv(io.StringIO(pairs.stdout))["iou"].tolist() == [1.0]
