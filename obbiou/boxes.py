@@ -29,7 +29,7 @@ from typing import Any
 import numpy as np
 
 from obbiou.errors import InvalidInput
-from obbiou.shapes import Boxes, as_float_array, check, read_boxes
+from obbiou.shapes import TINY, Boxes, as_float_array, check, read_boxes
 
 __all__ = [
     "corners",
@@ -511,7 +511,9 @@ def fit_rotated(points: Any, *, shape: str | None = None) -> np.ndarray:
     -------
     numpy.ndarray
         ``(N, 5)`` ``rotated`` boxes ``cx, cy, width, height, angle`` in :func:`canonical`
-        form (``width >= height``, ``angle`` in [-π/2, π/2)), or ``(5,)`` for one set.
+        form (``width >= height``, ``angle`` in [-π/2, π/2)), or ``(5,)`` for one set. A
+        side below 1e-100 (points on a line, up to rounding) is 0: below the smallest size
+        obbiou computes with (:data:`obbiou.shapes.TINY`).
 
     Notes
     -----
@@ -556,6 +558,9 @@ def fit_rotated(points: Any, *, shape: str | None = None) -> np.ndarray:
 
         out = np.empty((data.shape[0], 5))
         fit_rectangles(np.ascontiguousarray(data), out)
+        # a side below the smallest size obbiou computes with (a set of points on a line,
+        # up to rounding) is a degenerate rectangle: side 0
+        out[:, 2:4][out[:, 2:4] < TINY] = 0.0
         out = _canonical_rotated(out)
     return out[0] if single else out
 
