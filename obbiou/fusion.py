@@ -32,9 +32,9 @@ import numpy as np
 
 from obbiou.errors import InvalidInput
 from obbiou.scene import overlapping_pairs
-from obbiou.shapes import read_boxes
+from obbiou.shapes import read_boxes, read_labels, read_scores
 
-__all__ = ["Fused", "fuse", "label_codes", "read_scores", "warmup"]
+__all__ = ["Fused", "fuse", "warmup"]
 
 _LAYOUTS = {"axis": 0, "rotated": 1, "axis3": 2, "upright": 3}  # codes.Layout
 
@@ -74,57 +74,6 @@ class Fused:
     def counts(self) -> np.ndarray:
         """Number of members of each cluster (int64)."""
         return np.diff(self.offsets)
-
-
-def read_scores(scores: Any, n: int, single: bool, *, positive: bool = False) -> np.ndarray:
-    """One finite float64 score per box (``positive``: each > 0), or an InvalidInput."""
-    try:
-        s = np.asarray(scores, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise InvalidInput("scores", "cannot read as an array of numbers") from None
-    if s.ndim == 0 and single:
-        s = s.reshape(1)
-    if s.ndim != 1:
-        raise InvalidInput("scores", f"expected one score per box (1-D), got shape {s.shape}")
-    if s.shape[0] != n:
-        raise InvalidInput("scores", f"{s.shape[0]} scores for {n} boxes")
-    bad = ~np.isfinite(s)
-    if bad.any():
-        row = int(np.argmax(bad))
-        raise InvalidInput(
-            "scores", f"score is {float(s[row])!r}, expected a finite number", row=row
-        )
-    if positive and s.size and not s.min() > 0:
-        row = int(np.argmax(s <= 0))
-        raise InvalidInput(
-            "scores",
-            f"score {float(s[row])!r}: fusion weighs boxes by score and needs scores > 0",
-            row=row,
-        )
-    return np.ascontiguousarray(s)
-
-
-def label_codes(labels: Any, n: int) -> tuple[np.ndarray, np.ndarray]:
-    """(labels as an array, int64 code per box) with codes equal exactly for equal labels."""
-    arr = np.asarray(labels)
-    if arr.ndim != 1:
-        raise InvalidInput("labels", f"expected one label per box (1-D), got shape {arr.shape}")
-    if arr.shape[0] != n:
-        raise InvalidInput("labels", f"{arr.shape[0]} labels for {n} boxes")
-    if arr.dtype.kind == "f" and arr.size:
-        bad = ~np.isfinite(arr)
-        if bad.any():
-            row = int(np.argmax(bad))
-            raise InvalidInput("labels", f"{float(arr[row])!r} is not a valid label", row=row)
-    if arr.dtype == object:
-        for row, v in enumerate(arr):
-            if v is None or (isinstance(v, float) and not np.isfinite(v)):
-                raise InvalidInput("labels", f"{v!r} is not a valid label", row=row)
-    try:
-        _, codes = np.unique(arr, return_inverse=True)
-    except TypeError:
-        raise InvalidInput("labels", "labels of mixed types cannot be compared") from None
-    return arr, np.ascontiguousarray(codes.reshape(-1), dtype=np.int64)
 
 
 def _threshold(value: Any, name: str) -> float:
@@ -259,7 +208,7 @@ def fuse(
     thr = _threshold(min_iou, "min_iou")
     if isinstance(expected, bool) or not isinstance(expected, (int, np.integer)) or expected < 1:
         raise InvalidInput("expected", f"expected an integer >= 1, got {expected!r}")
-    label_arr, codes = (None, None) if labels is None else label_codes(labels, n)
+    label_arr, codes = (None, None) if labels is None else read_labels(labels, n)
     ncol = b.data.shape[1]
     if n == 0:
         return Fused(

@@ -25,7 +25,7 @@ from typing import Any
 import numpy as np
 
 from obbiou.errors import InvalidInput
-from obbiou.shapes import Boxes, read_boxes
+from obbiou.shapes import Boxes, read_boxes, read_labels, read_scores
 
 __all__ = ["Pairs", "Kept", "overlapping_pairs", "suppress", "warmup"]
 
@@ -128,28 +128,6 @@ def _vertices(p) -> np.ndarray:
 
 def _serial(n: int) -> bool:
     return n < _SERIAL_BELOW
-
-
-def _label_codes(labels: Any, n: int) -> np.ndarray:
-    arr = np.asarray(labels)
-    if arr.ndim != 1:
-        raise InvalidInput("labels", f"expected one label per box (1-D), got shape {arr.shape}")
-    if arr.shape[0] != n:
-        raise InvalidInput("labels", f"{arr.shape[0]} labels for {n} boxes")
-    if arr.dtype.kind == "f":
-        bad = ~np.isfinite(arr)
-        if bad.any():
-            row = int(np.argmax(bad))
-            raise InvalidInput("labels", f"{float(arr[row])!r} is not a valid label", row=row)
-    if arr.dtype == object:
-        for row, v in enumerate(arr):
-            if v is None or (isinstance(v, float) and not np.isfinite(v)):
-                raise InvalidInput("labels", f"{v!r} is not a valid label", row=row)
-    try:
-        _, codes = np.unique(arr, return_inverse=True)
-    except TypeError:
-        raise InvalidInput("labels", "labels of mixed types cannot be compared") from None
-    return np.ascontiguousarray(codes.reshape(-1), dtype=np.int64)
 
 
 def _pairs(
@@ -295,26 +273,6 @@ def overlapping_pairs(
     return Pairs(first, second, iou, len(ba), len(ba if bb is None else bb))
 
 
-def _read_scores(scores: Any, n: int, single: bool) -> np.ndarray:
-    try:
-        s = np.asarray(scores, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise InvalidInput("scores", "cannot read as an array of numbers") from None
-    if s.ndim == 0 and single:
-        s = s.reshape(1)
-    if s.ndim != 1:
-        raise InvalidInput("scores", f"expected one score per box (1-D), got shape {s.shape}")
-    if s.shape[0] != n:
-        raise InvalidInput("scores", f"{s.shape[0]} scores for {n} boxes")
-    bad = ~np.isfinite(s)
-    if bad.any():
-        row = int(np.argmax(bad))
-        raise InvalidInput(
-            "scores", f"score is {float(s[row])!r}, expected a finite number", row=row
-        )
-    return np.ascontiguousarray(s)
-
-
 def score_order(scores: np.ndarray) -> np.ndarray:
     """Indices by descending score, ties in input order (a stable sort).
 
@@ -440,7 +398,7 @@ def suppress(
 
     b = _ground(read_boxes(boxes, shape, name="boxes"), bev, "boxes")
     n = len(b)
-    s = _read_scores(scores, n, b.single)
+    s = read_scores(scores, n, b.single)
     thr = _unit_interval(max_iou, "max_iou")
     if decay not in _DECAYS:
         raise InvalidInput("decay", f"expected None, 'linear' or 'gaussian', got {decay!r}")
@@ -462,7 +420,7 @@ def suppress(
         if isinstance(limit, bool) or not isinstance(limit, (int, np.integer)) or limit < 0:
             raise InvalidInput("limit", f"expected None or an integer >= 0, got {limit!r}")
         cap = int(limit)
-    codes = None if labels is None else _label_codes(labels, n)
+    codes = None if labels is None else read_labels(labels, n)[1]
     if decay is not None and (s < 0).any():
         row = int(np.argmax(s < 0))
         raise InvalidInput(

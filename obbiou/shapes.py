@@ -41,6 +41,8 @@ __all__ = [
     "infer_shape",
     "same_length",
     "as_float_array",
+    "read_labels",
+    "read_scores",
 ]
 
 SHAPES: tuple[str, ...] = ("axis", "rotated", "polygon", "axis3", "upright")
@@ -546,3 +548,75 @@ def _bad_polygons(poly: np.ndarray) -> list[Failure]:
         winds = int(round(turning[row] / (2 * np.pi)))
         failures.append((row, f"polygon crosses itself (it winds around {winds} times)", None))
     return failures
+
+
+def read_scores(scores: Any, n: int, single: bool, *, positive: bool = False) -> np.ndarray:
+    """One finite float64 score per box (``positive``: each > 0), or an InvalidInput.
+
+    Examples
+    --------
+    >>> read_scores([0.9, 0.5], 2, False)
+    array([0.9, 0.5])
+    >>> read_scores([0.9, float("nan")], 2, False)
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: scores[1]: score is nan, expected a finite number
+    """
+    try:
+        s = np.asarray(scores, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise InvalidInput("scores", "cannot read as an array of numbers") from None
+    if s.ndim == 0 and single:
+        s = s.reshape(1)
+    if s.ndim != 1:
+        raise InvalidInput("scores", f"expected one score per box (1-D), got shape {s.shape}")
+    if s.shape[0] != n:
+        raise InvalidInput("scores", f"{s.shape[0]} scores for {n} boxes")
+    bad = ~np.isfinite(s)
+    if bad.any():
+        row = int(np.argmax(bad))
+        raise InvalidInput(
+            "scores", f"score is {float(s[row])!r}, expected a finite number", row=row
+        )
+    if positive and s.size and not s.min() > 0:
+        row = int(np.argmax(s <= 0))
+        raise InvalidInput(
+            "scores",
+            f"score {float(s[row])!r}: fusion weighs boxes by score and needs scores > 0",
+            row=row,
+        )
+    return np.ascontiguousarray(s)
+
+
+def read_labels(labels: Any, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """(labels as an array, int64 code per box) with codes equal exactly for equal labels,
+    or an InvalidInput naming the first bad label.
+
+    Examples
+    --------
+    >>> read_labels(["vessel", "crane", "vessel"], 3)[1]
+    array([1, 0, 1])
+    >>> read_labels([1.0, float("nan")], 2)
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: labels[1]: nan is not a valid label
+    """
+    arr = np.asarray(labels)
+    if arr.ndim != 1:
+        raise InvalidInput("labels", f"expected one label per box (1-D), got shape {arr.shape}")
+    if arr.shape[0] != n:
+        raise InvalidInput("labels", f"{arr.shape[0]} labels for {n} boxes")
+    if arr.dtype.kind == "f" and arr.size:
+        bad = ~np.isfinite(arr)
+        if bad.any():
+            row = int(np.argmax(bad))
+            raise InvalidInput("labels", f"{float(arr[row])!r} is not a valid label", row=row)
+    if arr.dtype == object:
+        for row, v in enumerate(arr):
+            if v is None or (isinstance(v, float) and not np.isfinite(v)):
+                raise InvalidInput("labels", f"{v!r} is not a valid label", row=row)
+    try:
+        _, codes = np.unique(arr, return_inverse=True)
+    except TypeError:
+        raise InvalidInput("labels", "labels of mixed types cannot be compared") from None
+    return arr, np.ascontiguousarray(codes.reshape(-1), dtype=np.int64)

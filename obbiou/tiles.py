@@ -31,11 +31,11 @@ import numpy as np
 
 from obbiou.boxes import envelope
 from obbiou.errors import InvalidInput
-from obbiou.fusion import Fused, label_codes, read_scores
+from obbiou.fusion import Fused
 from obbiou.fusion import fuse as _fuse
 from obbiou.measures import pair_values
 from obbiou.scene import suppress
-from obbiou.shapes import Boxes, read_boxes
+from obbiou.shapes import Boxes, read_boxes, read_labels, read_scores
 
 __all__ = ["grid", "shift", "crop", "merge", "Crop", "Merged", "seam_rows"]
 
@@ -695,7 +695,7 @@ def merge(
         band = _default_border(t)
     else:
         band = _positive(border, "border", zero=True)
-    label_arr = None if labels is None else label_codes(labels, n)[0]
+    label_arr = None if labels is None else read_labels(labels, n)[0]
     if fuse and b.shape == "polygon":
         raise InvalidInput(
             "boxes", "fuse=True averages axis and rotated boxes; polygons cannot be fused"

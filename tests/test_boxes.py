@@ -469,7 +469,8 @@ def test_flip_y_polygon_mirrors_and_keeps_winding(poly, height):
     f = flip_y(poly, shape="polygon", height=height)
     ref = mirror(shapely.Polygon(poly), height)
     assert same_points(f, np.asarray(ref.exterior.coords)[:-1], region_tol(f))
-    assert shapely.Polygon(f).exterior.is_ccw == shapely.Polygon(poly).exterior.is_ccw
+    if shapely.Polygon(f).area > 0:  # height - y can round a sliver to zero area: no winding
+        assert shapely.Polygon(f).exterior.is_ccw == shapely.Polygon(poly).exterior.is_ccw
     assert f[0, 0] == poly[0, 0]  # vertex 0 stays vertex 0
     check(f, "polygon")
     if height is None:
