@@ -174,6 +174,22 @@ def emit(table: Any, out: str | None, note: str) -> None:
 # -- option groups ----------------------------------------------------------------------------
 
 
+def add_table_output(p: argparse.ArgumentParser, *, bev: bool = False) -> None:
+    """``--out PATH`` of the commands that write a table (and, with ``bev``, ``--bev``)."""
+    p.add_argument(
+        "--out",
+        metavar="PATH",
+        default=None,
+        help="output table (.csv, .parquet, .jsonl; default: CSV on stdout)",
+    )
+    if bev:
+        p.add_argument(
+            "--bev",
+            action="store_true",
+            help="3D boxes by the IoU of their ground-plane footprints (bird's-eye view)",
+        )
+
+
 def add_common(p: argparse.ArgumentParser, *, shape: bool = True) -> None:
     """``--shape`` and ``--degrees`` (tables of boxes), ``--quiet``."""
     if shape:

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from obbiou.cli.options import add_common, bad_option, emit
+from obbiou.cli.options import add_common, add_table_output, bad_option, emit
 
 SUMMARY = (
     "List the pairs of boxes that overlap, frame by frame, with their IoU (a spatial index "
@@ -29,17 +29,7 @@ def configure(p: argparse.ArgumentParser) -> None:
         metavar="IOU",
         help="report only pairs with IoU above this",
     )
-    p.add_argument(
-        "--out",
-        metavar="PATH",
-        default=None,
-        help="output table (.csv, .parquet, .jsonl; default: CSV on stdout)",
-    )
-    p.add_argument(
-        "--bev",
-        action="store_true",
-        help="3D boxes by the IoU of their ground-plane footprints (bird's-eye view)",
-    )
+    add_table_output(p, bev=True)
     add_common(p)
 
 

@@ -4,7 +4,14 @@ from __future__ import annotations
 
 import argparse
 
-from obbiou.cli.options import add_common, bad_option, emit, positive_float, positive_int
+from obbiou.cli.options import (
+    add_common,
+    add_table_output,
+    bad_option,
+    emit,
+    positive_float,
+    positive_int,
+)
 
 SUMMARY = (
     "Merge the detections of overlapping tiles into one set per large image: move them to "
@@ -62,12 +69,7 @@ def configure(p: argparse.ArgumentParser) -> None:
         action="store_true",
         help="let boxes of different labels suppress each other",
     )
-    p.add_argument(
-        "--out",
-        metavar="PATH",
-        default=None,
-        help="output table (.csv, .parquet, .jsonl; default: CSV on stdout)",
-    )
+    add_table_output(p)
     add_common(p)
 
 

@@ -6,6 +6,7 @@ import argparse
 
 from obbiou.cli.options import (
     add_common,
+    add_table_output,
     bad_option,
     emit,
     finite_float,
@@ -61,17 +62,7 @@ def configure(p: argparse.ArgumentParser) -> None:
         action="store_true",
         help="let boxes of different labels suppress each other",
     )
-    p.add_argument(
-        "--out",
-        metavar="PATH",
-        default=None,
-        help="output table (.csv, .parquet, .jsonl; default: CSV on stdout)",
-    )
-    p.add_argument(
-        "--bev",
-        action="store_true",
-        help="3D boxes by the IoU of their ground-plane footprints (bird's-eye view)",
-    )
+    add_table_output(p, bev=True)
     add_common(p)
 
 
