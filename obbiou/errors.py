@@ -26,7 +26,7 @@ from __future__ import annotations
 
 from typing import Any
 
-__all__ = ["InvalidInput", "InvalidTable", "TaskFailed"]
+__all__ = ["InvalidInput", "InvalidTable", "TaskFailed", "LikelyMistake"]
 
 
 class InvalidInput(ValueError):
@@ -135,3 +135,12 @@ def _rebuild(cls: type, state: dict) -> InvalidInput:
     err.__dict__.update(state)
     ValueError.__init__(err, str(err))
     return err
+
+
+class LikelyMistake(UserWarning):
+    """Valid input that is probably not what was meant (no common frame id, labels that
+    match only up to case, angles that look like degrees): a warning, never silence.
+
+    Filter it like any warning, e.g. ``warnings.simplefilter("error", LikelyMistake)`` to
+    make it an error in a pipeline.
+    """

@@ -17,11 +17,12 @@ from __future__ import annotations
 import argparse
 import sys
 import textwrap
+import warnings
 from collections.abc import Sequence
 
 from obbiou.cli import compare, demo, evaluate, overlap, stitch, suppress, warmup
 from obbiou.cli.options import BAD_INPUT, HelpFormatter, Parser
-from obbiou.errors import InvalidInput, TaskFailed
+from obbiou.errors import InvalidInput, LikelyMistake, TaskFailed
 
 __all__ = ["main", "build_parser", "COMMANDS"]
 
@@ -97,6 +98,19 @@ def _one_line(exc: BaseException) -> str:
     return " ".join(text.split())
 
 
+def _one_line_warning(prog: str):
+    """A ``warnings.showwarning`` that prints obbiou's own warnings as one line on stderr."""
+    default = warnings.showwarning
+
+    def show(message, category, filename, lineno, file=None, line=None):
+        if issubclass(category, LikelyMistake):
+            print(f"{prog}: warning: {_one_line(message)}", file=sys.stderr)
+        else:
+            default(message, category, filename, lineno, file, line)
+
+    return show
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the ``obbiou`` command line; returns the exit status.
 
@@ -126,7 +140,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         return BAD_INPUT
     prog = f"obbiou {args.command}"
     try:
-        return int(args.run(args) or 0)
+        with warnings.catch_warnings():
+            warnings.simplefilter("always", LikelyMistake)
+            warnings.showwarning = _one_line_warning(prog)
+            return int(args.run(args) or 0)
     except InvalidInput as exc:
         print(f"{prog}: error: {_one_line(exc)}", file=sys.stderr)
     except FileNotFoundError as exc:

@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from obbiou.errors import InvalidInput
+from obbiou.evaluation.checks import warn_likely_mistakes
 from obbiou.evaluation.matching import match_frames, parse_thresholds
 from obbiou.evaluation.result import Evaluation, reduce_records
 from obbiou.tables import read_table
@@ -119,6 +120,7 @@ def evaluate(
     spec = parse_thresholds(iou)
     truth_t = read_table(truth, role="truth", shape=shape, degrees=degrees)
     det_t = read_table(detections, role="detections", shape=shape, degrees=degrees)
+    warn_likely_mistakes(truth_t, det_t, degrees=degrees)
     records = match_frames(
         truth_t, det_t, thresholds=spec, max_detections=max_detections, progress=progress
     )
