@@ -6,9 +6,10 @@ time from a pool of Python threads, and a small input calls it once, directly. T
 no ``parallel=True`` / ``prange`` kernel in obbiou. Measured here (2 cores, numba 0.68,
 ``python bench/coldstart.py --profile``):
 
-* every ``prange`` driver cost 0.8-1.7 s of compile time of its own (parfor passes, the
-  gufunc and its wrapper; the first one also starts numba's thread pool), and obbiou had
-  some twenty of them, each with a hand-written serial twin;
+* every ``prange`` driver cost compile time of its own (parfor passes, the gufunc and its
+  wrapper; the first one also starts numba's thread pool): 1.35-1.75 s each for the
+  all-pairs drivers, measured while the machine was shared; obbiou had some twenty of
+  them, each with a hand-written serial twin;
 * inside a ``prange`` loop the index is typed ``int64`` while the function is typed and
   ``uint64`` in the gufunc, so every function called with it compiled twice.
 
