@@ -85,7 +85,7 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from obbiou.evaluation import evaluate
-    from obbiou.evaluation.text import buckets_text, details_text, interval_text
+    from obbiou.evaluation.text import details_text, interval_text
 
     opts = matching_options(args)
     sizes = bucket_edges(args.size_buckets, "--size-buckets")
@@ -105,17 +105,16 @@ def run(args: argparse.Namespace) -> int:
     else:
         result = evaluate(args.truth, args.detections, progress=not args.quiet, **opts)
     print(result.summary())
+    interval = None
     if args.interval:
+        interval = {"resamples": args.resamples, "level": args.level, "seed": args.seed}
         print()
-        print(interval_text(result, resamples=args.resamples, level=args.level, seed=args.seed))
+        print(interval_text(result, **interval))
     if args.details:
         print()
         print(details_text(result))
-    if result.buckets:
-        print()
-        print(buckets_text(result))
     if args.json:
-        result.to_json(args.json)
+        result.to_json(args.json, interval=interval)
         print(f"wrote {args.json}", file=sys.stderr)
     if args.plot:
         result.plot(args.plot)

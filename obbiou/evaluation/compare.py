@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 
@@ -13,7 +13,37 @@ from obbiou.evaluation.result import Evaluation
 from obbiou.evaluation.text import SAFETY_NOTE, comparison_text
 from obbiou.tables import Table, comparable_frame_ids, read_table
 
-__all__ = ["Comparison", "compare"]
+__all__ = ["Comparison", "LabelComparison", "compare"]
+
+
+class LabelComparison(NamedTuple):
+    """The paired comparison of one label's AP (mean over its thresholds), B against A."""
+
+    ap_a: float
+    ap_b: float
+    difference: float
+    interval: tuple[float, float]
+    p_value: float
+
+
+def _paired_test(
+    resampled: np.ndarray, observed: float, level: float
+) -> tuple[np.ndarray, tuple[float, float], float]:
+    """Finite resampled differences, their percentile interval, and the two-sided p-value.
+
+    The resampled differences are centred on zero (d* - d); p counts how often they lie at
+    least as far from it as the observed difference d: p = (1 + #{|d* - d| >= |d|}) / (1 + B).
+
+    Examples
+    --------
+    >>> _, (lo, hi), p = _paired_test(np.array([0.1, 0.2, 0.3, np.nan]), 0.2, 0.5)
+    >>> round(lo, 3), round(hi, 3), p  # no resample is 0.2 or more from 0.2: p = 1/4
+    (0.15, 0.25, 0.25)
+    """
+    finite = resampled[np.isfinite(resampled)]
+    centred = np.abs(finite - observed)
+    extreme = int((centred >= abs(observed) - 1e-15).sum())
+    return finite, percentile_interval(finite, level), (extreme + 1) / (len(finite) + 1)
 
 
 class Comparison:
@@ -33,14 +63,17 @@ class Comparison:
             raise InvalidInput("compare", "mean AP is undefined (no truths)")
         self.mean_ap_a, self.mean_ap_b = ma, mb
         self.difference = mb - ma
-        diffs = db - da
-        self.resampled = diffs[np.isfinite(diffs)]
-        self.interval = percentile_interval(self.resampled, level)
-        # two-sided bootstrap test of "no difference": centre the resampled differences on
-        # zero and count how often they are at least as far from it as the observed one
-        centred = np.abs(self.resampled - self.difference)
-        extreme = int((centred >= abs(self.difference) - 1e-15).sum())
-        self.p_value = (extreme + 1) / (len(self.resampled) + 1)
+        self.resampled, self.interval, self.p_value = _paired_test(db - da, self.difference, level)
+        #: Per label with truths on both sides: the same test on the label's AP.
+        self.labels: dict[str, LabelComparison] = {}
+        for lab in sorted(set(a.labels) & set(b.labels)):
+            la, lb = a.ap(lab), b.ap(lab)
+            if la is None or lb is None:
+                continue
+            ra = a.resampled_ap(w, lab, np.searchsorted(self.frames, frames[0]))
+            rb = b.resampled_ap(w, lab, np.searchsorted(self.frames, frames[1]))
+            _, interval, p = _paired_test(rb - ra, lb - la, level)
+            self.labels[lab] = LabelComparison(la, lb, lb - la, interval, p)
 
     def summary(self) -> str:
         """A short text report of the comparison."""
@@ -58,6 +91,9 @@ class Comparison:
             "resamples": self.resamples,
             "seed": self.seed if isinstance(self.seed, (int, type(None))) else str(self.seed),
             "frames": int(len(self.frames)),
+            "labels": {
+                lab: {**c._asdict(), "interval": list(c.interval)} for lab, c in self.labels.items()
+            },
             "test": "paired bootstrap over frames; two-sided; p = (1 + #{|d* - d| >= |d|}) / "
             "(1 + B)",
             "a": self.a.to_dict(breakdowns=False),
@@ -93,7 +129,10 @@ def compare(
     * ``interval``: the percentile interval of d* at ``level``;
     * ``p_value``: two-sided bootstrap test of "no difference" (Efron & Tibshirani, *An
       Introduction to the Bootstrap*, 1993, ch. 16; from memory): the resampled
-      differences are centred on zero, d* - d, and p = (1 + #{|d* - d| >= |d|}) / (1 + B).
+      differences are centred on zero, d* - d, and p = (1 + #{|d* - d| >= |d|}) / (1 + B);
+    * ``labels``: the same per label (each label's AP, mean over its thresholds, on the same
+      resamples), for the labels with truths: :class:`LabelComparison`. The per-label
+      p-values are not corrected for testing several labels.
 
     Examples
     --------
@@ -104,6 +143,8 @@ def compare(
     >>> c = compare(truth, a, b, resamples=200)
     >>> c.difference
     0.5
+    >>> c.labels["cone"].difference, c.labels["cone"].ap_b
+    (0.5, 1.0)
     """
     truth_t = read_table(truth, role="truth", shape=shape, degrees=degrees)
     kw = dict(

@@ -135,14 +135,15 @@ class MatchRecords:
     Detections (one row each): ``det_frame`` (frame id), ``det_rank`` (position among the
     frame's detections in input order), ``det_label``, ``det_score``, ``det_size``
     (area / volume), ``det_range`` (ground distance of the centre from the origin, 3D;
-    NaN in 2D), ``det_angle`` (orientation, NaN for axis-aligned layouts), and per threshold
+    NaN in 2D), ``det_angle`` (orientation, NaN for axis-aligned layouts), ``det_aspect``
+    (long side over short side of a rectangle or polygon, NaN otherwise), and per threshold
     (columns of ``thresholds``): ``det_outcome`` (0 FP, 1 TP, 2 ignored, 3 capped),
     ``det_truth`` (rank within the frame of the matched truth, or of the ignore truth that
     absorbed it; -1 if none) and ``det_iou`` (its IoU); ``det_best_same`` / ``det_best_other``
     (highest IoU with any non-ignore truth of the same / another label in the frame).
 
     Truths (one row each): ``truth_frame``, ``truth_rank``, ``truth_label``,
-    ``truth_ignore``, ``truth_size``, ``truth_range``, ``truth_angle`` and
+    ``truth_ignore``, ``truth_size``, ``truth_range``, ``truth_angle``, ``truth_aspect`` and
     ``truth_matched`` (per threshold), ``truth_best_same`` / ``truth_best_other`` (highest IoU
     with any evaluated detection of the same / another label in the frame).
     """
@@ -156,6 +157,7 @@ class MatchRecords:
     det_size: np.ndarray
     det_range: np.ndarray
     det_angle: np.ndarray
+    det_aspect: np.ndarray
     det_outcome: np.ndarray
     det_truth: np.ndarray
     det_iou: np.ndarray
@@ -168,6 +170,7 @@ class MatchRecords:
     truth_size: np.ndarray
     truth_range: np.ndarray
     truth_angle: np.ndarray
+    truth_aspect: np.ndarray
     truth_matched: np.ndarray
     truth_best_same: np.ndarray
     truth_best_other: np.ndarray
@@ -269,6 +272,22 @@ def _orientation(boxes: np.ndarray, shape: str) -> np.ndarray:
         e = edges[np.arange(n), k]
         return np.arctan2(e[:, 1], e[:, 0])
     return np.full(n, np.nan)
+
+
+def _aspect(boxes: np.ndarray, shape: str) -> np.ndarray:
+    """Long side over short side (rotated), longest over shortest edge (polygon); else NaN."""
+    if shape == "rotated":
+        sides = np.abs(boxes[:, 2:4])
+    elif shape == "polygon":
+        edges = np.roll(boxes, -1, axis=1) - boxes
+        sides = np.hypot(edges[..., 0], edges[..., 1])
+    else:
+        return np.full(boxes.shape[0], np.nan)
+    if not len(sides):
+        return np.zeros(0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = sides.max(axis=1) / sides.min(axis=1)
+    return np.where(np.isnan(ratio), 1.0, ratio)  # a point (0/0) is as round as a square
 
 
 def _ranges(boxes: np.ndarray, shape: str) -> np.ndarray:
@@ -480,6 +499,7 @@ def _match_tables(
         det_size=np.asarray(dsize, dtype=np.float64),
         det_range=_ranges(dets.boxes.data, layout),
         det_angle=_orientation(dets.boxes.data, layout),
+        det_aspect=_aspect(dets.boxes.data, layout),
         det_outcome=outcome[dinv],
         det_truth=mtruth[dinv],
         det_iou=miou[dinv],
@@ -492,6 +512,7 @@ def _match_tables(
         truth_size=np.asarray(tsize, dtype=np.float64),
         truth_range=_ranges(truth.boxes.data, layout),
         truth_angle=_orientation(truth.boxes.data, layout),
+        truth_aspect=_aspect(truth.boxes.data, layout),
         truth_matched=taken[tinv],
         truth_best_same=tsame[tinv],
         truth_best_other=tother[tinv],

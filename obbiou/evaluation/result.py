@@ -63,6 +63,17 @@ def _key(t: float) -> str:
     return f"{t:g}"
 
 
+def _degrees(error: _bd.OrientationError) -> dict:
+    """An orientation error for JSON: angles in degrees, the unit in each key."""
+    out: dict[str, Any] = {}
+    for k, v in error._asdict().items():
+        if k in ("period", "mean", "median", "p90", "max"):
+            out[f"{k}_deg"] = None if v is None else math.degrees(v)
+        else:
+            out[k] = v
+    return out
+
+
 def _parse_buckets(spec: Any, what: str) -> dict[str, tuple[float, float]]:
     """Buckets from edges ``[e0, e1, ...]`` or a mapping name -> (low, high); low <= v < high."""
     if spec is None:
@@ -259,11 +270,23 @@ class Evaluation:
         resamples; ``columns[i]`` is the weight column of ``self.frames[i]`` (default: column
         i). A paired comparison weights two evaluations with the same rows.
         """
-        code = None
-        if columns is not None:
-            columns = np.asarray(columns, dtype=np.int64)
-            code = (columns[self._dcode], columns[self._tcode])
-        return self._resampled(weights, None, None, frame_code=code)
+        return self._resampled(weights, None, None, frame_code=self._columns(columns))
+
+    def resampled_ap(
+        self, weights: np.ndarray, label: Any, columns: np.ndarray | None = None
+    ) -> np.ndarray:
+        """AP of ``label`` (mean over its thresholds) under each row of frame weights: ``(B,)``.
+
+        Same ``weights`` and ``columns`` as :meth:`resampled_mean_ap`; NaN where the label has
+        no positives in a resample.
+        """
+        return self._resampled(weights, label, None, frame_code=self._columns(columns))
+
+    def _columns(self, columns: np.ndarray | None) -> tuple[np.ndarray, np.ndarray] | None:
+        if columns is None:
+            return None
+        columns = np.asarray(columns, dtype=np.int64)
+        return (columns[self._dcode], columns[self._tcode])
 
     def _thresholds_of(self, lab: str, iou: float | None) -> tuple[float, ...]:
         if iou is None:
@@ -454,10 +477,13 @@ class Evaluation:
     ) -> _bd.OrientationError:
         """Orientation error of the matched pairs at ``iou`` (default: the lowest threshold).
 
-        Rectangles (rotated; polygons by their longest edge) compare angles modulo π; upright
-        3D boxes compare headings modulo 2π and report the share of flipped headings (more
-        than π/2 off). ``label`` restricts to one label. Axis-aligned layouts raise
-        ``ValueError`` (they carry no orientation).
+        Rectangles (rotated; polygons by their longest edge) compare long axes modulo π, or
+        modulo π/2 when either box of the pair is near-square (long / short side below 1.25,
+        so that which side is longer does not matter; see
+        :func:`obbiou.evaluation.breakdown.orientation_error`); upright 3D boxes compare
+        headings modulo 2π and report the share of flipped headings (more than π/2 off).
+        ``label`` restricts to one label. Axis-aligned layouts raise ``ValueError`` (they
+        carry no orientation).
         """
         t = self._default_iou(iou)
         k = self._col(t)
@@ -466,7 +492,9 @@ class Evaluation:
         if label is not None:
             sel &= self._dlabel == self.labels.index(self._label(label))
         ti = self._matched_index[sel, k]
-        return _bd.orientation_error(r.det_angle[sel], r.truth_angle[ti], r.shape)
+        return _bd.orientation_error(
+            r.det_angle[sel], r.truth_angle[ti], r.shape, r.det_aspect[sel], r.truth_aspect[ti]
+        )
 
     # -- reports -----------------------------------------------------------------------------
     def summary(self) -> str:
@@ -475,10 +503,22 @@ class Evaluation:
 
         return summary_text(self)
 
-    def to_dict(self, *, breakdowns: bool = True) -> dict:
+    def to_dict(self, *, breakdowns: bool = True, interval: Mapping | None = None) -> dict:
         """JSON-safe result: mean AP, per-label AP and counts, thresholds, protocol options.
 
-        Undefined values (a label without truths) are ``None``, never NaN.
+        Undefined values (a label without truths) are ``None``, never NaN. Angles (the
+        orientation error) are in degrees, with ``_deg`` in their keys. ``interval``, the
+        keyword arguments of :meth:`interval` (``resamples``, ``level``, ``seed``), adds the
+        bootstrap interval of mean AP under ``"interval"``.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"frame": [0, 1], "label": ["skiff"] * 2, "x_min": [0, 0], "y_min": [0, 0],
+        ...        "x_max": [2, 2], "y_max": [1, 1]}
+        >>> d = evaluate(box, dict(box, score=[0.9, 0.8])).to_dict(interval={"resamples": 50})
+        >>> d["mean_ap"], d["interval"]["low"], d["interval"]["high"], d["interval"]["level"]
+        (1.0, 1.0, 1.0, 0.95)
         """
 
         def num(v):
@@ -512,11 +552,23 @@ class Evaluation:
             d["false_positives"] = {k: v._asdict() for k, v in self.false_positives().items()}
             d["misses"] = {k: v._asdict() for k, v in self.misses().items()}
             if self.records.shape not in ("axis", "axis3"):
-                d["orientation_error"] = self.orientation_error()._asdict()
+                d["orientation_error"] = _degrees(self.orientation_error())
             for by, group in self.buckets.items():
                 d.setdefault("buckets", {})[by] = {
                     name: ev.to_dict(breakdowns=False) for name, ev in group.items()
                 }
+        if interval is not None:
+            opts = {"resamples": 1000, "level": 0.95, "seed": 0, **dict(interval)}
+            low, high = self.interval(**opts)
+            seed = opts["seed"]
+            d["interval"] = {
+                "of": "mean AP over all thresholds",
+                "low": low,
+                "high": high,
+                **opts,
+                "seed": seed if isinstance(seed, (int, type(None))) else str(seed),
+                "method": "percentile bootstrap over frames",
+            }
         d["note"] = SAFETY_NOTE
         return d
 
@@ -539,10 +591,10 @@ class Evaluation:
             "IoU >= threshold with an ignore truth; else false positive",
         }
 
-    def to_json(self, path: str) -> None:
-        """Write :meth:`to_dict` as JSON to ``path``."""
+    def to_json(self, path: str, *, interval: Mapping | None = None) -> None:
+        """Write :meth:`to_dict` as JSON to ``path`` (``interval``: as there)."""
         with open(path, "w", encoding="utf-8") as fh:
-            json.dump(self.to_dict(), fh, indent=2, allow_nan=False)
+            json.dump(self.to_dict(interval=interval), fh, indent=2, allow_nan=False)
             fh.write("\n")
 
     def plot(self, path: str, *, iou: float | None = None, title: str | None = None) -> None:

@@ -27,7 +27,8 @@ SAFETY_NOTE = (
 
 
 def summary_text(evaluation: Any) -> str:
-    """One line per label and threshold (AP and counts), then the means and the note."""
+    """One line per label and threshold (AP and counts), the means, the mean AP of each size
+    or range bucket (when there are buckets), and the note."""
     protocol = evaluation.protocol()
     points = protocol["recall_points"]
     kind = protocol["ap"] if points is None else f"{points}-point"
@@ -62,6 +63,8 @@ def summary_text(evaluation: Any) -> str:
     undefined = [lab for lab in evaluation.labels if evaluation.ap(lab) is None]
     if undefined:
         lines.append(f"no truths (left out of mean AP): {', '.join(undefined)}")
+    if evaluation.buckets:
+        lines += ["", buckets_text(evaluation), ""]
     lines.append(SAFETY_NOTE)
     return "\n".join(lines)
 
@@ -127,9 +130,14 @@ def details_text(evaluation: Any, iou: float | None = None) -> str:
         )
     if evaluation.records.shape not in ("axis", "axis3"):
         upright = evaluation.records.shape == "upright"
-        period = "heading modulo 360°" if upright else "angle modulo 180°"
+        period = (
+            "heading modulo 360°"
+            if upright
+            else "long axes modulo 180°, sides modulo 90° when near-square"
+        )
         lines.append(f"Orientation error of matched pairs ({period}, degrees):")
-        lines.append(row.format("label", "IoU>=", "pairs", "mean", "median", "90th pct", "flipped"))
+        last = "flipped" if upright else "near-sq."
+        lines.append(row.format("label", "IoU>=", "pairs", "mean", "median", "90th pct", last))
 
         def deg(v: float | None) -> str:
             return "n/a" if v is None or math.isnan(v) else f"{math.degrees(v):.2f}"
@@ -139,7 +147,7 @@ def details_text(evaluation: Any, iou: float | None = None) -> str:
             rows.append((None, next(iter(at.values()))))  # all labels at the one threshold
         for lab, t in rows:
             e = evaluation.orientation_error(t, label=lab)
-            flipped = "n/a" if e.flipped is None else f"{e.flipped:.1%}"
+            flipped = f"{e.flipped:.1%}" if upright else e.near_square
             lines.append(
                 row.format(
                     "all" if lab is None else lab,
@@ -202,6 +210,31 @@ def comparison_text(comparison: Any) -> str:
             f"[{lo:+.4f}, {hi:+.4f}]   p = {comparison.p_value:.4f}",
             "p: two-sided paired bootstrap test of no difference (resampled differences "
             "centred on zero).",
+            *_label_rows(comparison),
             SAFETY_NOTE,
         ]
     )
+
+
+def _label_rows(comparison: Any) -> list[str]:
+    """Per label: AP of A and B, B - A, its interval and p (not corrected for many labels)."""
+    if not comparison.labels:
+        return []
+    width = max([len(lab) for lab in comparison.labels] + [5])
+    row = f"  {{:<{width}}}  {{:>7}}  {{:>7}}  {{:>8}}  {{:>19}}  {{:>6}}"
+    lines = ["", "By label (AP over each label's thresholds; p not corrected for many labels):"]
+    lines.append(row.format("label", "AP A", "AP B", "B - A", "interval", "p"))
+    for lab, c in comparison.labels.items():
+        lo, hi = c.interval
+        lines.append(
+            row.format(
+                lab,
+                f"{c.ap_a:.4f}",
+                f"{c.ap_b:.4f}",
+                f"{c.difference:+.4f}",
+                f"[{lo:+.4f}, {hi:+.4f}]",
+                f"{c.p_value:.4f}",
+            )
+        )
+    lines.append("")
+    return lines

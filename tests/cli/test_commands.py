@@ -179,8 +179,14 @@ def test_evaluate_hand_case_and_json_equals_to_dict(hand_files, tmp_path):
     )
     assert proc.returncode == 0, proc.stderr
     written = json.loads(out_json.read_text())
-    # The JSON the command writes is Evaluation.to_dict() of the same files (docs/design.md §7).
-    assert written == json.loads(json.dumps(evaluate(truth, dets).to_dict()))
+    # The JSON the command writes is Evaluation.to_dict() of the same files (docs/design.md §7),
+    # with the interval it printed (--interval) under "interval".
+    ev = evaluate(truth, dets)
+    interval = {"resamples": 200, "level": 0.95, "seed": 0}
+    assert written == json.loads(json.dumps(ev.to_dict(interval=interval)))
+    low, high = ev.interval(**interval)
+    assert (written["interval"]["low"], written["interval"]["high"]) == (low, high)
+    assert f"[{low:.4f}, {high:.4f}]" in proc.stdout
     # All-points AP worked out by hand with exact fractions: precisions at the TPs are 1, 2/3,
     # 3/4; the monotone envelope makes them 1, 3/4, 3/4; AP = (1 + 3/4 + 3/4) / 3.
     expected = (Fraction(1) + Fraction(3, 4) + Fraction(3, 4)) / 3

@@ -99,3 +99,48 @@ def test_compare_same_detector_and_a_better_one():
     r = compare(truth, dets, worse, resamples=400, seed=2)
     assert r.difference == -c.difference
     assert r.interval == pytest.approx((-hi, -lo))
+
+
+def test_compare_per_label():
+    # B differs from A only on ships: cranes must come out identical (difference 0,
+    # interval (0, 0), p = 1: every resampled difference is 0, as far from 0 as the
+    # observed one; hand-worked from the definition of p in compare's docstring)
+    truth, dets = scene(150, 4)
+    _, worse = scene(150, 4, noise=1.6, hit=0.5)
+    ships = {
+        k: [v for v, lab in zip(worse[k], worse["label"], strict=True) if lab == "ship"]
+        for k in worse
+    }
+    cranes = {
+        k: [v for v, lab in zip(dets[k], dets["label"], strict=True) if lab == "crane"]
+        for k in dets
+    }
+    mixed = {k: ships[k] + cranes[k] for k in dets}
+    c = compare(truth, mixed, dets, resamples=300, seed=1)
+    crane = c.labels["crane"]
+    assert crane.difference == 0.0 and crane.interval == (0.0, 0.0) and crane.p_value == 1.0
+    ship = c.labels["ship"]
+    assert ship.difference == c.b.ap("ship") - c.a.ap("ship") > 0
+    assert ship.interval[0] <= ship.difference <= ship.interval[1]
+    # the mean of the per-label differences is the mAP difference (mAP = mean over labels)
+    assert np.mean([v.difference for v in c.labels.values()]) == pytest.approx(c.difference)
+    assert "By label" in c.summary() and set(c.to_dict()["labels"]) == {"crane", "ship"}
+
+
+def test_per_label_resample_equals_evaluation_of_copied_frames():
+    # as above, per label: a resample of one label's AP is that label's AP on a data set
+    # with frame f copied w_f times
+    truth, dets = scene(20, 5)
+    ev = evaluate(truth, dets, iou=[0.5, 0.75])
+    w = frame_weights(len(ev.frames), 2, seed=3)
+    got = ev.resampled_ap(w, "ship")
+    for b in range(2):
+        t2 = {k: [] for k in truth}
+        d2 = {k: [] for k in dets}
+        for f, count in enumerate(w[b]):
+            for c in range(count):
+                for src, dst in ((truth, t2), (dets, d2)):
+                    rows = [i for i, fr in enumerate(src["frame"]) if fr == f]
+                    for k in src:
+                        dst[k] += [f"{f}-{c}" if k == "frame" else src[k][i] for i in rows]
+        assert got[b] == pytest.approx(evaluate(t2, d2, iou=[0.5, 0.75]).ap("ship"), abs=1e-12)

@@ -124,6 +124,56 @@ def test_orientation_error_rotated_modulo_pi():
     assert e.max == pytest.approx(0.1, abs=1e-9) and e.mean == pytest.approx(0.05, abs=1e-9)
 
 
+def _rect_corners(cx, cy, w, h, a):
+    c, s = np.cos(a), np.sin(a)
+    return [
+        (cx + c * u - s * v, cy + s * u + c * v)
+        for u, v in ((-w / 2, -h / 2), (w / 2, -h / 2), (w / 2, h / 2), (-w / 2, h / 2))
+    ]
+
+
+@pytest.mark.parametrize("layout", ["rotated", "polygon"])
+def test_orientation_error_near_square(layout):
+    # The case of the issue (hand-worked): a 60 x 60 truth at 10 degrees and a 58 x 61
+    # detection at 11 degrees (shapely IoU 0.95) are 1 degree apart whichever side is
+    # longer; a 60 x 20 truth against a 60 x 20 detection 80 degrees off stays 80 off
+    # (elongated: long axes modulo 180 degrees).
+    from shapely.geometry import Polygon
+
+    boxes_t = [(0, 0, 60, 60, 10), (300, 0, 60, 20, 0)]
+    boxes_d = [(0, 0, 58, 61, 11), (300, 0, 60, 20, 80)]
+    iou = (
+        Polygon(_rect_corners(*boxes_t[0][:4], np.radians(10)))
+        .intersection(Polygon(_rect_corners(*boxes_d[0][:4], np.radians(11))))
+        .area
+        / Polygon(_rect_corners(*boxes_t[0][:4], np.radians(10)))
+        .union(Polygon(_rect_corners(*boxes_d[0][:4], np.radians(11))))
+        .area
+    )
+    assert 0.94 < iou < 0.96
+
+    def table(rows, score):
+        t = {"frame": [0] * len(rows), "label": ["panel"] * len(rows)}
+        if score:
+            t["score"] = [0.9, 0.8]
+        if layout == "rotated":
+            for j, k in enumerate(("cx", "cy", "width", "height", "angle")):
+                t[k] = [r[j] if k != "angle" else np.radians(r[j]) for r in rows]
+        else:
+            corners = [_rect_corners(*r[:4], np.radians(r[4])) for r in rows]
+            for v in range(4):
+                t[f"px{v}"] = [c[v][0] for c in corners]
+                t[f"py{v}"] = [c[v][1] for c in corners]
+        return t
+
+    ev = evaluate(table(boxes_t, False), table(boxes_d, True), iou=0.01)
+    e = ev.orientation_error()
+    assert e.pairs == 2 and e.near_square == 1
+    assert np.degrees(e.max) == pytest.approx(80, abs=1e-9)
+    assert np.degrees(e.median) == pytest.approx(40.5, abs=1e-9)  # mean of 1 and 80
+    assert np.degrees(e.mean) == pytest.approx(40.5, abs=1e-9)
+
+
 def test_label_without_truths_is_none_not_nan():
     truth = {
         "frame": [0],
@@ -194,3 +244,27 @@ def test_empty_evaluation_is_defined():
     assert json.loads(json.dumps(ev.to_dict(), allow_nan=False))["mean_ap"] is None
     with pytest.raises(ValueError, match="nothing to resample"):
         ev.interval()
+
+
+def test_summary_holds_the_buckets_and_json_angles_in_degrees():
+    # Two truths of 1 m^2 and 30 m^2 (ground area, harbour-survey-like edges 0, 20, 200 m^2;
+    # invented), only the small one detected: bucket 0-20 has AP 1, bucket 20-200 AP 0
+    # (hand-worked: one TP of one truth; no detection of the other truth).
+    truth = {
+        "frame": [0, 0],
+        "label": ["skiff", "skiff"],
+        "cx": [0.0, 50.0],
+        "cy": [0.0, 0.0],
+        "width": [1.0, 6.0],
+        "height": [1.0, 5.0],
+        "angle": [0.3, 0.0],
+    }
+    dets = {k: v[:1] for k, v in truth.items()} | {"score": [0.9], "angle": [0.35]}
+    ev = evaluate(truth, dets, size_buckets=[0, 20, 200])
+    text = ev.summary()
+    assert "mean AP by size:" in text
+    assert "0-20: 1.0000" in text and "20-200: 0.0000" in text
+    # the orientation error in the JSON is in degrees, the unit in its keys: 0.05 rad
+    e = ev.to_dict()["orientation_error"]
+    assert e["max_deg"] == pytest.approx(np.degrees(0.05), abs=1e-9)
+    assert e["period_deg"] == pytest.approx(180.0) and "max" not in e
