@@ -66,6 +66,13 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument(
         "--plot", metavar="PATH", default=None, help="write precision-recall curves as PNG"
     )
+    p.add_argument(
+        "--plot-iou",
+        type=float,
+        metavar="T",
+        default=None,
+        help="draw the curves of --plot at IoU threshold T (default: each label's lowest)",
+    )
     cluster = p.add_mutually_exclusive_group()
     cluster.add_argument(
         "--workers",
@@ -117,6 +124,6 @@ def run(args: argparse.Namespace) -> int:
         result.to_json(args.json, interval=interval)
         print(f"wrote {args.json}", file=sys.stderr)
     if args.plot:
-        result.plot(args.plot)
+        result.plot(args.plot, iou=args.plot_iou)
         print(f"wrote {args.plot}", file=sys.stderr)
     return 0

@@ -1,9 +1,8 @@
 """A picture of one scene: truths and detections in the project palette (invented data).
 
-Colours come from :data:`obbiou.evaluation.palette.PALETTE`: truths navy solid, matched
-detections amber, false positives magenta dashed, missed truths navy dotted; ignore truths
-are navy with a light fill and the detections they absorb light grey. Upright 3D boxes are
-drawn from above (bird's-eye view, their footprints) with a tick towards the heading.
+The boxes are drawn by :func:`obbiou.evaluation.pictures.draw_matches` (the project
+palette); this module adds the scenario's backdrop (quay and water, racks, the robot) and
+labels. Upright 3D boxes are drawn from above (bird's-eye view) with a heading tick.
 """
 
 from __future__ import annotations
@@ -14,28 +13,13 @@ from typing import Any
 import numpy as np
 
 from obbiou.evaluation.palette import PALETTE
+from obbiou.evaluation.pictures import draw_matches
+from obbiou.evaluation.pictures import outlines as _outlines
 
 __all__ = ["draw_scene"]
 
 #: The harbour's water behind the boxes (scene backdrop only, not part of the palette).
 _WATER = "#eef3f8"
-
-
-def _outlines(boxes: np.ndarray, shape: str) -> tuple[np.ndarray, np.ndarray | None]:
-    """Closed 2D outlines (N, 5, 2) and, for upright boxes, heading ticks (N, 2, 2)."""
-    from obbiou.boxes import corners, footprint
-
-    if len(boxes) == 0:
-        return np.zeros((0, 5, 2)), None
-    flat = footprint(boxes, shape=shape) if shape == "upright" else boxes
-    pts = corners(flat, shape="rotated" if shape == "upright" else shape)
-    closed = np.concatenate([pts, pts[:, :1]], axis=1)
-    ticks = None
-    if shape == "upright":
-        cx, cy, length, yaw = flat[:, 0], flat[:, 1], flat[:, 2], flat[:, 4]
-        tip = np.stack([cx + 0.5 * length * np.cos(yaw), cy + 0.5 * length * np.sin(yaw)], 1)
-        ticks = np.stack([np.stack([cx, cy], 1), tip], axis=1)
-    return closed, ticks
 
 
 def draw_scene(
@@ -82,10 +66,8 @@ def draw_scene(
     pathlib.Path
         The file written.
     """
-    from matplotlib.collections import LineCollection
     from matplotlib.figure import Figure
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Circle, Patch, Polygon
+    from matplotlib.patches import Circle, Polygon
     from matplotlib.transforms import offset_copy
 
     path = Path(path)
@@ -93,8 +75,8 @@ def draw_scene(
     cols = list(scenario.box_columns)
     t_status = np.asarray(truth_status, dtype=object)
     d_status = np.asarray(detection_status, dtype=object)
-    t_out, t_tick = _outlines(truth[cols].to_numpy(np.float64), shape)
-    d_out, d_tick = _outlines(detections[cols].to_numpy(np.float64), shape)
+    t_boxes = truth[cols].to_numpy(np.float64)
+    d_boxes = detections[cols].to_numpy(np.float64)
 
     x0, y0, x1, y1 = window or scenario.extent
     aspect = (y1 - y0) / (x1 - x0)
@@ -138,34 +120,9 @@ def draw_scene(
             color="#555555",
         )
 
-    navy, amber, magenta, grey = (
-        PALETTE[k] for k in ("truth", "matched", "false_positive", "ignored")
-    )
-    thin = 0.7 if len(t_out) > 200 else 1.1
-
-    def lines(outlines, mask, **kw):
-        if mask.any():
-            ax.add_collection(LineCollection(list(outlines[mask]), **kw))
-
-    # Ignore truths: light fill so the region reads as "not judged".
-    for poly in t_out[t_status == "ignore"]:
-        ax.add_patch(Polygon(poly, closed=True, facecolor=navy, alpha=0.12, edgecolor="none"))
-    lines(t_out, t_status == "ignore", colors=navy, linewidths=thin * 0.8, alpha=0.6)
-    lines(t_out, t_status == "matched", colors=navy, linewidths=thin * 1.6)
-    lines(t_out, t_status == "missed", colors=navy, linewidths=thin * 2.0, linestyles=":")
-    lines(d_out, d_status == "ignored", colors=grey, linewidths=thin * 0.8)
-    lines(d_out, d_status == "matched", colors=amber, linewidths=thin * 1.1)
-    lines(
-        d_out,
-        d_status == "false positive",
-        colors=magenta,
-        linewidths=thin * 1.4,
-        linestyles=(0, (4, 2)),
-    )
-    if t_tick is not None and d_tick is not None:
-        lines(t_tick, t_status != "ignore", colors=navy, linewidths=thin)
-        lines(d_tick, d_status == "matched", colors=amber, linewidths=thin)
-        lines(d_tick, d_status == "false positive", colors=magenta, linewidths=thin)
+    handles = draw_matches(ax, shape, t_boxes, t_status, d_boxes, d_status)
+    navy = PALETTE["truth"]
+    t_out = _outlines(t_boxes, shape)[0]
 
     # Name the less common objects (vessels, cranes; forklifts, people) beside their truth.
     if len(truth):
@@ -186,27 +143,6 @@ def draw_scene(
                 va="center",
                 bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.7},
             )
-    counts = {k: int((t_status == k).sum()) for k in ("matched", "missed", "ignore")}
-    dcounts = {k: int((d_status == k).sum()) for k in ("matched", "false positive", "ignored")}
-    handles = [
-        Line2D([], [], color=navy, lw=1.8, label=f"truth, found ({counts['matched']})"),
-        Line2D([], [], color=navy, lw=2.0, ls=":", label=f"truth, missed ({counts['missed']})"),
-        Patch(
-            facecolor=navy, alpha=0.25, edgecolor=navy, label=f"ignore truth ({counts['ignore']})"
-        ),
-        Line2D([], [], color=amber, lw=1.6, label=f"detection, matched ({dcounts['matched']})"),
-        Line2D(
-            [],
-            [],
-            color=magenta,
-            lw=1.6,
-            ls=(0, (4, 2)),
-            label=f"false positive ({dcounts['false positive']})",
-        ),
-        Line2D(
-            [], [], color=grey, lw=1.2, label=f"detection on an ignore truth ({dcounts['ignored']})"
-        ),
-    ]
     ax.legend(
         handles=handles,
         loc="upper center",

@@ -30,6 +30,7 @@ import numpy as np
 
 from obbiou.demo.scenarios import INVENTED, Scenario, harbour_survey, simulate_detector
 from obbiou.demo.scenarios import warehouse_lidar as _warehouse
+from obbiou.evaluation.pictures import frame_statuses
 
 __all__ = ["run_demo", "CAUTION", "SETTINGS"]
 
@@ -47,8 +48,9 @@ SETTINGS: dict[str, dict[str, Any]] = {
         "max_iou": 0.5,
         "iou": "0.5:0.95:0.05",
         "headline": 0.5,
-        # areas in square pixels: 20 ft containers ~650, 40 ft ~1300, vessels and cranes more
-        "size_buckets": {"small": (0, 2000), "medium": (2000, 40000), "large": (40000, 1e12)},
+        # areas in square pixels (0.15 m each): 20 ft containers ~650, 40 ft ~1300, vessels
+        # and cranes more; buckets are named by their edges
+        "size_buckets": [0, 2000, 40000, float("inf")],
         "range_buckets": None,
     },
     "warehouse": {
@@ -90,27 +92,6 @@ def _suppress(scenario: Scenario, raw: Any, max_iou: float, progress: bool) -> A
         keep.append(rows[np.sort(np.asarray(kept.indices, dtype=np.int64))])
     idx = np.concatenate(keep) if keep else np.zeros(0, dtype=np.int64)
     return raw.iloc[idx].reset_index(drop=True)
-
-
-def _statuses(evaluation: Any, frame: str, iou: float, n_truth: int, n_det: int) -> tuple:
-    """Per truth and per detection of one frame: what matching made of it at ``iou``."""
-    from obbiou.evaluation.matching import CAPPED, IGNORED, TP
-
-    r = evaluation.records
-    k = int(np.flatnonzero(np.abs(np.asarray(r.thresholds) - iou) < 1e-9)[0])
-    d_status = np.full(n_det, "false positive", dtype=object)
-    sel = np.flatnonzero(r.det_frame.astype(str) == str(frame))
-    outcome = r.det_outcome[sel, k]
-    names = {TP: "matched", IGNORED: "ignored", CAPPED: "ignored"}
-    for rank, code in zip(r.det_rank[sel], outcome, strict=True):
-        d_status[int(rank)] = names.get(int(code), "false positive")
-    t_status = np.full(n_truth, "missed", dtype=object)
-    sel = np.flatnonzero(r.truth_frame.astype(str) == str(frame))
-    for rank, ignore, hit in zip(
-        r.truth_rank[sel], r.truth_ignore[sel], r.truth_matched[sel, k], strict=True
-    ):
-        t_status[int(rank)] = "ignore" if ignore else ("matched" if hit else "missed")
-    return t_status, d_status
 
 
 def _pick_frame(scenario: Scenario) -> str:
@@ -238,7 +219,7 @@ def run_demo(
         frame = _pick_frame(scenario)
         t = scenario.truth[scenario.truth["frame"] == frame].reset_index(drop=True)
         d = kept["improved"][kept["improved"]["frame"] == frame].reset_index(drop=True)
-        t_status, d_status = _statuses(ev, frame, head, len(t), len(d))
+        t_status, d_status = frame_statuses(ev, frame, head)
         from obbiou.demo.draw import draw_scene
 
         what = "3D IoU" if scenario.shape == "upright" else "IoU"
@@ -319,6 +300,7 @@ def run_demo(
                 k: v for k, v in control.to_dict().items() if k not in ("a", "b")
             },
             "scene_frame": frame,
+            "scene_iou": head,
         }
     doc["mean_ap"] = mean_ap
     seconds = time.perf_counter() - start

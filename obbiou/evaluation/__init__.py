@@ -9,7 +9,8 @@ Map then reduce: :func:`match_frames` matches each frame into compact
 Where things are: ``matching`` (the map step and the match records), ``ap``, ``bootstrap``
 and ``breakdown`` (the numbers), ``result`` (:class:`Evaluation`, :class:`Counts`, the reduce
 step), ``protocol`` (:func:`evaluate`, the protocol written out), ``compare``, ``text``
-(summaries), ``plots`` (precision-recall curves on a matplotlib Figure) and ``palette``.
+(summaries), ``plots`` (precision-recall curves on a matplotlib Figure), ``pictures``
+(:func:`draw_frame`: one frame's truths and detections by status) and ``palette``.
 
 Detection metrics do not establish that a vehicle, robot or any other system is safe; defer
 to the applicable safety standards, local regulation and qualified engineers.
@@ -17,6 +18,7 @@ to the applicable safety standards, local regulation and qualified engineers.
 
 from obbiou.evaluation.compare import Comparison, compare
 from obbiou.evaluation.matching import MatchRecords, Thresholds, match_frames, parse_thresholds
+from obbiou.evaluation.pictures import draw_frame
 from obbiou.evaluation.protocol import evaluate
 from obbiou.evaluation.result import Counts, Evaluation, reduce_records
 from obbiou.evaluation.text import details_text
@@ -31,6 +33,7 @@ __all__ = [
     "Thresholds",
     "compare",
     "details_text",
+    "draw_frame",
     "evaluate",
     "match_frames",
     "parse_thresholds",

@@ -1,7 +1,8 @@
 """The project palette (docs/design.md, "Command line"): the one definition of its colours.
 
 Ground truth navy (solid; misses dotted), matched detections amber, false positives magenta
-(dashed). Pictures of scenes and precision-recall curves both take their colours from here.
+(dashed), for pictures of frames; precision-recall curves of labels take colours of their own
+(:data:`LINE_COLOURS`), distinct from those.
 
 Examples
 --------
@@ -20,14 +21,9 @@ PALETTE = {
     "ignored": "#9a9a9a",  # grey: ignore truths' fill, detections they absorb
 }
 
-#: Colours of the curves of several labels: the palette, then lighter and darker shades of it.
-LINE_COLOURS = (
-    PALETTE["truth"],
-    PALETTE["matched"],
-    PALETTE["false_positive"],
-    "#5a7bb5",
-    "#8a6d00",
-    "#d873b4",
-)
+#: Colours of the curves of several labels: a palette of their own, none of them near the
+#: truth / match / false-positive colours above, so that a curve is never read as a status
+#: (teal, brick, olive, violet, sky blue, ochre-brown).
+LINE_COLOURS = ("#137a7f", "#b5482a", "#6b8e23", "#6a4c93", "#2c8fcc", "#8c6d31")
 #: Line styles, for labels beyond the colours.
 LINE_STYLES = ("-", "--", "-.", ":")

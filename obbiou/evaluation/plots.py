@@ -12,17 +12,39 @@ from typing import Any
 
 from obbiou.evaluation.palette import LINE_COLOURS, LINE_STYLES
 
-__all__ = ["draw_curves", "plot_curves"]
+__all__ = ["curve_thresholds", "draw_curves", "plot_curves"]
+
+
+def curve_thresholds(evaluation: Any, iou: float | None = None) -> dict[str, float]:
+    """The threshold each label's curve is drawn at: ``iou`` for the labels evaluated there;
+    by default each label's own lowest threshold (labels may have thresholds of their own).
+
+    Examples
+    --------
+    >>> from obbiou.evaluation import evaluate
+    >>> box = {"frame": [0, 0], "label": ["car", "van"], "x_min": [0, 5], "y_min": [0, 0],
+    ...        "x_max": [2, 7], "y_max": [1, 1]}
+    >>> ev = evaluate(box, dict(box, score=[0.9, 0.8]), iou={"car": 0.7, None: [0.5, 0.6]})
+    >>> curve_thresholds(ev), curve_thresholds(ev, 0.6)
+    ({'car': 0.7, 'van': 0.5}, {'van': 0.6})
+    """
+    if iou is None:
+        return {lab: min(evaluation.thresholds_of(lab)) for lab in evaluation.labels}
+    t = evaluation.threshold(iou)
+    return {lab: t for lab in evaluation.labels if t in evaluation.thresholds_of(lab)}
 
 
 def draw_curves(
     evaluation: Any, figure: Any, *, iou: float | None = None, title: str | None = None
 ) -> Any:
-    """Draw the precision-recall curves of every label with truths at ``iou`` on ``figure``.
+    """Draw the precision-recall curves of every label with truths on ``figure``.
 
-    ``iou`` defaults to the lowest threshold; ``title``, when given, heads the figure above
-    the per-threshold caption. The step curve is drawn as evaluated (precision after each
-    ranked detection) with its monotone envelope as a thicker line. Returns the axes.
+    Each label is drawn at ``iou`` or, by default, at its own lowest threshold (see
+    :func:`curve_thresholds`; a label with a threshold of its own, cars at 0.7, is drawn at
+    it); the legend names the threshold when labels differ. ``title``, when given, heads the
+    figure above the caption. The step curve is drawn as evaluated (precision after each
+    ranked detection) with its monotone envelope as a thicker line; the precision axis
+    starts just below the lowest precision drawn. Returns the axes.
 
     Examples
     --------
@@ -39,12 +61,14 @@ def draw_curves(
     """
     import numpy as np
 
-    t = min(evaluation.thresholds) if iou is None else evaluation.threshold(iou)
+    at = curve_thresholds(evaluation, iou)
+    one = len(set(at.values())) <= 1
     ax = figure.subplots()
-    drawn = 0
+    drawn, lowest = 0, 1.0
     for i, lab in enumerate(evaluation.labels):
-        if t not in evaluation.thresholds_of(lab):
+        if lab not in at:
             continue
+        t = at[lab]
         value = evaluation.ap(lab, t)
         if value is None:
             continue
@@ -54,28 +78,30 @@ def draw_curves(
         r = np.r_[0.0, c.recall]
         p = np.r_[c.precision[:1] if len(c.precision) else 0.0, c.precision]
         envelope = np.maximum.accumulate(p[::-1])[::-1]
+        lowest = min(lowest, float(p.min()))
         ax.plot(r, p, color=colour, linestyle=style, linewidth=1.0, alpha=0.45)
-        ax.step(
-            r,
-            envelope,
-            where="pre",
-            color=colour,
-            linestyle=style,
-            linewidth=1.8,
-            label=f"{lab}  AP {value:.3f}",
-        )
+        name = f"{lab}  AP {value:.3f}" + ("" if one else f"  (IoU ≥ {t:g})")
+        ax.step(r, envelope, where="pre", color=colour, linestyle=style, linewidth=1.8, label=name)
         drawn += 1
     ax.set_xlim(0, 1.0)
-    ax.set_ylim(0, 1.02)
+    # the precision axis fits the data: from a tenth below the lowest precision drawn
+    ax.set_ylim(max(0.0, np.floor(lowest * 10 - 0.5) / 10) if drawn else 0.0, 1.02)
     ax.set_xlabel("recall")
     ax.set_ylabel("precision")
-    m = evaluation.mean_ap(t)
-    heading, caption = title, f"precision vs recall at IoU >= {t:g}"
-    if m is not None:
-        caption += f"   (mean AP {m:.3f})"
+    if one and at:
+        t = next(iter(at.values()))
+        caption = f"precision vs recall at IoU ≥ {t:g}"
+        m = evaluation.mean_ap(t)
+        if m is not None:
+            caption += f"   (mean AP {m:.3f})"
+    else:
+        caption = "precision vs recall, each label at its own IoU threshold"
+    left_out = [lab for lab in evaluation.labels if lab not in at]
+    if left_out:
+        caption += f"\nnot evaluated at IoU {iou:g}: {', '.join(left_out)}"
     ax.set_title(caption, fontsize=10, loc="left")
-    if heading:
-        figure.suptitle(heading, fontsize=11, x=0.02, ha="left")
+    if title:
+        figure.suptitle(title, fontsize=11, x=0.02, ha="left")
     ax.grid(True, color="#d9d9d9", linewidth=0.6)
     if drawn:
         ax.legend(loc="lower left", fontsize=8, frameon=False)

@@ -55,7 +55,8 @@ def evaluate(
        non-ignored truths has undefined AP (``None``) and is left out of mAP.
     7. **mAP**: mean over labels at one threshold; ``mean_ap()`` averages each label's mean
        over its thresholds.
-    8. **Buckets** (``size_buckets``, ``range_buckets``: edges ``[0, 1024, 9216, inf]`` or a
+    8. **Buckets** (``size_buckets``, ``range_buckets``: edges such as ``[0, 20, 200, inf]``
+       (ground area in m², from boats and cars to ships) or a
        mapping name -> (low, high), low <= value < high; range = ground distance of the box
        centre from the origin, 3D only): from the same matches, a truth outside the bucket
        counts as ignore; a TP whose truth is outside, or an FP whose own size / range is

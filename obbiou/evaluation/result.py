@@ -74,6 +74,11 @@ def _degrees(error: _bd.OrientationError) -> dict:
     return out
 
 
+def _json_edges(edges: Sequence[float]) -> list[float | None]:
+    """Bucket edges for JSON, which has no infinity: an open end is ``None`` (null)."""
+    return [float(e) if math.isfinite(e) else None for e in edges]
+
+
 def _parse_buckets(spec: Any, what: str) -> dict[str, tuple[float, float]]:
     """Buckets from edges ``[e0, e1, ...]`` or a mapping name -> (low, high); low <= v < high."""
     if spec is None:
@@ -545,8 +550,7 @@ class Evaluation:
             d["bucket"] = {
                 "name": self.bucket[0],
                 "by": self.bucket[1],
-                "low": self.bucket[2],
-                "high": self.bucket[3],
+                **dict(zip(("low", "high"), _json_edges(self.bucket[2:]), strict=True)),
             }
         if breakdowns:
             d["false_positives"] = {k: v._asdict() for k, v in self.false_positives().items()}
@@ -598,9 +602,12 @@ class Evaluation:
             fh.write("\n")
 
     def plot(self, path: str, *, iou: float | None = None, title: str | None = None) -> None:
-        """Precision-recall curves per label at ``iou`` (default: the lowest), PNG at ``path``.
+        """Precision-recall curves per label, PNG at ``path``.
 
-        ``title`` (optional) heads the figure, e.g. the data set and model name.
+        Each label is drawn at ``iou`` or, by default, at its own lowest threshold (a label
+        with a threshold of its own is drawn at it); see
+        :func:`obbiou.evaluation.plots.draw_curves`. ``title`` (optional) heads the figure,
+        e.g. the data set and model name.
         """
         from obbiou.evaluation.plots import plot_curves
 
@@ -655,8 +662,9 @@ def reduce_records(
     ranges = _parse_buckets(range_buckets, "range_buckets")
     if ranges and rec.shape not in ("upright", "axis3"):
         raise InvalidInput("range_buckets", f"need 3D boxes (upright, axis3), got {rec.shape!r}")
-    opts["size_buckets"] = {k: list(v) for k, v in sizes.items()} or None
-    opts["range_buckets"] = {k: list(v) for k, v in ranges.items()} or None
+    # JSON has no infinity: an open end is null
+    opts["size_buckets"] = {k: _json_edges(v) for k, v in sizes.items()} or None
+    opts["range_buckets"] = {k: _json_edges(v) for k, v in ranges.items()} or None
     kw = dict(
         ap=ap, recall_points=recall_points, options=opts, localisation_floor=localisation_floor
     )

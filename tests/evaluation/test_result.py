@@ -268,3 +268,25 @@ def test_summary_holds_the_buckets_and_json_angles_in_degrees():
     e = ev.to_dict()["orientation_error"]
     assert e["max_deg"] == pytest.approx(np.degrees(0.05), abs=1e-9)
     assert e["period_deg"] == pytest.approx(180.0) and "max" not in e
+
+
+def test_open_ended_bucket_is_json_safe():
+    # an edge at infinity (the last bucket open above) becomes null in the JSON, never
+    # "Infinity", which is not JSON (RFC 8259, section 6)
+    truth = {
+        "frame": [0],
+        "label": ["skiff"],
+        "x_min": [0],
+        "y_min": [0],
+        "x_max": [2],
+        "y_max": [2],
+    }
+    ev = evaluate(truth, dict(truth, score=[0.5]), size_buckets=[0, 1, float("inf")])
+    d = json.loads(json.dumps(ev.to_dict(), allow_nan=False))
+    assert d["buckets"]["size"]["1-inf"]["bucket"] == {
+        "name": "1-inf",
+        "by": "size",
+        "low": 1.0,
+        "high": None,
+    }
+    assert d["buckets"]["size"]["1-inf"]["mean_ap"] == 1.0
