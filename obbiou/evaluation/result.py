@@ -36,7 +36,7 @@ from obbiou.evaluation.matching import (
     sorted_codes,
 )
 from obbiou.evaluation.text import SAFETY_NOTE
-from obbiou.tables import comparable_frame_ids
+from obbiou.tables import Table, comparable_frame_ids
 
 __all__ = ["Counts", "Evaluation", "reduce_records"]
 
@@ -99,6 +99,12 @@ class Evaluation:
         The frame ids (sorted), the units the bootstrap resamples.
     records : MatchRecords
         The match records (canonical order).
+    inputs : tuple of Table or None
+        The validated input tables ``(truth, detections)`` whose rows the records number,
+        when the evaluation was built by :func:`evaluate` (or by
+        :func:`~obbiou.distributed.evaluate_distributed` from a file or an in-memory table);
+        ``None`` when built from match records alone. They give the per-row tables their
+        extra columns and are needed by :meth:`confusion`.
     """
 
     def __init__(
@@ -111,8 +117,10 @@ class Evaluation:
         options: dict | None = None,
         bucket: tuple[str, str, float, float] | None = None,
         localisation_floor: float = 0.1,
+        inputs: tuple[Table, Table] | None = None,
     ):
         self.records = records
+        self.inputs = _check_inputs(records, inputs)
         self._spec = spec
         self._ap = ap
         self._recall_points = recall_points
@@ -468,6 +476,111 @@ class Evaluation:
         ti = self._matched_index[sel, k]
         return _bd.orientation_error(r.det_angle[sel], r.truth_angle[ti], r.shape)
 
+    # -- per-row results, operating points, confusion ----------------------------------------
+    def _label_thresholds(self, iou: float | None) -> np.ndarray:
+        """Per label code: the threshold of :meth:`detections` and friends at ``iou``."""
+        if iou is None:
+            return np.array([min(self._spec.of(lab)) for lab in self.labels], dtype=np.float64)
+        return np.full(len(self.labels), self._threshold(iou))
+
+    def _label_columns(self, iou: float | None) -> tuple[np.ndarray, np.ndarray]:
+        ts = self._label_thresholds(iou)
+        return ts, np.array([self._col(t) for t in ts], dtype=np.int64)
+
+    def detections(self, iou: float | None = None) -> Any:
+        """One row per detection, in input order: outcome, matched truth, IoU, cause.
+
+        ``iou=None`` judges each label at the lowest of its own thresholds (with one set of
+        thresholds for all labels: the lowest, as :meth:`false_positives` does; with
+        per-label thresholds, e.g. cars at 0.7 and people at 0.5, each label at its own);
+        a number judges every label at that threshold (one of :attr:`thresholds`: all labels
+        are matched at all of them). The ``threshold`` column says which was used. Counts of
+        the outcomes per label equal :meth:`counts` at that threshold, in a size or range
+        bucket too (detections outside it are ``"ignored"``).
+
+        Columns (details in :mod:`obbiou.evaluation.details`): ``frame``, ``label``,
+        ``score``, ``threshold``, ``outcome`` (``tp``, ``fp``, ``ignored``, ``capped``),
+        ``truth`` (input row of the matched truth, ``<NA>`` if none), ``iou``, ``best_iou``
+        (with any non-ignore truth of the frame, any label), ``cause`` (class of a false
+        positive, as in :meth:`false_positives`; ``<NA>`` otherwise), then the input's extra
+        columns when :attr:`inputs` holds the input tables (not when the evaluation was
+        built from match records alone). The index ``row`` is the input row.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0, 20.0], "cy": [0.0, 0.0], "width": [4.0] * 2,
+        ...        "height": [2.0] * 2, "angle": [0.0] * 2}
+        >>> truth = {"frame": ["q1", "q1"], "label": ["vessel", "crane"], **box}
+        >>> dets = {"frame": ["q1", "q1"], "label": ["vessel", "vessel"], "score": [0.8, 0.7],
+        ...         "note": ["ok", "crane?"], **box}
+        >>> evaluate(truth, dets).detections()[["label", "outcome", "truth", "cause", "note"]]
+              label outcome  truth        cause    note
+        row
+        0    vessel      tp      0         <NA>      ok
+        1    vessel      fp   <NA>  wrong_label  crane?
+
+        No detections: an empty table with the same columns.
+
+        >>> evaluate(truth, {k: v[:0] for k, v in dets.items()}).detections().shape
+        (0, 10)
+        """
+        from obbiou.evaluation.details import detection_table
+
+        ts, cols = self._label_columns(iou)
+        extra = self.inputs[1].extra if self.inputs is not None else None
+        return detection_table(
+            self.records,
+            self._outcome,
+            cols[self._dlabel] if len(cols) else np.zeros(0, np.int64),
+            ts[self._dlabel] if len(ts) else np.zeros(0),
+            self._matched_index,
+            self._floor,
+            extra,
+        )
+
+    def truths(self, iou: float | None = None) -> Any:
+        """One row per truth, in input order: outcome, matching detection, IoU, cause.
+
+        ``iou`` as for :meth:`detections`. Columns: ``frame``, ``label``, ``ignore``,
+        ``threshold``, ``outcome`` (``matched``; ``missed``; ``ignore`` for ignore truths and,
+        in a bucket, truths outside it), ``detection`` (input row of the detection that took
+        it, ``<NA>`` if none), ``iou``, ``best_iou`` (with any evaluated detection of the
+        frame, any label), ``cause`` (class of a miss, as in :meth:`misses`; ``<NA>``
+        otherwise), then the extra columns as for :meth:`detections`. Per label,
+        ``matched`` + ``missed`` = ``counts().truths``, ``missed`` = ``counts().missed``.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0, 9.0], "cy": [0.0, 0.0], "width": [4.0] * 2,
+        ...        "height": [2.0] * 2, "angle": [0.0] * 2}
+        >>> truth = {"frame": [3, 3], "label": ["container"] * 2, "ignore": [False, True],
+        ...          **box}
+        >>> evaluate(truth, {k: [] for k in ("frame", "label", "score", *box)}).truths()[
+        ...     ["ignore", "outcome", "detection", "cause"]]
+             ignore  outcome  detection         cause
+        row
+        0     False   missed       <NA>  not_detected
+        1      True   ignore       <NA>          <NA>
+        """
+        from obbiou.evaluation.details import truth_table
+
+        ts, cols = self._label_columns(iou)
+        extra = self.inputs[0].extra if self.inputs is not None else None
+        none_i, none_f = np.zeros(0, np.int64), np.zeros(0)
+        return truth_table(
+            self.records,
+            self._positive,
+            cols[self._tlabel] if len(cols) else none_i,
+            ts[self._tlabel] if len(ts) else none_f,
+            self.records.det_outcome,
+            cols[self._dlabel] if len(cols) else none_i,
+            self._matched_index,
+            self._floor,
+            extra,
+        )
+
     # -- reports -----------------------------------------------------------------------------
     def summary(self) -> str:
         """A readable text table: one line per label and threshold, then the means."""
@@ -573,6 +686,7 @@ def reduce_records(
     range_buckets: Any = None,
     localisation_floor: float = 0.1,
     options: dict | None = None,
+    inputs: tuple[Table, Table] | None = None,
 ) -> Evaluation:
     """The reduce step: AP, counts and breakdowns from match records.
 
@@ -588,6 +702,9 @@ def reduce_records(
         As for :func:`evaluate`.
     options : dict, optional
         Options of the map step to record in the protocol (``max_detections``, ``degrees``).
+    inputs : (Table, Table), optional
+        The validated truth and detection tables the records were matched from (rows
+        numbered as in the records); kept as :attr:`Evaluation.inputs`.
 
     Returns
     -------
@@ -606,7 +723,11 @@ def reduce_records(
     opts["size_buckets"] = {k: list(v) for k, v in sizes.items()} or None
     opts["range_buckets"] = {k: list(v) for k, v in ranges.items()} or None
     kw = dict(
-        ap=ap, recall_points=recall_points, options=opts, localisation_floor=localisation_floor
+        ap=ap,
+        recall_points=recall_points,
+        options=opts,
+        localisation_floor=localisation_floor,
+        inputs=inputs,
     )
     result = Evaluation(rec, spec, **kw)
     for by, group in (("size", sizes), ("range", ranges)):
@@ -616,6 +737,23 @@ def reduce_records(
                 for name, (lo, hi) in group.items()
             }
     return result
+
+
+def _check_inputs(
+    rec: MatchRecords, inputs: tuple[Table, Table] | None
+) -> tuple[Table, Table] | None:
+    """The input tables, checked to hold every row the records number."""
+    if inputs is None:
+        return None
+    truth, dets = inputs
+    for rows, table, what in ((rec.truth_row, truth, "truth"), (rec.det_row, dets, "detections")):
+        if len(rows) != len(table) or (len(rows) and rows.max() >= len(table)):
+            raise InvalidInput(
+                "inputs",
+                f"the {what} table has {len(table)} rows but the records number "
+                f"{len(rows)} rows up to {int(rows.max()) if len(rows) else 0}",
+            )
+    return truth, dets
 
 
 def _check_whole_frames(rec: MatchRecords) -> None:
