@@ -581,6 +581,79 @@ class Evaluation:
             extra,
         )
 
+    def _operating(self, iou: float | None, pick) -> Any:
+        from obbiou.evaluation.operating import operating_table
+
+        ts = self._label_thresholds(iou)
+        points = {}
+        for i, lab in enumerate(self.labels):
+            idx = self._by_label[lab]
+            npos = int(self._positive[self._truths_of[lab]].sum())
+            out = self._outcome[idx, self._col(ts[i])]
+            points[lab] = pick(self.records.det_score[idx], out, npos, float(ts[i]))
+        return operating_table(points)
+
+    def at_score(self, score: float, iou: float | None = None) -> Any:
+        """Per label: precision, recall, F1, TP, FP and missed keeping detections >= ``score``.
+
+        A DataFrame indexed by label with columns ``threshold``, ``score`` (the cut),
+        ``detections`` (kept and evaluated), ``tp``, ``fp``, ``ignored``, ``missed``,
+        ``truths``, ``precision``, ``recall``, ``f1``; ``<NA>`` where a value is undefined
+        (precision with nothing kept, recall without truths). ``iou`` as for
+        :meth:`detections` (``None``: each label at the lowest of its own thresholds).
+        Exact without re-matching: see :mod:`obbiou.evaluation.operating`. Capped
+        detections are never kept; in a bucket, the bucket's outcomes are used.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0, 10.0, 20.0], "cy": [0.0] * 3, "width": [4.0] * 3,
+        ...        "height": [2.0] * 3, "angle": [0.0] * 3}
+        >>> truth = {"frame": [0] * 3, "label": ["vessel"] * 3, **box}
+        >>> dets = {"frame": [0] * 3, "label": ["vessel"] * 3, "score": [0.9, 0.8, 0.7],
+        ...         **box, "cy": [0.0, 50.0, 0.0]}  # the 0.8 is a false alarm
+        >>> ev = evaluate(truth, dets)
+        >>> ev.at_score(0.75)[["tp", "fp", "missed", "precision", "recall", "f1"]]
+                tp  fp  missed  precision    recall   f1
+        label
+        vessel   1   1       2        0.5  0.333333  0.4
+
+        A cut above every score keeps nothing: precision undefined.
+
+        >>> row = ev.at_score(0.95).loc["vessel"]
+        >>> int(row.detections), row.precision, float(row.f1)
+        (0, <NA>, 0.0)
+        """
+        from obbiou.evaluation.operating import at_cut
+
+        cut = _finite(score, "score")
+        return self._operating(iou, lambda s, o, n, t: at_cut(s, o, n, cut, t))
+
+    def best_score(self, iou: float | None = None) -> Any:
+        """Per label: the score cut with the highest F1, and the values there.
+
+        The same columns as :meth:`at_score`. Cuts are the scores of the label's TP and FP
+        detections; of cuts with equal F1 the highest score is reported (the fewest
+        detections kept). A label without TP or FP detections has ``score`` ``<NA>``.
+        ``iou`` as for :meth:`detections`.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0, 10.0, 20.0], "cy": [0.0] * 3, "width": [4.0] * 3,
+        ...        "height": [2.0] * 3, "angle": [0.0] * 3}
+        >>> truth = {"frame": [0] * 3, "label": ["vessel"] * 3, **box}
+        >>> dets = {"frame": [0] * 3, "label": ["vessel"] * 3, "score": [0.9, 0.8, 0.7],
+        ...         **box, "cy": [0.0, 50.0, 0.0]}
+        >>> evaluate(truth, dets).best_score()[["score", "tp", "fp", "f1"]]
+                score  tp  fp        f1
+        label
+        vessel    0.7   2   1  0.666667
+        """
+        from obbiou.evaluation.operating import best_cut
+
+        return self._operating(iou, best_cut)
+
     # -- reports -----------------------------------------------------------------------------
     def summary(self) -> str:
         """A readable text table: one line per label and threshold, then the means."""
@@ -737,6 +810,16 @@ def reduce_records(
                 for name, (lo, hi) in group.items()
             }
     return result
+
+
+def _finite(value: Any, what: str) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InvalidInput(what, f"expected a number, got {value!r}") from None
+    if math.isnan(v):
+        raise InvalidInput(what, "expected a number, got NaN")
+    return v
 
 
 def _check_inputs(
