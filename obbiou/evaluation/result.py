@@ -654,6 +654,66 @@ class Evaluation:
 
         return self._operating(iou, best_cut)
 
+    def confusion(self, iou: float | None = None) -> Any:
+        """Truth label x detected label, matched at ``iou`` by IoU alone, labels ignored.
+
+        The same greedy rule as the protocol with every label made one (see
+        :mod:`obbiou.evaluation.confusion`): rows are truth labels plus ``(background)``
+        (detections that took no truth: false alarms and duplicates), columns detected labels
+        plus ``(missed)`` (non-ignore truths no detection took). Ignore truths have no row;
+        detections absorbed by one (IoU >= ``iou`` with an ignore truth, no truth taken) and
+        capped detections are left out and counted in ``attrs["ignored"]`` /
+        ``attrs["capped"]``. ``iou=None``: the lowest threshold evaluated (one threshold for
+        all labels even with per-label thresholds, since labels are ignored); any number in
+        (0, 1] may be given, as the detections are matched again.
+
+        Needs the boxes: available when the evaluation holds its input tables
+        (:attr:`inputs`), not when it was built from match records alone, nor for a size or
+        range bucket.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0, 10.0], "cy": [0.0] * 2, "width": [4.0] * 2,
+        ...        "height": [2.0] * 2, "angle": [0.0] * 2}
+        >>> truth = {"frame": [0, 0], "label": ["crane", "vessel"], "ignore": [False, True],
+        ...          **box}
+        >>> dets = {"frame": [0, 0], "label": ["vessel", "vessel"], "score": [0.9, 0.8],
+        ...         **box}
+        >>> table = evaluate(truth, dets).confusion()
+        >>> table
+        detected      crane  vessel  (missed)
+        truth
+        crane             0       1         0
+        vessel            0       0         0
+        (background)      0       0         0
+        >>> table.attrs["ignored"]  # the detection on the ignore truth
+        1
+        """
+        from obbiou.evaluation.confusion import confusion_table
+
+        if self.inputs is None or self.bucket is not None:
+            where = (
+                "a size or range bucket"
+                if self.bucket is not None
+                else ("an evaluation built from match records alone")
+            )
+            raise InvalidInput(
+                "confusion",
+                f"needs the boxes, which {where} does not hold; call it on the result of "
+                "evaluate()",
+            )
+        if iou is None:
+            t = min(self.thresholds)
+        else:
+            values = parse_thresholds(iou).values
+            if len(values) != 1:
+                raise InvalidInput("iou", f"expected one threshold, got {iou!r}")
+            t = values[0]
+        truth, dets = self.inputs
+        cap = self.options.get("max_detections")
+        return confusion_table(truth, dets, self.labels, t, max_detections=cap)
+
     # -- reports -----------------------------------------------------------------------------
     def summary(self) -> str:
         """A readable text table: one line per label and threshold, then the means."""
