@@ -36,6 +36,7 @@ An extra column whose name is one of these gets the suffix ``_input`` (with a wa
 from __future__ import annotations
 
 import warnings
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -44,7 +45,14 @@ from obbiou.errors import InvalidInput
 from obbiou.evaluation import breakdown as _bd
 from obbiou.evaluation.matching import CAPPED, FP, IGNORED, TP
 
-__all__ = ["detection_table", "truth_table", "DETECTION_OUTCOMES", "TRUTH_OUTCOMES"]
+__all__ = [
+    "detection_table",
+    "truth_table",
+    "details_paths",
+    "write_details",
+    "DETECTION_OUTCOMES",
+    "TRUTH_OUTCOMES",
+]
 
 #: Outcome names of the detection table, indexed by the outcome codes (FP, TP, IGNORED, CAPPED).
 DETECTION_OUTCOMES = {FP: "fp", TP: "tp", IGNORED: "ignored", CAPPED: "capped"}
@@ -230,3 +238,50 @@ def truth_table(
         index=pd.Index(r.truth_row, name="row"),
     ).iloc[order]
     return _with_extras(table, extra, r.truth_row[order])
+
+
+def details_paths(path: Any) -> tuple[Path, Path]:
+    """The two files :func:`write_details` writes for ``path``: ``.detections`` and
+    ``.truths`` before the suffix, which names the format (CSV, Parquet or JSON Lines).
+
+    Examples
+    --------
+    >>> [p.name for p in details_paths("runs/harbour.csv")]
+    ['harbour.detections.csv', 'harbour.truths.csv']
+    >>> details_paths("rows.xlsx")
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidTable: rows.xlsx: unknown table format '.xlsx'; expected .csv, .parquet
+    (.pq) or .jsonl (.ndjson)
+    """
+    from obbiou.tables import table_format
+
+    table_format(path)  # an unknown suffix fails here, before any work
+    p = Path(path)
+    return p.with_name(f"{p.stem}.detections{p.suffix}"), p.with_name(f"{p.stem}.truths{p.suffix}")
+
+
+def write_details(evaluation: Any, path: Any, iou: float | None = None) -> tuple[Path, Path]:
+    """Write :meth:`Evaluation.detections` and :meth:`Evaluation.truths` to the two files of
+    :func:`details_paths`; the index becomes the first column, ``row``. Undefined values
+    (``<NA>``) are empty cells in CSV and nulls in Parquet and JSON Lines.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> from obbiou.evaluation import evaluate
+    >>> box = {"cx": [0.0], "cy": [0.0], "width": [4.0], "height": [2.0], "angle": [0.0]}
+    >>> ev = evaluate({"frame": [1], "label": ["van"], **box},
+    ...               {"frame": [1], "label": ["van"], "score": [0.9], **box})
+    >>> d, t = write_details(ev, os.path.join(tempfile.mkdtemp(), "rows.csv"))
+    >>> print(open(d).read())
+    row,frame,label,score,threshold,outcome,truth,iou,best_iou,cause
+    0,1,van,0.9,0.5,tp,0,1.0,1.0,
+    <BLANKLINE>
+    """
+    from obbiou.tables import write_table
+
+    dpath, tpath = details_paths(path)
+    write_table(evaluation.detections(iou).reset_index(), dpath)
+    write_table(evaluation.truths(iou).reset_index(), tpath)
+    return dpath, tpath
