@@ -6,9 +6,11 @@ from fractions import Fraction
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from obbiou.evaluation import MatchRecords, evaluate, match_frames, reduce_records
-from tests.evaluation.test_matching import axis_table, rotated_scene
+from tests.evaluation.test_matching import axis_table, frames_strategy, rotated_scene
 
 
 def hand_case():
@@ -124,6 +126,22 @@ def test_counts_agree_with_counts(options):
     for e in evs:
         for iou in (None, *e.thresholds):
             check_counts(e, iou)
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    frames_strategy(),
+    st.lists(st.sampled_from([0.1, 0.5, 0.7, 1.0]), min_size=1, max_size=3, unique=True),
+    st.sampled_from([None, 1, 3]),
+)
+def test_counts_agree_on_adversarial_frames(data, thresholds, cap):
+    # the shared matching strategy: touching, nested, identical, zero-size boxes, score ties
+    truth_rows, det_rows = data
+    truth = axis_table(truth_rows)
+    truth.setdefault("ignore", [])
+    ev = evaluate(truth, axis_table(det_rows, score=True), iou=thresholds, max_detections=cap)
+    for iou in (None, *ev.thresholds):
+        check_counts(ev, iou)
 
 
 def test_causes_agree_with_the_breakdowns():
