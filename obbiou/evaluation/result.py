@@ -1,8 +1,11 @@
 """The result of an evaluation: :class:`Evaluation` (AP, counts, intervals, breakdowns) and
 :class:`Counts`, and the reduce step that builds it from match records (:func:`reduce_records`).
 
-An :class:`Evaluation` is built from match records alone (no boxes), so the same numbers come
-out however the map step was split (in process, or on a cluster: :mod:`obbiou.distributed`).
+An :class:`Evaluation` computes its numbers from match records alone (no boxes), so the same
+numbers come out however the map step was split (in process, or on a cluster:
+:mod:`obbiou.distributed`); :func:`evaluate` also keeps the input tables
+(:attr:`Evaluation.inputs`) for the extra columns of the per-row tables and for
+:meth:`Evaluation.confusion`, which matches again with the labels ignored.
 Text and pictures of a result are in :mod:`obbiou.evaluation.text` and
 :mod:`obbiou.evaluation.plots`, which use only its public methods.
 """
@@ -692,17 +695,15 @@ class Evaluation:
         """
         from obbiou.evaluation.confusion import confusion_table
 
-        if self.inputs is None or self.bucket is not None:
-            where = (
-                "a size or range bucket"
-                if self.bucket is not None
-                else ("an evaluation built from match records alone")
+        if self.bucket is not None:
+            reason = "not available for a size or range bucket; call it on the whole evaluation"
+            raise InvalidInput("confusion", reason)
+        if self.inputs is None:
+            reason = (
+                "needs the boxes, which an evaluation built from match records alone does not "
+                "hold; call it on the result of evaluate()"
             )
-            raise InvalidInput(
-                "confusion",
-                f"needs the boxes, which {where} does not hold; call it on the result of "
-                "evaluate()",
-            )
+            raise InvalidInput("confusion", reason)
         if iou is None:
             t = min(self.thresholds)
         else:
