@@ -5,7 +5,13 @@ from __future__ import annotations
 import argparse
 import sys
 
-from obbiou.cli.options import add_common, add_matching, bucket_edges, matching_options
+from obbiou.cli.options import (
+    add_common,
+    add_matching,
+    bucket_edges,
+    finite_float,
+    matching_options,
+)
 
 SUMMARY = (
     "Evaluate detections against ground truth: matching, precision/recall, AP per label "
@@ -15,6 +21,7 @@ EXAMPLE = (
     "  obbiou evaluate truth.csv detections.csv --iou 0.5:0.95:0.05 \\\n"
     "      --json result.json --plot curves.png\n"
     "  obbiou evaluate truth.parquet dets.parquet --iou 0.5 --iou crane=0.7 --interval\n"
+    "  obbiou evaluate truth.csv dets.csv --at-score 0.5 --details rows.parquet\n"
     "  obbiou evaluate truth/ dets/ --workers 2      # folders of Parquet files, on Dask"
 )
 
@@ -58,8 +65,22 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--level", type=float, default=0.95, help="confidence level for --interval")
     p.add_argument(
         "--details",
-        action="store_true",
-        help="also print the causes of false positives and misses and the orientation error",
+        nargs="?",
+        const=True,
+        default=None,
+        metavar="PATH",
+        help="also print the causes of false positives and misses and the orientation error; "
+        "with PATH (after the two tables) also write one row per detection and per truth to "
+        "PATH with .detections / .truths before the suffix (.csv, .parquet or .jsonl), e.g. "
+        "rows.csv -> rows.detections.csv, rows.truths.csv",
+    )
+    p.add_argument(
+        "--at-score",
+        type=finite_float,
+        metavar="S",
+        default=None,
+        help="also print precision, recall and F1 per label keeping detections scoring >= S "
+        "(and put them into --json under 'at_score')",
     )
     p.add_argument("--seed", type=int, default=0, help="seed of the bootstrap")
     p.add_argument("--json", metavar="PATH", default=None, help="write the full result as JSON")
@@ -92,8 +113,12 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from obbiou.evaluation import evaluate
+    from obbiou.evaluation.details import details_paths, write_details
     from obbiou.evaluation.text import details_text, interval_text
 
+    rows_path = args.details if isinstance(args.details, str) else None
+    if rows_path is not None:
+        details_paths(rows_path)  # a bad suffix fails before any work
     opts = matching_options(args)
     sizes = bucket_edges(args.size_buckets, "--size-buckets")
     ranges = bucket_edges(args.range_buckets, "--range-buckets")
@@ -120,8 +145,19 @@ def run(args: argparse.Namespace) -> int:
     if args.details:
         print()
         print(details_text(result))
+    operating = None
+    if args.at_score is not None:
+        from obbiou.evaluation.operating import as_dict, operating_text
+
+        table = result.at_score(args.at_score)
+        operating = {"score": args.at_score, "labels": as_dict(table)}
+        print()
+        print(operating_text(table, f"at score >= {args.at_score:g}"))
+    if rows_path is not None:
+        written = write_details(result, rows_path)
+        print(f"wrote {written[0]} and {written[1]}", file=sys.stderr)
     if args.json:
-        result.to_json(args.json, interval=interval)
+        result.to_json(args.json, interval=interval, extra={"at_score": operating})
         print(f"wrote {args.json}", file=sys.stderr)
     if args.plot:
         result.plot(args.plot, iou=args.plot_iou)

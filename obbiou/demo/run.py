@@ -11,6 +11,9 @@ with bootstrap intervals (:func:`obbiou.evaluation.evaluate`), compares it with 
 * ``<scenario>/truth.csv``, ``raw_<version>.csv``, ``<version>.csv`` — the tables, so the
   command line can be tried on them;
 * ``<scenario>/pr_curves.png`` — precision–recall curves;
+* ``<scenario>/rows.detections.csv``, ``rows.truths.csv`` — one row per detection and per
+  truth (:mod:`obbiou.demo.results`, which also puts a few of them and the operating points
+  into the report);
 * ``<scenario>/scene.png`` — one frame with truths and detections drawn in the palette
   (the warehouse from above: bird's-eye view).
 
@@ -255,6 +258,11 @@ def run_demo(
             frame=frame,
         )
         lines += section
+        from obbiou.demo.results import results_section
+
+        rows_lines, rows_files, rows_doc = results_section(ev, head, folder)
+        lines += rows_lines
+        files.update({f"{name}/{k}": p for k, p in rows_files.items()})
         aps = ", ".join(f"{lab} {_fmt(ev.ap(lab, head))}" for lab in ev.labels)
         lo, hi = cmp.interval
         say(
@@ -301,6 +309,7 @@ def run_demo(
             },
             "scene_frame": frame,
             "scene_iou": head,
+            **rows_doc,
         }
     doc["mean_ap"] = mean_ap
     seconds = time.perf_counter() - start

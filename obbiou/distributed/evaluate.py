@@ -75,9 +75,11 @@ def _frame_buckets(frame: np.ndarray, n_buckets: int) -> np.ndarray:
 def _split_frames(
     part: Any, role: str, shape: str | None, degrees: bool, n_buckets: int
 ) -> tuple[Any, ...]:
-    """On a worker: read and validate one partition, cut it into per-bucket tables.
+    """On a worker: read and validate one partition, cut it into per-bucket pieces.
 
-    Extra columns are dropped here: matching does not use them, so they do not travel.
+    Each piece is a table and the rows it holds within the partition (so that the records
+    can name each row's place in the whole input). Extra columns are dropped here: matching
+    does not use them, so they do not travel.
     """
     from obbiou.tables import read_table
 
@@ -86,14 +88,25 @@ def _split_frames(
     buckets = _frame_buckets(table.frame, n_buckets)
     order = np.argsort(buckets, kind="stable")  # stable: input order kept within a bucket
     cuts = np.searchsorted(buckets[order], np.arange(n_buckets + 1))
-    return tuple(table.take(order[cuts[k] : cuts[k + 1]]) for k in range(n_buckets))
+    rows = [order[cuts[k] : cuts[k + 1]] for k in range(n_buckets)]
+    return tuple((table.take(r), r) for r in rows)
 
 
-def _join_tables(pieces: Sequence[Any]) -> Any:
-    """One table from per-partition pieces, in partition order (that is, input order)."""
+def _row_count(split: Sequence[Any]) -> int:
+    """On a worker: the number of rows of one partition, from its pieces."""
+    return sum(len(rows) for _, rows in split)
+
+
+def _join_tables(pieces: Sequence[Any], offsets: Sequence[int]) -> Any:
+    """One table from per-partition pieces, in partition order (that is, input order), and
+    the row of each in the whole input (``offsets``: the first row of each partition)."""
     from obbiou.shapes import Boxes
     from obbiou.tables import Table
 
+    rows = np.concatenate(
+        [np.zeros(0, np.int64)] + [o + r for (_, r), o in zip(pieces, offsets, strict=True)]
+    ).astype(np.int64)
+    pieces = [p for p, _ in pieces]
     first = pieces[0]
     layouts = {p.shape for p in pieces if len(p)}
     if len(layouts) > 1:
@@ -107,7 +120,7 @@ def _join_tables(pieces: Sequence[Any]) -> Any:
     frames = [p.frame for p in pieces]
     if any(f.dtype.kind not in "iu" for f in frames):
         frames = [f.astype(object) for f in frames]
-    return Table(
+    table = Table(
         first.role,
         np.concatenate(frames),
         np.concatenate([p.label for p in pieces]),
@@ -117,6 +130,7 @@ def _join_tables(pieces: Sequence[Any]) -> Any:
         {},
         first.source,
     )
+    return table, rows
 
 
 def _match_bucket(
@@ -125,13 +139,22 @@ def _match_bucket(
     thresholds: Any,
     shape: str | None,
     match_options: dict[str, Any],
+    offsets: dict[str, Sequence[int]],
 ) -> Any:
     """On a worker: match all frames of one bucket; return their compact match records."""
     from obbiou.evaluation.matching import match_frames
 
-    truth = _join_tables(truth_pieces)
-    detections = _join_tables(detection_pieces)
-    records = match_frames(truth, detections, thresholds=thresholds, shape=shape, **match_options)
+    truth, truth_rows = _join_tables(truth_pieces, offsets["truth"])
+    detections, det_rows = _join_tables(detection_pieces, offsets["detections"])
+    records = match_frames(
+        truth,
+        detections,
+        thresholds=thresholds,
+        shape=shape,
+        truth_rows=truth_rows,
+        detection_rows=det_rows,
+        **match_options,
+    )
     return pack_records(records)
 
 
@@ -233,6 +256,7 @@ def evaluate_distributed(
     """
     from obbiou.evaluation import reduce_records
     from obbiou.evaluation.matching import parse_thresholds
+    from obbiou.tables import Table
 
     if iou is None:
         raise InvalidInput("iou", "give a threshold, e.g. 0.5")
@@ -269,6 +293,13 @@ def evaluate_distributed(
                 timeout=timeout,
                 collect=False,
             )
+            # first input row of each partition: records name rows of the whole input
+            offsets = {
+                k: np.r_[0, np.cumsum(cl.gather([cl.submit(_row_count, s) for s in fs]))]
+                .astype(np.int64)[:-1]
+                .tolist()
+                for k, fs in splits.items()
+            }
             pieces = {
                 k: [[cl.submit(item, s, b, pure=False) for b in range(n_buckets)] for s in fs]
                 for k, fs in splits.items()
@@ -281,6 +312,7 @@ def evaluate_distributed(
                     thresholds,
                     shape,
                     match_options,
+                    offsets,
                     pure=False,
                 )
                 for b in range(n_buckets)
@@ -295,7 +327,9 @@ def evaluate_distributed(
             )
         finally:
             release(held)
-    # The same reduce call as obbiou.evaluation.evaluate makes, on the same records.
+    # The same reduce call as obbiou.evaluation.evaluate makes, on the same records; the
+    # tables read here (a file, an in-memory table) are kept as evaluate keeps them.
+    read = tuple(roles[k] for k in ("truth", "detections"))
     return reduce_records(
         [unpack_records(r) for r in records],
         iou=thresholds,
@@ -305,4 +339,5 @@ def evaluate_distributed(
         range_buckets=range_buckets,
         localisation_floor=localisation_floor,
         options={"max_detections": max_detections, "degrees": degrees},
+        inputs=read if all(isinstance(t, Table) for t in read) else None,
     )

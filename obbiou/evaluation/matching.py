@@ -10,7 +10,7 @@ frames were split, as long as each frame lies wholly in one part.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, fields
+from dataclasses import dataclass, fields, replace
 from typing import Any
 
 import numpy as np
@@ -133,16 +133,18 @@ class MatchRecords:
     """Compact per-detection and per-truth outcomes of matching (the map step's output).
 
     Detections (one row each): ``det_frame`` (frame id), ``det_rank`` (position among the
-    frame's detections in input order), ``det_label``, ``det_score``, ``det_size``
-    (area / volume), ``det_range`` (ground distance of the centre from the origin, 3D;
-    NaN in 2D), ``det_angle`` (orientation, NaN for axis-aligned layouts), ``det_aspect``
-    (long side over short side of a rectangle or polygon, NaN otherwise), and per threshold
-    (columns of ``thresholds``): ``det_outcome`` (0 FP, 1 TP, 2 ignored, 3 capped),
-    ``det_truth`` (rank within the frame of the matched truth, or of the ignore truth that
-    absorbed it; -1 if none) and ``det_iou`` (its IoU); ``det_best_same`` / ``det_best_other``
-    (highest IoU with any non-ignore truth of the same / another label in the frame).
+    frame's detections in input order), ``det_row`` (row of the detection in the whole input
+    table, from 0: see ``detection_rows`` of :func:`match_frames`), ``det_label``,
+    ``det_score``, ``det_size`` (area / volume), ``det_range`` (ground distance of the
+    centre from the origin, 3D; NaN in 2D), ``det_angle`` (orientation, NaN for axis-aligned
+    layouts), ``det_aspect`` (long side over short side of a rectangle or polygon, NaN
+    otherwise), and per threshold (columns of ``thresholds``): ``det_outcome`` (0 FP, 1 TP,
+    2 ignored, 3 capped), ``det_truth`` (rank within the frame of the matched truth, or of
+    the ignore truth that absorbed it; -1 if none) and ``det_iou`` (its IoU);
+    ``det_best_same`` / ``det_best_other`` (highest IoU with any non-ignore truth of the
+    same / another label in the frame).
 
-    Truths (one row each): ``truth_frame``, ``truth_rank``, ``truth_label``,
+    Truths (one row each): ``truth_frame``, ``truth_rank``, ``truth_row``, ``truth_label``,
     ``truth_ignore``, ``truth_size``, ``truth_range``, ``truth_angle``, ``truth_aspect`` and
     ``truth_matched`` (per threshold), ``truth_best_same`` / ``truth_best_other`` (highest IoU
     with any evaluated detection of the same / another label in the frame).
@@ -152,6 +154,7 @@ class MatchRecords:
     shape: str
     det_frame: np.ndarray
     det_rank: np.ndarray
+    det_row: np.ndarray
     det_label: np.ndarray
     det_score: np.ndarray
     det_size: np.ndarray
@@ -165,6 +168,7 @@ class MatchRecords:
     det_best_other: np.ndarray
     truth_frame: np.ndarray
     truth_rank: np.ndarray
+    truth_row: np.ndarray
     truth_label: np.ndarray
     truth_ignore: np.ndarray
     truth_size: np.ndarray
@@ -326,6 +330,8 @@ def match_frames(
     degrees: bool = False,
     progress: bool = False,
     chunk: int = 200_000,
+    truth_rows: Any = None,
+    detection_rows: Any = None,
 ) -> MatchRecords:
     """Match detections to truths in every frame at every threshold (the map step).
 
@@ -355,6 +361,11 @@ def match_frames(
         Show a progress bar (tqdm).
     chunk : int
         About this many detections per batched IoU call (bounds memory).
+    truth_rows, detection_rows : array_like of int, optional
+        The row of each table row in the whole input, recorded as ``truth_row`` /
+        ``det_row`` (default: 0, 1, ... in the order given). Give them when the tables
+        passed are pieces of larger inputs whose records are concatenated later, so that
+        per-row results (:meth:`Evaluation.detections`) find each row's place in the input.
 
     Returns
     -------
@@ -381,7 +392,23 @@ def match_frames(
     thr = np.asarray(parse_thresholds(thresholds).values, dtype=np.float64)
     if max_detections is not None and (int(max_detections) != max_detections or max_detections < 1):
         raise InvalidInput("max_detections", f"expected a positive integer, got {max_detections!r}")
-    return _match_tables(truth, detections, thr, layout, max_detections, progress, chunk)
+    truth_row = _rows(truth_rows, len(truth), "truth_rows")
+    det_row = _rows(detection_rows, len(detections), "detection_rows")
+    records = _match_tables(truth, detections, thr, layout, max_detections, progress, chunk)
+    return replace(records, truth_row=truth_row, det_row=det_row)
+
+
+def _rows(rows: Any, n: int, what: str) -> np.ndarray:
+    """Input row numbers: 0..n-1 by default, else ``rows`` checked (n distinct integers >= 0)."""
+    if rows is None:
+        return np.arange(n, dtype=np.int64)
+    values = np.asarray(rows)
+    if values.shape != (n,) or (n and values.dtype.kind not in "iu"):
+        raise InvalidInput(what, f"expected {n} integer row numbers, got shape {values.shape}")
+    values = values.astype(np.int64)
+    if n and (values.min() < 0 or len(np.unique(values)) != n):
+        raise InvalidInput(what, "row numbers must be distinct and >= 0")
+    return values
 
 
 def _match_tables(
@@ -494,6 +521,7 @@ def _match_tables(
         shape=layout,
         det_frame=dframe,
         det_rank=drank,
+        det_row=np.arange(n, dtype=np.int64),
         det_label=dets.label.astype(object),
         det_score=dets.score.astype(np.float64),
         det_size=np.asarray(dsize, dtype=np.float64),
@@ -507,6 +535,7 @@ def _match_tables(
         det_best_other=best_other[dinv],
         truth_frame=tframe,
         truth_rank=trank,
+        truth_row=np.arange(m, dtype=np.int64),
         truth_label=truth.label.astype(object),
         truth_ignore=truth.ignore.astype(bool),
         truth_size=np.asarray(tsize, dtype=np.float64),

@@ -134,6 +134,7 @@ def evaluate(
         range_buckets=range_buckets,
         localisation_floor=localisation_floor,
         options={"max_detections": max_detections, "degrees": degrees},
+        inputs=(truth_t, det_t),
     )
 
 

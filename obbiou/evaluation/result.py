@@ -1,8 +1,11 @@
 """The result of an evaluation: :class:`Evaluation` (AP, counts, intervals, breakdowns) and
 :class:`Counts`, and the reduce step that builds it from match records (:func:`reduce_records`).
 
-An :class:`Evaluation` is built from match records alone (no boxes), so the same numbers come
-out however the map step was split (in process, or on a cluster: :mod:`obbiou.distributed`).
+An :class:`Evaluation` computes its numbers from match records alone (no boxes), so the same
+numbers come out however the map step was split (in process, or on a cluster:
+:mod:`obbiou.distributed`); :func:`evaluate` also keeps the input tables
+(:attr:`Evaluation.inputs`) for the extra columns of the per-row tables and for
+:meth:`Evaluation.confusion`, which matches again with the labels ignored.
 Text and pictures of a result are in :mod:`obbiou.evaluation.text` and
 :mod:`obbiou.evaluation.plots`, which use only its public methods.
 """
@@ -36,7 +39,7 @@ from obbiou.evaluation.matching import (
     sorted_codes,
 )
 from obbiou.evaluation.text import SAFETY_NOTE
-from obbiou.tables import comparable_frame_ids
+from obbiou.tables import Table, comparable_frame_ids
 
 __all__ = ["Counts", "Evaluation", "reduce_records"]
 
@@ -115,6 +118,12 @@ class Evaluation:
         The frame ids (sorted), the units the bootstrap resamples.
     records : MatchRecords
         The match records (canonical order).
+    inputs : tuple of Table or None
+        The validated input tables ``(truth, detections)`` whose rows the records number,
+        when the evaluation was built by :func:`evaluate` (or by
+        :func:`~obbiou.distributed.evaluate_distributed` from a file or an in-memory table);
+        ``None`` when built from match records alone. They give the per-row tables their
+        extra columns and are needed by :meth:`confusion`.
     """
 
     def __init__(
@@ -127,8 +136,10 @@ class Evaluation:
         options: dict | None = None,
         bucket: tuple[str, str, float, float] | None = None,
         localisation_floor: float = 0.1,
+        inputs: tuple[Table, Table] | None = None,
     ):
         self.records = records
+        self.inputs = _check_inputs(records, inputs)
         self._spec = spec
         self._ap = ap
         self._recall_points = recall_points
@@ -501,6 +512,242 @@ class Evaluation:
             r.det_angle[sel], r.truth_angle[ti], r.shape, r.det_aspect[sel], r.truth_aspect[ti]
         )
 
+    # -- per-row results, operating points, confusion ----------------------------------------
+    def _label_thresholds(self, iou: float | None) -> np.ndarray:
+        """Per label code: the threshold of :meth:`detections` and friends at ``iou``."""
+        if iou is None:
+            return np.array([min(self._spec.of(lab)) for lab in self.labels], dtype=np.float64)
+        return np.full(len(self.labels), self._threshold(iou))
+
+    def _label_columns(self, iou: float | None) -> tuple[np.ndarray, np.ndarray]:
+        ts = self._label_thresholds(iou)
+        return ts, np.array([self._col(t) for t in ts], dtype=np.int64)
+
+    def detections(self, iou: float | None = None) -> Any:
+        """One row per detection, in input order: outcome, matched truth, IoU, cause.
+
+        ``iou=None`` judges each label at the lowest of its own thresholds (with one set of
+        thresholds for all labels: the lowest, as :meth:`false_positives` does; with
+        per-label thresholds, e.g. cars at 0.7 and people at 0.5, each label at its own);
+        a number judges every label at that threshold (one of :attr:`thresholds`: all labels
+        are matched at all of them). The ``threshold`` column says which was used. Counts of
+        the outcomes per label equal :meth:`counts` at that threshold, in a size or range
+        bucket too (detections outside it are ``"ignored"``).
+
+        Columns (details in :mod:`obbiou.evaluation.details`): ``frame``, ``label``,
+        ``score``, ``threshold``, ``outcome`` (``tp``, ``fp``, ``ignored``, ``capped``),
+        ``truth`` (input row of the matched truth, ``<NA>`` if none), ``iou``, ``best_iou``
+        (with any non-ignore truth of the frame, any label), ``cause`` (class of a false
+        positive, as in :meth:`false_positives`; ``<NA>`` otherwise), then the input's extra
+        columns when :attr:`inputs` holds the input tables (not when the evaluation was
+        built from match records alone). The index ``row`` is the input row.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0, 20.0], "cy": [0.0, 0.0], "width": [4.0] * 2,
+        ...        "height": [2.0] * 2, "angle": [0.0] * 2}
+        >>> truth = {"frame": ["q1", "q1"], "label": ["vessel", "crane"], **box}
+        >>> dets = {"frame": ["q1", "q1"], "label": ["vessel", "vessel"], "score": [0.8, 0.7],
+        ...         "note": ["ok", "crane?"], **box}
+        >>> evaluate(truth, dets).detections()[["label", "outcome", "truth", "cause", "note"]]
+              label outcome  truth        cause    note
+        row
+        0    vessel      tp      0         <NA>      ok
+        1    vessel      fp   <NA>  wrong_label  crane?
+
+        No detections: an empty table with the same columns.
+
+        >>> evaluate(truth, {k: v[:0] for k, v in dets.items()}).detections().shape
+        (0, 10)
+        """
+        from obbiou.evaluation.details import detection_table
+
+        ts, cols = self._label_columns(iou)
+        extra = self.inputs[1].extra if self.inputs is not None else None
+        return detection_table(
+            self.records,
+            self._outcome,
+            cols[self._dlabel] if len(cols) else np.zeros(0, np.int64),
+            ts[self._dlabel] if len(ts) else np.zeros(0),
+            self._matched_index,
+            self._floor,
+            extra,
+        )
+
+    def truths(self, iou: float | None = None) -> Any:
+        """One row per truth, in input order: outcome, matching detection, IoU, cause.
+
+        ``iou`` as for :meth:`detections`. Columns: ``frame``, ``label``, ``ignore``,
+        ``threshold``, ``outcome`` (``matched``; ``missed``; ``ignore`` for ignore truths and,
+        in a bucket, truths outside it), ``detection`` (input row of the detection that took
+        it, ``<NA>`` if none), ``iou``, ``best_iou`` (with any evaluated detection of the
+        frame, any label), ``cause`` (class of a miss, as in :meth:`misses`; ``<NA>``
+        otherwise), then the extra columns as for :meth:`detections`. Per label,
+        ``matched`` + ``missed`` = ``counts().truths``, ``missed`` = ``counts().missed``.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0, 9.0], "cy": [0.0, 0.0], "width": [4.0] * 2,
+        ...        "height": [2.0] * 2, "angle": [0.0] * 2}
+        >>> truth = {"frame": [3, 3], "label": ["container"] * 2, "ignore": [False, True],
+        ...          **box}
+        >>> evaluate(truth, {k: [] for k in ("frame", "label", "score", *box)}).truths()[
+        ...     ["ignore", "outcome", "detection", "cause"]]
+             ignore  outcome  detection         cause
+        row
+        0     False   missed       <NA>  not_detected
+        1      True   ignore       <NA>          <NA>
+        """
+        from obbiou.evaluation.details import truth_table
+
+        ts, cols = self._label_columns(iou)
+        extra = self.inputs[0].extra if self.inputs is not None else None
+        none_i, none_f = np.zeros(0, np.int64), np.zeros(0)
+        return truth_table(
+            self.records,
+            self._positive,
+            cols[self._tlabel] if len(cols) else none_i,
+            ts[self._tlabel] if len(ts) else none_f,
+            self.records.det_outcome,
+            cols[self._dlabel] if len(cols) else none_i,
+            self._matched_index,
+            self._floor,
+            extra,
+        )
+
+    def _operating(self, iou: float | None, pick) -> Any:
+        from obbiou.evaluation.operating import operating_table
+
+        ts = self._label_thresholds(iou)
+        points = {}
+        for i, lab in enumerate(self.labels):
+            idx = self._by_label[lab]
+            npos = int(self._positive[self._truths_of[lab]].sum())
+            out = self._outcome[idx, self._col(ts[i])]
+            points[lab] = pick(self.records.det_score[idx], out, npos, float(ts[i]))
+        return operating_table(points)
+
+    def at_score(self, score: float, iou: float | None = None) -> Any:
+        """Per label: precision, recall, F1, TP, FP and missed keeping detections >= ``score``.
+
+        A DataFrame indexed by label with columns ``threshold``, ``score`` (the cut),
+        ``detections`` (kept and evaluated), ``tp``, ``fp``, ``ignored``, ``missed``,
+        ``truths``, ``precision``, ``recall``, ``f1``; ``<NA>`` where a value is undefined
+        (precision with nothing kept, recall without truths). ``iou`` as for
+        :meth:`detections` (``None``: each label at the lowest of its own thresholds).
+        Exact without re-matching: see :mod:`obbiou.evaluation.operating`. Capped
+        detections are never kept; in a bucket, the bucket's outcomes are used.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0, 10.0, 20.0], "cy": [0.0] * 3, "width": [4.0] * 3,
+        ...        "height": [2.0] * 3, "angle": [0.0] * 3}
+        >>> truth = {"frame": [0] * 3, "label": ["vessel"] * 3, **box}
+        >>> dets = {"frame": [0] * 3, "label": ["vessel"] * 3, "score": [0.9, 0.8, 0.7],
+        ...         **box, "cy": [0.0, 50.0, 0.0]}  # the 0.8 is a false alarm
+        >>> ev = evaluate(truth, dets)
+        >>> ev.at_score(0.75)[["tp", "fp", "missed", "precision", "recall", "f1"]]
+                tp  fp  missed  precision    recall   f1
+        label
+        vessel   1   1       2        0.5  0.333333  0.4
+
+        A cut above every score keeps nothing: precision undefined.
+
+        >>> row = ev.at_score(0.95).loc["vessel"]
+        >>> int(row.detections), row.precision, float(row.f1)
+        (0, <NA>, 0.0)
+        """
+        from obbiou.evaluation.operating import at_cut
+
+        cut = _finite(score, "score")
+        return self._operating(iou, lambda s, o, n, t: at_cut(s, o, n, cut, t))
+
+    def best_score(self, iou: float | None = None) -> Any:
+        """Per label: the score cut with the highest F1, and the values there.
+
+        The same columns as :meth:`at_score`. Cuts are the scores of the label's TP and FP
+        detections; of cuts with equal F1 the highest score is reported (the fewest
+        detections kept). A label without TP or FP detections has ``score`` ``<NA>``.
+        ``iou`` as for :meth:`detections`.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0, 10.0, 20.0], "cy": [0.0] * 3, "width": [4.0] * 3,
+        ...        "height": [2.0] * 3, "angle": [0.0] * 3}
+        >>> truth = {"frame": [0] * 3, "label": ["vessel"] * 3, **box}
+        >>> dets = {"frame": [0] * 3, "label": ["vessel"] * 3, "score": [0.9, 0.8, 0.7],
+        ...         **box, "cy": [0.0, 50.0, 0.0]}
+        >>> evaluate(truth, dets).best_score()[["score", "tp", "fp", "f1"]]
+                score  tp  fp        f1
+        label
+        vessel    0.7   2   1  0.666667
+        """
+        from obbiou.evaluation.operating import best_cut
+
+        return self._operating(iou, best_cut)
+
+    def confusion(self, iou: float | None = None) -> Any:
+        """Truth label x detected label, matched at ``iou`` by IoU alone, labels ignored.
+
+        The same greedy rule as the protocol with every label made one (see
+        :mod:`obbiou.evaluation.confusion`): rows are truth labels plus ``(background)``
+        (detections that took no truth: false alarms and duplicates), columns detected labels
+        plus ``(missed)`` (non-ignore truths no detection took). Ignore truths have no row;
+        detections absorbed by one (IoU >= ``iou`` with an ignore truth, no truth taken) and
+        capped detections are left out and counted in ``attrs["ignored"]`` /
+        ``attrs["capped"]``. ``iou=None``: the lowest threshold evaluated (one threshold for
+        all labels even with per-label thresholds, since labels are ignored); any number in
+        (0, 1] may be given, as the detections are matched again.
+
+        Needs the boxes: available when the evaluation holds its input tables
+        (:attr:`inputs`), not when it was built from match records alone, nor for a size or
+        range bucket.
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0, 10.0], "cy": [0.0] * 2, "width": [4.0] * 2,
+        ...        "height": [2.0] * 2, "angle": [0.0] * 2}
+        >>> truth = {"frame": [0, 0], "label": ["crane", "vessel"], "ignore": [False, True],
+        ...          **box}
+        >>> dets = {"frame": [0, 0], "label": ["vessel", "vessel"], "score": [0.9, 0.8],
+        ...         **box}
+        >>> table = evaluate(truth, dets).confusion()
+        >>> table
+        detected      crane  vessel  (missed)
+        truth
+        crane             0       1         0
+        vessel            0       0         0
+        (background)      0       0         0
+        >>> table.attrs["ignored"]  # the detection on the ignore truth
+        1
+        """
+        from obbiou.evaluation.confusion import confusion_table
+
+        if self.bucket is not None:
+            reason = "not available for a size or range bucket; call it on the whole evaluation"
+            raise InvalidInput("confusion", reason)
+        if self.inputs is None:
+            reason = (
+                "needs the boxes, which an evaluation built from match records alone does not "
+                "hold; call it on the result of evaluate()"
+            )
+            raise InvalidInput("confusion", reason)
+        if iou is None:
+            t = min(self.thresholds)
+        else:
+            values = parse_thresholds(iou).values
+            if len(values) != 1:
+                raise InvalidInput("iou", f"expected one threshold, got {iou!r}")
+            t = values[0]
+        truth, dets = self.inputs
+        cap = self.options.get("max_detections")
+        return confusion_table(truth, dets, self.labels, t, max_detections=cap)
+
     # -- reports -----------------------------------------------------------------------------
     def summary(self) -> str:
         """A readable text table: one line per label and threshold, then the means."""
@@ -595,10 +842,15 @@ class Evaluation:
             "IoU >= threshold with an ignore truth; else false positive",
         }
 
-    def to_json(self, path: str, *, interval: Mapping | None = None) -> None:
-        """Write :meth:`to_dict` as JSON to ``path`` (``interval``: as there)."""
+    def to_json(
+        self, path: str, *, interval: Mapping | None = None, extra: Mapping | None = None
+    ) -> None:
+        """Write :meth:`to_dict` as JSON to ``path`` (``interval``: as there), with the
+        JSON-safe entries of ``extra`` whose value is not ``None`` added at the top level."""
+        d = self.to_dict(interval=interval)
+        d.update({k: v for k, v in (extra or {}).items() if v is not None})
         with open(path, "w", encoding="utf-8") as fh:
-            json.dump(self.to_dict(interval=interval), fh, indent=2, allow_nan=False)
+            json.dump(d, fh, indent=2, allow_nan=False)
             fh.write("\n")
 
     def plot(self, path: str, *, iou: float | None = None, title: str | None = None) -> None:
@@ -632,6 +884,7 @@ def reduce_records(
     range_buckets: Any = None,
     localisation_floor: float = 0.1,
     options: dict | None = None,
+    inputs: tuple[Table, Table] | None = None,
 ) -> Evaluation:
     """The reduce step: AP, counts and breakdowns from match records.
 
@@ -647,6 +900,9 @@ def reduce_records(
         As for :func:`evaluate`.
     options : dict, optional
         Options of the map step to record in the protocol (``max_detections``, ``degrees``).
+    inputs : (Table, Table), optional
+        The validated truth and detection tables the records were matched from (rows
+        numbered as in the records); kept as :attr:`Evaluation.inputs`.
 
     Returns
     -------
@@ -666,7 +922,11 @@ def reduce_records(
     opts["size_buckets"] = {k: _json_edges(v) for k, v in sizes.items()} or None
     opts["range_buckets"] = {k: _json_edges(v) for k, v in ranges.items()} or None
     kw = dict(
-        ap=ap, recall_points=recall_points, options=opts, localisation_floor=localisation_floor
+        ap=ap,
+        recall_points=recall_points,
+        options=opts,
+        localisation_floor=localisation_floor,
+        inputs=inputs,
     )
     result = Evaluation(rec, spec, **kw)
     for by, group in (("size", sizes), ("range", ranges)):
@@ -676,6 +936,33 @@ def reduce_records(
                 for name, (lo, hi) in group.items()
             }
     return result
+
+
+def _finite(value: Any, what: str) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InvalidInput(what, f"expected a number, got {value!r}") from None
+    if math.isnan(v):
+        raise InvalidInput(what, "expected a number, got NaN")
+    return v
+
+
+def _check_inputs(
+    rec: MatchRecords, inputs: tuple[Table, Table] | None
+) -> tuple[Table, Table] | None:
+    """The input tables, checked to hold every row the records number."""
+    if inputs is None:
+        return None
+    truth, dets = inputs
+    for rows, table, what in ((rec.truth_row, truth, "truth"), (rec.det_row, dets, "detections")):
+        if len(rows) != len(table) or (len(rows) and rows.max() >= len(table)):
+            raise InvalidInput(
+                "inputs",
+                f"the {what} table has {len(table)} rows but the records number "
+                f"{len(rows)} rows up to {int(rows.max()) if len(rows) else 0}",
+            )
+    return truth, dets
 
 
 def _check_whole_frames(rec: MatchRecords) -> None:
