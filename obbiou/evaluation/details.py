@@ -56,8 +56,9 @@ __all__ = [
 
 #: Outcome names of the detection table, indexed by the outcome codes (FP, TP, IGNORED, CAPPED).
 DETECTION_OUTCOMES = {FP: "fp", TP: "tp", IGNORED: "ignored", CAPPED: "capped"}
-_OUTCOME_NAMES = np.array([DETECTION_OUTCOMES[k] for k in sorted(DETECTION_OUTCOMES)], object)
-assert sorted(DETECTION_OUTCOMES) == list(range(len(DETECTION_OUTCOMES)))  # codes 0..3
+_OUTCOME_NAMES = np.empty(max(DETECTION_OUTCOMES) + 1, dtype=object)  # name by code
+for _code, _name in DETECTION_OUTCOMES.items():
+    _OUTCOME_NAMES[_code] = _name
 
 #: Outcome names of the truth table.
 TRUTH_OUTCOMES = ("matched", "missed", "ignore")
