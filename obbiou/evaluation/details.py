@@ -56,6 +56,10 @@ __all__ = [
 
 #: Outcome names of the detection table, indexed by the outcome codes (FP, TP, IGNORED, CAPPED).
 DETECTION_OUTCOMES = {FP: "fp", TP: "tp", IGNORED: "ignored", CAPPED: "capped"}
+_OUTCOME_NAMES = np.empty(max(DETECTION_OUTCOMES) + 1, dtype=object)  # name by code
+for _code, _name in DETECTION_OUTCOMES.items():
+    _OUTCOME_NAMES[_code] = _name
+
 #: Outcome names of the truth table.
 TRUTH_OUTCOMES = ("matched", "missed", "ignore")
 
@@ -161,7 +165,7 @@ def detection_table(
             "label": r.det_label.astype(object),
             "score": r.det_score,
             "threshold": np.asarray(threshold, dtype=np.float64),
-            "outcome": np.array([DETECTION_OUTCOMES[int(o)] for o in out], dtype=object),
+            "outcome": _OUTCOME_NAMES[out.astype(np.int64)],
             "truth": _nullable(truth_row, has_truth, "Int64"),
             "iou": _nullable(iou, has_truth, "Float64"),
             "best_iou": _nullable(best, live, "Float64"),
