@@ -64,15 +64,17 @@ def configure(p: argparse.ArgumentParser) -> None:
     )
     p.add_argument("--level", type=float, default=0.95, help="confidence level for --interval")
     p.add_argument(
+        "--causes",
+        action="store_true",
+        help="also print the causes of false positives and misses and the orientation error",
+    )
+    p.add_argument(
         "--details",
-        nargs="?",
-        const=True,
         default=None,
         metavar="PATH",
-        help="also print the causes of false positives and misses and the orientation error; "
-        "with PATH (after the two tables) also write one row per detection and per truth to "
-        "PATH with .detections / .truths before the suffix (.csv, .parquet or .jsonl), e.g. "
-        "rows.csv -> rows.detections.csv, rows.truths.csv",
+        help="write one row per detection and per truth to PATH with .detections / .truths "
+        "before the suffix (.csv, .parquet or .jsonl), e.g. rows.csv -> rows.detections.csv, "
+        "rows.truths.csv",
     )
     p.add_argument(
         "--at-score",
@@ -116,7 +118,7 @@ def run(args: argparse.Namespace) -> int:
     from obbiou.evaluation.details import details_paths, write_details
     from obbiou.evaluation.text import details_text, interval_text
 
-    rows_path = args.details if isinstance(args.details, str) else None
+    rows_path = args.details
     if rows_path is not None:
         details_paths(rows_path)  # a bad suffix fails before any work
     opts = matching_options(args)
@@ -142,7 +144,7 @@ def run(args: argparse.Namespace) -> int:
         interval = {"resamples": args.resamples, "level": args.level, "seed": args.seed}
         print()
         print(interval_text(result, **interval))
-    if args.details:
+    if args.causes:
         print()
         print(details_text(result))
     operating = None

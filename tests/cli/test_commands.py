@@ -174,7 +174,7 @@ def test_evaluate_hand_case_and_json_equals_to_dict(hand_files, tmp_path):
         "--interval",
         "--resamples",
         "200",
-        "--details",
+        "--causes",
         "-q",
     )
     assert proc.returncode == 0, proc.stderr
