@@ -26,9 +26,9 @@ def files(tmp_path):
 def test_details_files_equal_the_tables(files, tmp_path, suffix):
     t, d = files
     out = tmp_path / f"rows{suffix}"
-    proc = run("evaluate", str(t), str(d), "--details", str(out), "-q")
+    proc = run("evaluate", str(t), str(d), "--details", str(out), "--causes", "-q")
     assert proc.returncode == 0, proc.stderr
-    assert "False positives" in proc.stdout  # the breakdowns are printed as before
+    assert "False positives" in proc.stdout  # --causes prints the breakdowns
     ev = evaluate(t, d)
     read = pd.read_csv if suffix == ".csv" else pd.read_parquet
     for name, want in (("detections", ev.detections()), ("truths", ev.truths())):
