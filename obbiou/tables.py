@@ -20,8 +20,9 @@ column, an empty cell, a non-numeric value, a NaN, a negative size or an invalid
 JSON Lines) or row (Parquet, DataFrame, mapping) and the column, as fields and in its text.
 
 This module is also the one place for the facts every table user shares:
-:data:`TABLE_SUFFIXES` (the file formats, read and written), :func:`comparable_frame_ids`
-(how frame ids of two tables compare: as integers when both are integers, else as text) and
+:data:`TABLE_SUFFIXES` (the file formats, read and written), :func:`frame_ids` (the frame-id
+rule: integers and integer-valued text name one frame, other text is a name, inexact floats
+are errors), :func:`comparable_frame_ids` (ids of several tables made comparable by it) and
 :func:`frame_groups` (the rows of each frame).
 """
 
@@ -29,6 +30,7 @@ from __future__ import annotations
 
 import json
 import os
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal
@@ -48,6 +50,7 @@ __all__ = [
     "TABLE_SUFFIXES",
     "table_format",
     "comparable_frame_ids",
+    "frame_ids",
     "frame_groups",
 ]
 
@@ -115,23 +118,157 @@ def write_table(table: Any, path: Any) -> Path:
 
 
 def comparable_frame_ids(arrays: list[np.ndarray]) -> list[np.ndarray]:
-    """Frame id arrays of several tables, made comparable by the one rule for frame ids.
+    """Frame ids of several tables (as :func:`frame_ids` gives them), made comparable.
 
-    The rule: ids compare as integers when every table's ids are integers (int64), else as
-    text (``str`` of each id), so that frame ``7`` of one table meets frame ``"7"`` of
-    another. Evaluation, the scene commands and the cluster's frame buckets follow it.
+    Ids stay int64 when every table's ids are int64; else every table's ids become text
+    (integers as their decimal digits), so that frame ``7`` of one table meets frame
+    ``"007"`` (read as ``7``) of another and a 30-digit id meets itself. Evaluation, the
+    scene commands and the cluster's frame buckets all follow this rule.
 
     Examples
     --------
-    >>> a, b = comparable_frame_ids([np.array([7, 8]), np.array(["7"], dtype=object)])
+    >>> a, b = comparable_frame_ids([np.array([7, 8]), frame_ids(["007", "cam1"])[0]])
     >>> a.tolist(), b.tolist()
-    (['7', '8'], ['7'])
+    (['7', '8'], ['7', 'cam1'])
     >>> comparable_frame_ids([np.array([1]), np.array([2], dtype=np.int32)])[1].dtype
     dtype('int64')
     """
+    arrays = [a if a.dtype.kind in "iO" else frame_ids(a)[0] for a in map(np.asarray, arrays)]
     if all(a.dtype.kind in "iu" for a in arrays):
         return [a.astype(np.int64) for a in arrays]
-    return [np.array([str(v) for v in a], dtype=object) for a in arrays]
+    # str of an int64 or a Python int is its decimal digits: the form text ids hold
+    return [a.astype(str).astype(object) if len(a) else a.astype(object) for a in arrays]
+
+
+def frame_ids(values: Any, *, name: str = "frame") -> tuple[np.ndarray, np.ndarray | None]:
+    """Frame ids by the frame-id rule: the ids, and the ids as written where that differs.
+
+    **The frame-id rule.** A frame id is an integer or a text.
+
+    * Integers name a frame by their value, whatever their type (``7``, ``np.int32(7)``).
+    * Text that spells an integer in decimal digits, possibly with a sign, leading zeros or
+      surrounding spaces (``"7"``, ``"007"``, ``" +7"``), is that integer: it names the same
+      frame as ``7``. Any other text (``"cam1/0007"``, ``"7.5"``, ``"1e3"``) is a name,
+      compared exactly as written (letter case and spaces count).
+    * A float names a frame only when it is a whole number below 2**53 in magnitude, where
+      every integer is a float exactly: ``7.0`` is ``7``. Any other float (``7.5``, ``1e19``,
+      NaN) is an error: above 2**53 two ids written differently can round to one float
+      (``1e19`` and ``1e19 + 1``), so the float may not be the id that was written.
+      Write such ids as integers or as text.
+    * Integers of any length are exact (a 30-digit id is held as its decimal text); booleans
+      and other values (lists, None) are errors.
+
+    The ids come back as int64 when every id is an integer within int64, else as text (an
+    object array of str; integers as their decimal digits without leading zeros), so that
+    equal ids are equal values. The second array holds the ids as written (text) when any
+    text id was not already in that form (``"007"``), else None: tables write ids back as
+    they were read.
+
+    Raises
+    ------
+    obbiou.errors.InvalidInput
+        Naming the first id (``row``) that is no frame id, and why.
+
+    Examples
+    --------
+    >>> ids, written = frame_ids(np.array(["007", "8", " 9"], dtype=object))
+    >>> ids, written.tolist()
+    (array([7, 8, 9]), ['007', '8', ' 9'])
+    >>> frame_ids(np.array([7.0, 8.0]))[0]
+    array([7, 8])
+    >>> frame_ids(np.array(["cam1", 7, 10**29], dtype=object))[0].tolist()
+    ['cam1', '7', '100000000000000000000000000000']
+    >>> frame_ids(np.array([1e19, 2e19]))
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: frame[0]: frame id 1e+19 is a float at or beyond 2**53 in
+    magnitude, where floats may not be the ids that were written (1e19 and 1e19 + 1 are one
+    float); write frame ids as integers or as text
+    """
+    values = np.asarray(values)
+    kind = values.dtype.kind
+    if values.ndim != 1:
+        raise InvalidInput(name, f"expected one frame id per row (1-D), got shape {values.shape}")
+    if kind == "i":
+        return values.astype(np.int64, copy=False), None
+    if kind == "u" and (not len(values) or int(values.max()) < 2**63):
+        return values.astype(np.int64), None
+    if kind == "f":
+        bad = ~(np.isfinite(values) & (np.floor(values) == values) & (np.abs(values) < 2.0**53))
+        if bad.any():
+            row = int(np.argmax(bad))
+            raise InvalidInput(name, _float_reason(float(values[row])), row=row)
+        return values.astype(np.int64), None
+    if kind == "b":
+        raise InvalidInput(name, _other_reason(bool(values[0])), row=0)
+    return _frame_ids_of_objects(values, name)
+
+
+def _float_reason(v: float) -> str:
+    if not np.isfinite(v):
+        return f"frame id {v!r} is not a frame id (frame ids are integers or text)"
+    if v != np.floor(v):
+        return (
+            f"frame id {v!r} is a float with a fraction, which names no frame exactly; write "
+            "frame ids as integers or as text"
+        )
+    return (
+        f"frame id {v!r} is a float at or beyond 2**53 in magnitude, where floats may not be "
+        "the ids that were written (1e19 and 1e19 + 1 are one float); write frame ids as "
+        "integers or as text"
+    )
+
+
+def _other_reason(v: Any) -> str:
+    what = type(v).__name__
+    return f"expected an integer or a text as frame id, got {what} {v!r:.40}"
+
+
+_INTEGER_TEXT = re.compile(r"\s*[+-]?[0-9]+\s*")
+
+
+def _frame_ids_of_objects(values: np.ndarray, name: str) -> tuple[np.ndarray, np.ndarray | None]:
+    n = len(values)
+    keys: list[Any] = [None] * n
+    written: list[Any] | None = None
+    wide = False  # an integer beyond int64, or a name: the ids are text
+    for i, v in enumerate(values.tolist()):
+        if isinstance(v, str):
+            if _INTEGER_TEXT.fullmatch(v):
+                try:
+                    k = int(v)
+                except ValueError:  # more digits than Python reads (4300)
+                    reason = f"frame id of {len(v.strip())} digits is too long to read"
+                    raise InvalidInput(name, reason, row=i) from None
+                if v != str(k):
+                    if written is None:
+                        written = [str(x) for x in keys[:i]]
+                    # (ids before i were written as their own text)
+            else:
+                k = v
+                wide = True
+        elif isinstance(v, (bool, np.bool_)) or v is None:
+            raise InvalidInput(name, _other_reason(v), row=i)
+        elif isinstance(v, (int, np.integer)):
+            k = int(v)
+        elif isinstance(v, (float, np.floating)):
+            v = float(v)
+            if not (np.isfinite(v) and v == np.floor(v) and abs(v) < 2.0**53):
+                raise InvalidInput(name, _float_reason(v), row=i)
+            k = int(v)
+        else:
+            raise InvalidInput(name, _other_reason(v), row=i)
+        if isinstance(k, int) and not -(2**63) <= k < 2**63:
+            wide = True
+        keys[i] = k
+        if written is not None:
+            written.append(v if isinstance(v, str) else str(k))
+    written_arr = None if written is None else np.array(written, dtype=object)
+    if not wide:
+        return np.array(keys, dtype=np.int64).reshape(n), written_arr
+    out = np.empty(n, dtype=object)
+    out[:] = [k if isinstance(k, str) else str(k) for k in keys]
+    return out, written_arr
 
 
 def frame_groups(frames: np.ndarray) -> list[np.ndarray]:
@@ -185,7 +322,8 @@ class Table:
     role : str
         ``"truth"`` or ``"detections"``.
     frame : numpy.ndarray
-        Frame id per row: int64 when all ids are integers, else str (object array).
+        Frame id per row by the frame-id rule (:func:`frame_ids`): int64 when all ids are
+        integers within int64, else text (object array of str).
     label : numpy.ndarray
         Label per row as str (object array); integer labels become their decimal text.
     score : numpy.ndarray or None
@@ -198,6 +336,10 @@ class Table:
         Other columns, passed through unchanged.
     source : str
         The file name, or ``"<DataFrame>"`` / ``"<mapping>"``.
+    frame_written : numpy.ndarray or None
+        The frame ids as written (text), when some were written otherwise than ``frame``
+        holds them (``"007"`` for frame 7); None when they were not. :meth:`to_frame`
+        writes them back.
     """
 
     role: str
@@ -208,6 +350,7 @@ class Table:
     boxes: Boxes
     extra: dict[str, np.ndarray] = field(default_factory=dict)
     source: str = "<mapping>"
+    frame_written: np.ndarray | None = None
 
     def __len__(self) -> int:
         return len(self.boxes)
@@ -228,7 +371,8 @@ class Table:
         data = self.boxes.data
         cols = box_columns(self.shape, data.shape[1] if self.shape == "polygon" else 4)
         flat = data.reshape(data.shape[0], int(np.prod(data.shape[1:])))
-        out: dict[str, Any] = {"frame": self.frame, "label": self.label}
+        frame = self.frame if self.frame_written is None else self.frame_written
+        out: dict[str, Any] = {"frame": frame, "label": self.label}
         if self.score is not None:
             out["score"] = self.score
         for j, c in enumerate(cols):
@@ -251,6 +395,7 @@ class Table:
             Boxes(np.ascontiguousarray(self.boxes.data[rows]), self.boxes.shape, False),
             {k: v[rows] for k, v in self.extra.items()},
             self.source,
+            None if self.frame_written is None else self.frame_written[rows],
         )
 
 
@@ -316,7 +461,7 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
             raise InvalidTable(path, "no such file")
         if kind == "csv":
             try:
-                df = pd.read_csv(path, skip_blank_lines=False)
+                df = pd.read_csv(path, skip_blank_lines=False, dtype={"frame": object})
             except Exception as exc:  # pandas parser errors name the line themselves
                 raise InvalidTable(path, f"cannot read as CSV ({exc})") from None
             # Line 1 is the header; with blank lines kept, row i is line i + 2.
@@ -387,6 +532,19 @@ def _numeric(values: np.ndarray, column: str, where: _Where) -> np.ndarray:
     return out
 
 
+_CONTAINERS = (list, tuple, dict, set, np.ndarray)
+
+
+def _one_value_per_cell(values: np.ndarray, column: str, where: _Where) -> None:
+    """Raise for the first cell that holds several values (a JSON list, an array)."""
+    if values.dtype != object:
+        return
+    for i, v in enumerate(values.tolist()):
+        if isinstance(v, _CONTAINERS):
+            what = "an object" if isinstance(v, dict) else f"a {type(v).__name__}"
+            raise where.error(i, column, f"expected one value, got {what} {v!r:.40}")
+
+
 def _first_empty(values: np.ndarray) -> int | None:
     """Index of the first empty cell (None, NaN, blank text), or None."""
     import pandas as pd
@@ -403,27 +561,26 @@ def _first_empty(values: np.ndarray) -> int | None:
     return int(np.argmax(bad)) if bad.any() else None
 
 
-def _ids(values: np.ndarray, column: str, where: _Where, *, text: bool) -> np.ndarray:
-    """Frame ids (int64 when all integral, else str) or labels (``text=True``: always str)."""
+def _labels(values: np.ndarray, where: _Where) -> np.ndarray:
+    """Labels as text (object array of str); integer labels (also whole floats) as digits."""
     import pandas as pd
 
     i = _first_empty(values)
     if i is not None:
-        raise where.error(i, column, "empty value")
-    if values.dtype.kind in "iub" or (
-        values.dtype.kind == "f" and np.all(np.floor(values) == values)
-    ):
-        ints = values.astype(np.int64)
-        return ints.astype(str).astype(object) if text else ints
-    inferred = pd.api.types.infer_dtype(values, skipna=False)
-    if inferred == "integer":
-        ints = values.astype(np.int64)
-        return ints.astype(str).astype(object) if text else ints
-    if inferred == "string":
+        raise where.error(i, "label", "empty value")
+    if values.dtype.kind in "iub":
+        return values.astype(np.int64).astype(str).astype(object)
+    if pd.api.types.infer_dtype(values, skipna=False) == "string":
         return values.astype(object)
     out = np.empty(len(values), dtype=object)
-    for i, v in enumerate(values):
-        out[i] = str(int(v)) if isinstance(v, float) and v == int(v) else str(v)
+    for i, v in enumerate(values.tolist()):
+        if isinstance(v, (float, np.floating)) and v == np.floor(v):
+            out[i] = str(int(v))  # exact for any whole float (1e19 too)
+        elif isinstance(v, (str, int, float, np.integer, np.floating)):
+            out[i] = str(v)
+        else:
+            reason = f"expected a text or a number as label, got {type(v).__name__} {v!r:.40}"
+            raise where.error(i, "label", reason)
     return out
 
 
@@ -578,8 +735,16 @@ def read_table(
                 name, f"missing column {col!r} (shape {layout!r} needs {' '.join(bcols)})"
             )
 
-    frame = _ids(cols["frame"], "frame", where, text=False)
-    label = _ids(cols["label"], "label", where, text=True)
+    for col in (*required, *bcols, *(["ignore"] if role == "truth" and "ignore" in names else [])):
+        _one_value_per_cell(cols[col], col, where)
+    i = _first_empty(cols["frame"])
+    if i is not None:
+        raise where.error(i, "frame", "empty value")
+    try:
+        frame, written = frame_ids(cols["frame"])
+    except InvalidInput as exc:
+        raise where.error(exc.row, "frame", exc.reason) from None
+    label = _labels(cols["label"], where)
     score = _numeric(cols["score"], "score", where) if role == "detections" else None
     if role == "truth" and "ignore" in names:
         ignore = _bools(cols["ignore"], "ignore", where)
@@ -601,4 +766,4 @@ def read_table(
         raise where.error(exc.row, column, exc.reason) from None
     used = set(required) | set(bcols) | ({"ignore"} if role == "truth" else set())
     extra = {c: v for c, v in cols.items() if c not in used}
-    return Table(role, frame, label, score, ignore, boxes, extra, name)
+    return Table(role, frame, label, score, ignore, boxes, extra, name, written)

@@ -6,6 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from obbiou.errors import InvalidTable
 from obbiou.evaluation import evaluate, read_table
 
 ROWS = [
@@ -228,3 +229,98 @@ def test_evaluate_reads_files(tmp_path):
     ev = evaluate(write(tmp_path, "t.parquet", truth), write(tmp_path, "d.jsonl", ROWS))
     assert ev.mean_ap() == 1.0
     assert ev.labels == ("crane", "vessel")
+
+
+# -- the frame-id rule (obbiou.tables.frame_ids; README "Frame ids") ------------------------
+
+BOX = {"label": "vessel", "cx": 10.0, "cy": 5.0, "width": 8.0, "height": 3.0, "angle": 0.25}
+
+
+def frames_of(tmp_path, name, frames, role="detections"):
+    rows = [dict(BOX, frame=f, **({"score": 0.9} if role == "detections" else {})) for f in frames]
+    return read_table(write(tmp_path, name, rows), role=role)
+
+
+def test_integers_and_integer_text_name_one_frame(tmp_path):
+    # the rule: text that spells an integer (leading zeros, sign, spaces) is that integer
+    t = read_table({"frame": [7, 8], **{k: [v, v] for k, v in BOX.items()}}, role="truth")
+    d = frames_of(tmp_path, "d.jsonl", ["007", " +8 "])
+    assert d.frame.tolist() == [7, 8] and d.frame.dtype == np.int64
+    # hand-worked: identical boxes in the same frames match, AP 1
+    with pytest.warns(UserWarning, match="share no frame id as written"):
+        ev = evaluate(t, d)
+    assert ev.counts("vessel")[:4] == (2, 0, 0, 0)
+    # ids are written back as they were read
+    assert d.to_frame()["frame"].tolist() == ["007", " +8 "]
+    # a CSV cell has no type: "007" in a CSV is read as written, then by the rule
+    c = frames_of(tmp_path, "d.csv", ["007", "cam1"])
+    assert c.frame.tolist() == ["7", "cam1"]  # one name among them: all ids are text
+    assert c.to_frame()["frame"].tolist() == ["007", "cam1"]
+
+
+def test_names_compare_exactly_and_text_numbers_that_are_not_integers_are_names(tmp_path):
+    d = frames_of(tmp_path, "d.csv", ["1e19", "2e19", "7.5", "Cam1", "cam1"])
+    # hand-worked: five distinct names, none of them an integer
+    assert d.frame.tolist() == ["1e19", "2e19", "7.5", "Cam1", "cam1"]
+
+
+def test_float_ids_at_or_beyond_2_53_are_an_error(tmp_path):
+    # 1e19 and 2e19 used to wrap to one int64 and cross-match; above 2**53 a float may not
+    # be the id written (2**53 + 1 reads back as 2**53: exact integer arithmetic)
+    assert float(2**53 + 1) == float(2**53)
+    for frames in ([1e19, 2e19], [5.0, 2.0**53]):
+        df = pd.DataFrame([dict(BOX, frame=f, score=0.9) for f in frames])
+        with pytest.raises(InvalidTable, match=r"at or beyond 2\*\*53") as err:
+            read_table(df, role="detections")
+        assert err.value.column == "frame" and err.value.row == (0 if frames[0] > 1e18 else 1)
+        path = tmp_path / "f.parquet"
+        df.to_parquet(path)
+        with pytest.raises(InvalidTable, match=r"f\.parquet, row \d, column 'frame'"):
+            read_table(str(path), role="detections")
+    # JSON Lines numbers 1e19 / 2e19 are floats too
+    path = tmp_path / "f.jsonl"
+    path.write_text("".join(json.dumps(dict(BOX, frame=f, score=0.9)) + "\n" for f in (1e19, 2e19)))
+    with pytest.raises(InvalidTable, match=r"f\.jsonl, line 1, column 'frame'"):
+        read_table(str(path), role="detections")
+
+
+def test_whole_floats_are_integers_and_other_values_are_errors():
+    base = {k: [v] for k, v in BOX.items()}
+    assert read_table({"frame": [7.0], **base}, role="truth").frame.tolist() == [7]
+    for bad, why in (
+        (7.5, "a fraction"),
+        (float("inf"), "not a frame id"),
+        (True, "got bool"),
+        ([1, 2], "expected one value, got a list"),
+    ):
+        frame = np.empty(1, dtype=object)
+        frame[0] = bad
+        with pytest.raises(InvalidTable, match=why) as err:
+            read_table({"frame": frame, **base}, role="truth")
+        assert err.value.column == "frame" and err.value.row == 0
+
+
+def test_long_integer_ids_are_exact(tmp_path):
+    # 30-digit ids (Python integers, exact): JSON Lines numbers and CSV text agree, and
+    # ids that differ in the last digit stay two frames
+    big = 10**29
+    d = frames_of(tmp_path, "d.jsonl", [big, big + 1])
+    t = frames_of(tmp_path, "t.csv", [big + 1, 7], role="truth")
+    assert d.frame.tolist() == [str(big), str(big + 1)]
+    assert t.frame.tolist() == [str(big + 1), "7"]
+    ev = evaluate(t, d)
+    # hand-worked: only frame big + 1 has both a truth and a detection
+    assert ev.counts("vessel")[:4] == (1, 1, 0, 1)
+    # unsigned 64-bit ids beyond int64 (Parquet uint64) are exact too
+    df = pd.DataFrame([dict(BOX, frame=np.uint64(2**64 - 1), score=0.9)])
+    df["frame"] = df["frame"].astype(np.uint64)
+    assert read_table(df, role="detections").frame.tolist() == [str(2**64 - 1)]
+
+
+def test_comparable_frame_ids_follow_the_rule():
+    from obbiou.tables import comparable_frame_ids, frame_ids
+
+    a, b = comparable_frame_ids([np.array([7, 10]), frame_ids(["0010", "x"])[0]])
+    assert a.tolist() == ["7", "10"] and b.tolist() == ["10", "x"]
+    a, b = comparable_frame_ids([np.array([7]), np.array([7.0])])
+    assert a.tolist() == b.tolist() == [7]

@@ -47,11 +47,11 @@ def _mix(values: np.ndarray) -> np.ndarray:
 def _frame_buckets(frame: np.ndarray, n_buckets: int) -> np.ndarray:
     """Bucket of each frame id, the same in every process and for either table.
 
-    Integer ids are mixed by splitmix64. Text ids that spell an integer (``"7"``) go where
-    that integer goes: by the frame-id rule (:func:`obbiou.tables.comparable_frame_ids`) ``7``
-    and ``"7"`` are one frame once either table has text ids, and a partition cannot know
-    what the other table holds; other text is hashed with pandas' fixed-key
-    hash, not Python's per-process ``hash``.
+    Integer ids are mixed by splitmix64. Text ids that spell an integer (``"7"``: the text
+    form of integer ids in a table that also holds names, :func:`obbiou.tables.frame_ids`)
+    go where that integer goes: ``7`` and ``"7"`` are one frame, and a partition cannot know
+    what the other table holds; other text is hashed with pandas' fixed-key hash, not
+    Python's per-process ``hash``.
     """
     import pandas as pd
 
@@ -82,7 +82,7 @@ def _split_frames(
     from obbiou.tables import read_table
 
     table = read_table(part, role=role, shape=shape, degrees=degrees)
-    table = replace(table, extra={})
+    table = replace(table, extra={}, frame_written=None)
     buckets = _frame_buckets(table.frame, n_buckets)
     order = np.argsort(buckets, kind="stable")  # stable: input order kept within a bucket
     cuts = np.searchsorted(buckets[order], np.arange(n_buckets + 1))
