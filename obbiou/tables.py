@@ -415,22 +415,49 @@ class _Where:
             return InvalidTable(self.source, reason, column=column)
         line = None
         if self.kind == "line":
+            if callable(self.lines):  # found only when an error needs it
+                self.lines = self.lines()
             line = self.lines[row] if self.lines is not None else row + self.first_line
         index = self.index[row] if self.index is not None else None
         return InvalidTable(self.source, reason, line=line, row=row, column=column, index=index)
 
 
+class _DuplicateKey(Exception):
+    """A JSON object names a key twice (raised by the pairs hook, reported with its line)."""
+
+
+def _object_without_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
+    obj = dict(pairs)
+    if len(obj) != len(pairs):
+        seen: set[str] = set()
+        for key, _ in pairs:
+            if key in seen:
+                raise _DuplicateKey(key)
+            seen.add(key)
+    return obj
+
+
 def _read_jsonl(path: str) -> tuple[dict[str, list], list[int]]:
     rows: list[dict] = []
     lines: list[int] = []
-    with open(path, encoding="utf-8") as fh:
-        for number, text in enumerate(fh, start=1):
+    with open(path, "rb") as fh:
+        for number, raw in enumerate(fh, start=1):
+            try:
+                text = raw.decode("utf-8")
+            except UnicodeDecodeError as exc:
+                raise InvalidTable(path, _not_utf8(raw, exc), line=number) from None
             if not text.strip():
                 continue  # blank lines carry no row; line numbers stay those of the file
             try:
-                obj = json.loads(text)
+                obj = json.loads(text, object_pairs_hook=_object_without_duplicates)
             except json.JSONDecodeError as exc:
                 raise InvalidTable(path, f"not valid JSON ({exc.msg})", line=number) from None
+            except _DuplicateKey as exc:
+                key = str(exc.args[0])
+                reason = "key given twice in one row (which one is meant is unknown)"
+                raise InvalidTable(path, reason, line=number, column=key) from None
+            except ValueError as exc:  # an integer of more than 4300 digits
+                raise InvalidTable(path, f"cannot read a number ({exc})", line=number) from None
             if not isinstance(obj, dict):
                 reason = f"expected a JSON object, got {obj!r:.40}"
                 raise InvalidTable(path, reason, line=number)
@@ -450,6 +477,56 @@ def _read_jsonl(path: str) -> tuple[dict[str, list], list[int]]:
     return columns, lines
 
 
+def _not_utf8(raw: bytes, exc: UnicodeDecodeError) -> str:
+    return (
+        f"not UTF-8 text (byte 0x{raw[exc.start]:02x} at byte {exc.start + 1} of the "
+        "line); save the file as UTF-8"
+    )
+
+
+def _first_line_not_utf8(path: str) -> tuple[int, str] | None:
+    """The first line of a file that is not UTF-8 (its number and the reason), or None."""
+    with open(path, "rb") as fh:
+        for number, raw in enumerate(fh, start=1):
+            try:
+                raw.decode("utf-8")
+            except UnicodeDecodeError as exc:
+                return number, _not_utf8(raw, exc)
+    return None
+
+
+def _csv_lines(path: str) -> list[int]:
+    """The physical line (1-based) on which each data record of a CSV file starts.
+
+    A quoted cell may span several lines, so record i is not always line i + 2; the
+    standard library's reader counts the lines it consumed (``line_num``).
+    """
+    import csv
+
+    starts = []
+    with open(path, encoding="utf-8", newline="") as fh:
+        reader = csv.reader(fh)
+        next(reader, None)  # the header
+        end = reader.line_num
+        for _ in reader:
+            starts.append(end + 1)
+            end = reader.line_num
+    return starts
+
+
+def _duplicated(names: list[str], source: str, line: int | None = None) -> None:
+    """Raise for the first column name given twice: never "the first one wins"."""
+    seen: dict[str, int] = {}
+    for position, name in enumerate(names, start=1):
+        if name in seen:
+            reason = (
+                f"column name given twice (columns {seen[name]} and {position}); which one "
+                "is meant is unknown"
+            )
+            raise InvalidTable(source, reason, line=line, column=name)
+        seen[name] = position
+
+
 def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
     """Columns of ``source`` as arrays, a namer for rows, and the number of rows."""
     import pandas as pd
@@ -461,27 +538,41 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
             raise InvalidTable(path, "no such file")
         if kind == "csv":
             try:
+                header = pd.read_csv(path, header=None, nrows=1, dtype=object)
+                _duplicated([str(c) for c in header.iloc[0].tolist()], path, line=1)
                 df = pd.read_csv(path, skip_blank_lines=False, dtype={"frame": object})
+            except UnicodeDecodeError:
+                line, reason = _first_line_not_utf8(path) or (None, "not UTF-8 text")
+                raise InvalidTable(path, reason, line=line) from None
+            except pd.errors.EmptyDataError:
+                raise InvalidTable(path, "empty file (no header line)") from None
+            except InvalidTable:
+                raise
             except Exception as exc:  # pandas parser errors name the line themselves
                 raise InvalidTable(path, f"cannot read as CSV ({exc})") from None
-            # Line 1 is the header; with blank lines kept, row i is line i + 2.
-            where = _Where(path, "line", first_line=2)
+            # Line 1 is the header; with blank lines kept, row i is line i + 2 unless a
+            # quoted cell spans lines: then the lines are counted, only for an error.
+            where = _Where(path, "line", first_line=2, lines=lambda: _csv_lines(path))
             return {str(c): df[c].to_numpy() for c in df.columns}, where, len(df)
         if kind == "parquet":
             try:
                 df = pd.read_parquet(path)
             except Exception as exc:
                 raise InvalidTable(path, f"cannot read as Parquet ({exc})") from None
+            _duplicated([str(c) for c in df.columns], path)
             return {str(c): df[c].to_numpy() for c in df.columns}, _Where(path, "row"), len(df)
         cols, lines = _read_jsonl(path)
-        arrays = {k: np.array(v, dtype=object) for k, v in cols.items()}
+        # one value per cell: lists stay objects (reported by column), never a 2-D array
+        arrays = {k: np.fromiter(v, dtype=object, count=len(v)) for k, v in cols.items()}
         return arrays, _Where(path, "line", lines=lines), len(lines)
     if isinstance(source, pd.DataFrame):
+        _duplicated([str(c) for c in source.columns], "<DataFrame>")
         cols = {str(c): source[c].to_numpy() for c in source.columns}
         return cols, _Where("<DataFrame>", "row", index=list(source.index)), len(source)
     if hasattr(source, "keys") and hasattr(source, "__getitem__"):
         cols = {}
         length = None
+        _duplicated([str(k) for k in source.keys()], "<mapping>")  # 7 and "7" are one name
         for key in source.keys():
             arr = np.asarray(source[key])
             if arr.ndim != 1:
@@ -522,12 +613,19 @@ def _numeric(values: np.ndarray, column: str, where: _Where) -> np.ndarray:
                 continue
             try:
                 out[i] = float(v)
+            except OverflowError:  # a JSON integer of hundreds of digits
+                reason = f"number of {len(str(abs(v)))} digits is beyond float64 (about 1.8e308)"
+                raise where.error(i, column, reason) from None
             except (TypeError, ValueError):
-                raise where.error(i, column, f"not a number: {v!r}") from None
+                raise where.error(i, column, f"not a number: {v!r:.40}") from None
     bad = ~np.isfinite(out)
     if bad.any():
         i = int(np.argmax(bad))
-        what = "empty value (NaN)" if np.isnan(out[i]) else f"infinite value {out[i]!r}"
+        what = (
+            "empty value (NaN)"
+            if np.isnan(out[i])
+            else f"infinite value {out[i]!r} (or a number beyond float64, about 1.8e308)"
+        )
         raise where.error(i, column, what)
     return out
 

@@ -324,3 +324,97 @@ def test_comparable_frame_ids_follow_the_rule():
     assert a.tolist() == ["7", "10"] and b.tolist() == ["10", "x"]
     a, b = comparable_frame_ids([np.array([7]), np.array([7.0])])
     assert a.tolist() == b.tolist() == [7]
+
+
+# -- malformed files: every error names the file, the line and the column ----------------
+
+HEADER = "frame,label,score,cx,cy,width,height,angle"
+
+
+def test_duplicated_column_names_are_an_error(tmp_path):
+    # a CSV header naming cx twice: pandas would rename the second "cx.1" and the first
+    # would silently win
+    path = tmp_path / "d.csv"
+    path.write_text(HEADER + ",cx\n1,a,0.9,0,0,2,1,0.3,5\n")
+    with pytest.raises(InvalidTable, match=r"columns 4 and 9") as err:
+        read_table(str(path), role="detections")
+    assert (err.value.source, err.value.line, err.value.column) == (str(path), 1, "cx")
+    # a JSON Lines row giving a key twice: json.loads would keep the last
+    path = tmp_path / "d.jsonl"
+    path.write_text(json.dumps(ROWS[0]) + "\n" + json.dumps(ROWS[1])[:-1] + ', "cx": 5}\n')
+    with pytest.raises(InvalidTable, match="key given twice") as err:
+        read_table(str(path), role="detections")
+    assert (err.value.line, err.value.column) == (2, "cx")
+    # a DataFrame with two columns of one name
+    df = pd.DataFrame(ROWS)
+    df.columns = [c if c != "camera" else "cx" for c in df.columns]
+    with pytest.raises(InvalidTable, match=r"<DataFrame>, column 'cx': column name given twice"):
+        read_table(df, role="detections")
+
+
+def test_suppress_refuses_duplicated_columns(tmp_path):
+    from tests.cli.test_commands import one_line_error, run
+
+    path = tmp_path / "d.csv"
+    path.write_text(HEADER + ",cx\n1,a,0.9,0,0,2,1,0.3,5\n")
+    out = tmp_path / "kept.csv"
+    line = one_line_error(run("suppress", str(path), "--out", str(out), "-q"))
+    assert "line 1, column 'cx': column name given twice" in line
+    assert not out.exists()  # no file with a "cx.1" column
+
+
+def test_long_numbers_are_errors_not_tracebacks(tmp_path):
+    path = tmp_path / "d.jsonl"
+    row = json.dumps(ROWS[0])
+    path.write_text(row + "\n" + row.replace('"cx": 10.0', '"cx": 1' + "0" * 400) + "\n")
+    with pytest.raises(InvalidTable, match="401 digits is beyond float64") as err:
+        read_table(str(path), role="detections")
+    assert (err.value.line, err.value.column) == (2, "cx")
+    # a float of 400 digits reads as inf: said as such
+    path.write_text(row.replace('"cx": 10.0', '"cx": 1' + "0" * 400 + ".5") + "\n")
+    with pytest.raises(InvalidTable, match="beyond float64") as err:
+        read_table(str(path), role="detections")
+    # more digits than Python reads as an integer (4300)
+    path.write_text(row.replace('"cx": 10.0', '"cx": 1' + "0" * 5000) + "\n")
+    with pytest.raises(InvalidTable, match=r"d\.jsonl, line 1: cannot read a number"):
+        read_table(str(path), role="detections")
+
+
+def test_non_utf8_files_name_the_file_and_line(tmp_path):
+    for name, text in (
+        (
+            "d.jsonl",
+            json.dumps(ROWS[0])
+            + "\n"
+            + json.dumps(dict(ROWS[1], label="caf\xe9"), ensure_ascii=False),
+        ),
+        ("d.csv", HEADER + "\n3,vessel,0.9,1,1,2,1,0\n3,caf\xe9,0.9,1,1,2,1,0\n"),
+    ):
+        path = tmp_path / name
+        path.write_bytes((text + "\n").encode("latin-1"))  # \xe9 is not UTF-8 on its own
+        with pytest.raises(InvalidTable, match="not UTF-8 text") as err:
+            read_table(str(path), role="detections")
+        # hand-counted: the bad row is line 2 of the JSON Lines file, line 3 of the CSV
+        assert (err.value.source, err.value.line) == (str(path), 2 if name == "d.jsonl" else 3)
+
+
+def test_list_valued_cells_name_line_and_column(tmp_path):
+    path = tmp_path / "d.jsonl"
+    path.write_text(json.dumps(ROWS[0]) + "\n" + json.dumps(dict(ROWS[1], cx=[1, 2])) + "\n")
+    with pytest.raises(InvalidTable, match="expected one value, got a list") as err:
+        read_table(str(path), role="detections")
+    assert (err.value.line, err.value.column) == (2, "cx")
+    # every row a list of the same length: never read as a 2-D column
+    path.write_text("".join(json.dumps(dict(r, cy=[1, 2])) + "\n" for r in ROWS))
+    with pytest.raises(InvalidTable, match="expected one value") as err:
+        read_table(str(path), role="detections")
+    assert (err.value.line, err.value.column) == (1, "cy")
+
+
+def test_csv_errors_after_a_quoted_newline_name_the_physical_line(tmp_path):
+    path = tmp_path / "d.csv"
+    path.write_text(HEADER + ',note\n1,a,0.9,0,0,2,1,0.3,"two\nlines"\n2,a,0.9,0,0,-2,1,0.3,x\n')
+    with pytest.raises(InvalidTable, match="negative width") as err:
+        read_table(str(path), role="detections")
+    # hand-counted: header line 1, the record with the quoted newline lines 2-3, then line 4
+    assert (err.value.line, err.value.column) == (4, "width")
