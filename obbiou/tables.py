@@ -38,7 +38,14 @@ from typing import Any, Literal
 import numpy as np
 
 from obbiou.errors import InvalidInput, InvalidTable
-from obbiou.shapes import COLUMNS, SHAPES, Boxes, read_boxes
+from obbiou.shapes import (
+    SHAPES,
+    Boxes,
+    box_columns,
+    layout_of_columns,
+    polygon_vertices,
+    read_boxes,
+)
 
 __all__ = [
     "Table",
@@ -290,27 +297,6 @@ def frame_groups(frames: np.ndarray) -> list[np.ndarray]:
     bounds = np.cumsum(np.bincount(inverse, minlength=len(first)))
     parts = np.split(rows, bounds[:-1])
     return [parts[i] for i in order]
-
-
-def box_columns(shape: str, vertices: int = 4) -> tuple[str, ...]:
-    """Column names of the boxes of layout ``shape`` in a table.
-
-    Examples
-    --------
-    >>> box_columns("rotated")
-    ('cx', 'cy', 'width', 'height', 'angle')
-    >>> box_columns("polygon", 3)
-    ('px0', 'py0', 'px1', 'py1', 'px2', 'py2')
-    """
-    if shape == "polygon":
-        return tuple(c for k in range(vertices) for c in (f"px{k}", f"py{k}"))
-    if shape not in COLUMNS:
-        raise InvalidInput(
-            "shape",
-            f"unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}",
-            message=f"unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}",
-        )
-    return COLUMNS[shape]
 
 
 @dataclass(frozen=True)
@@ -700,53 +686,26 @@ def _bools(values: np.ndarray, column: str, where: _Where) -> np.ndarray:
     return out
 
 
-def polygon_vertices(names: set[str]) -> int:
-    """How many polygon vertices the columns ``px0 py0 px1 py1 …`` present give."""
-    k = 0
-    while f"px{k}" in names and f"py{k}" in names:
-        k += 1
-    return k
-
-
 def infer_layout(names: set[str], source: str) -> str:
     """The box layout whose columns are present among ``names`` (``source`` names the table
-    in errors).
+    in errors); the rule of :func:`obbiou.shapes.layout_of_columns`.
 
     Examples
     --------
     >>> infer_layout({"frame", "cx", "cy", "cz", "length", "width", "height", "yaw"}, "t")
     'upright'
     """
-    complete = [s for s in ("upright", "axis3", "rotated", "axis") if set(COLUMNS[s]) <= names]
-    # A 3D layout's columns include those of a 2D one; the 3D one is meant.
-    if "upright" in complete and "rotated" in complete:
-        complete.remove("rotated")
-    if "axis3" in complete:
-        complete = [s for s in complete if s != "axis"]
-    if polygon_vertices(names) >= 3:
-        complete.append("polygon")
-    if len(complete) == 1:
-        return complete[0]
-    if len(complete) > 1:
-        raise InvalidTable(
-            source,
-            f"box columns of several layouts are present ({', '.join(complete)}); "
-            "pass shape= to choose one",
-        )
-    # Name what is missing for the layout that is closest to complete.
-    best = max(COLUMNS, key=lambda s: len(set(COLUMNS[s]) & names) / len(COLUMNS[s]))
-    missing = [c for c in COLUMNS[best] if c not in names]
-    if not set(COLUMNS[best]) & names:
+    try:
+        layout = layout_of_columns(names)
+    except InvalidInput as exc:
+        raise InvalidTable(source, exc.reason) from None
+    if layout is None:
         raise InvalidTable(
             source,
             "no box columns found; expected one of: "
             + "; ".join(f"{s}: {' '.join(box_columns(s))}" for s in SHAPES),
         )
-    raise InvalidTable(
-        source,
-        f"missing column {missing[0]!r} (the columns present look like the {best!r} "
-        f"layout: {' '.join(COLUMNS[best])})",
-    )
+    return layout
 
 
 def read_table(
