@@ -76,11 +76,18 @@ def _parse_buckets(spec: Any, what: str) -> dict[str, tuple[float, float]]:
                 raise InvalidInput(
                     what, f"bucket {name!r} needs (low, high), got {pair!r}"
                 ) from None
+            if math.isnan(lo) or math.isnan(hi):
+                raise InvalidInput(what, f"bucket {name!r} has a NaN edge: {pair!r}")
             if not lo < hi:
                 raise InvalidInput(what, f"bucket {name!r} needs low < high, got {pair!r}")
             out[str(name)] = (lo, hi)
         return out
-    edges = [float(e) for e in spec]
+    try:
+        edges = [float(e) for e in spec]
+    except (TypeError, ValueError):
+        raise InvalidInput(what, f"expected numbers as edges, got {spec!r}") from None
+    if any(math.isnan(e) for e in edges):
+        raise InvalidInput(what, f"an edge is NaN in {spec!r} (edges are numbers; inf is allowed)")
     if len(edges) < 2 or any(b <= a for a, b in zip(edges, edges[1:], strict=False)):
         raise InvalidInput(what, f"expected increasing edges (at least two), got {spec!r}")
     return {f"{a:g}-{b:g}": (a, b) for a, b in zip(edges, edges[1:], strict=False)}

@@ -479,3 +479,9 @@ def test_bev_flag_of_suppress_and_overlap(tmp_path):
     pairs = run("overlap", str(path), "--bev", "-q")
     assert pairs.returncode == 0, pairs.stderr
     assert pd.read_csv(io.StringIO(pairs.stdout))["iou"].tolist() == [1.0]
+
+
+def test_nan_bucket_edges_are_one_line(hand_files):
+    for option in ("--size-buckets", "--range-buckets"):
+        line = one_line_error(run("evaluate", *map(str, hand_files), option, "0,nan", "-q"))
+        assert f"{option} '0,nan': an edge is NaN" in line
