@@ -63,11 +63,12 @@ def warn_likely_mistakes(truth: Table, detections: Table, *, degrees: bool) -> l
     return messages
 
 
-def _written(table: Table, ids: np.ndarray) -> dict[Any, str]:
-    """Each frame (by its comparable id) and the text it was first written as."""
-    text = ids.astype(str) if table.frame_written is None else table.frame_written
+def _written(table: Table, ids: np.ndarray) -> dict[Any, Any]:
+    """Each frame (by its comparable id) and the id as first written (int or text)."""
+    written = table.frame if table.frame_written is None else table.frame_written
     _, first = np.unique(ids, return_index=True)
-    return {ids[i]: str(text[i]) for i in first.tolist()}
+    return {ids[i]: written[i].item() if hasattr(written[i], "item") else written[i]
+            for i in first.tolist()}  # fmt: skip
 
 
 def _frame_messages(truth: Table, detections: Table) -> list[str]:
@@ -81,7 +82,7 @@ def _frame_messages(truth: Table, detections: Table) -> list[str]:
             f"{_example(set(d_written.values()))}): every detection is a false positive, "
             "every truth a miss"
         ]
-    if set(t_written.values()) & set(d_written.values()):
+    if {str(v) for v in t_written.values()} & {str(v) for v in d_written.values()}:
         return []
     k = sorted(common, key=str)[0]
     n = len(common)

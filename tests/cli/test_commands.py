@@ -485,3 +485,8 @@ def test_nan_bucket_edges_are_one_line(hand_files):
     for option in ("--size-buckets", "--range-buckets"):
         line = one_line_error(run("evaluate", *map(str, hand_files), option, "0,nan", "-q"))
         assert f"{option} '0,nan': an edge is NaN" in line
+
+
+def test_too_many_thresholds_is_one_line(hand_files):
+    line = one_line_error(run("evaluate", *map(str, hand_files), "--iou", "0.5:0.95:0.00000009"))
+    assert "gives 5,000,001 thresholds; at most 100,001" in line

@@ -40,7 +40,7 @@ def test_frame_ids_written_differently():
     got = messages(truth, dets)
     assert len(got) == 1
     assert "share no frame id as written; 1 frame matches only because integer-valued" in got[0]
-    assert "truth '7', detections '007'" in got[0]
+    assert "truth 7, detections '007'" in got[0]
     # the same ids written alike in one frame at least: nothing to say (hand-worked)
     truth, dets = tables([7, 8], ["007", "8"])
     assert messages(truth, dets) == []
