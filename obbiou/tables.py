@@ -56,6 +56,9 @@ __all__ = [
     "polygon_vertices",
     "TABLE_SUFFIXES",
     "table_format",
+    "table_files",
+    "natural_key",
+    "read_columns",
     "comparable_frame_ids",
     "frame_ids",
     "frame_groups",
@@ -96,6 +99,64 @@ def table_format(path: Any) -> str:
             ".jsonl (.ndjson)",
         )
     return TABLE_SUFFIXES[ext]
+
+
+_RUNS = re.compile(r"([0-9]+)")
+
+
+def natural_key(name: str) -> tuple:
+    """Sort key of a file name in natural order: runs of digits compare by their value.
+
+    ``"f2"`` comes before ``"f10"``; equal values compare by their text (``"f02"`` before
+    ``"f2"``), and digits before letters, as in plain text order.
+
+    Examples
+    --------
+    >>> sorted(["f10.csv", "f2.csv", "f1.csv", "F3.csv", "f02.csv"], key=natural_key)
+    ['F3.csv', 'f1.csv', 'f02.csv', 'f2.csv', 'f10.csv']
+    """
+    return tuple(
+        (0, int(run), run) if k % 2 else (1, run, "")
+        for k, run in enumerate(_RUNS.split(name))
+        if run
+    )
+
+
+def table_files(folder: Any) -> list[Path]:
+    """The table files of a folder and its subfolders, in natural order of their paths.
+
+    Files with a suffix of :data:`TABLE_SUFFIXES`; names starting with ``.`` or ``_`` (hidden
+    files, the ``_SUCCESS`` and ``_metadata`` files of dataset writers), in the folder or
+    above the file, are left out. The order — natural order of the path below the folder,
+    folder by folder (``f2`` before ``f10``; see :func:`natural_key`) — is the order rows are
+    read in, so it decides the input order that breaks ties between equal scores. Every
+    reader of folders (in process and on a cluster) uses it.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> d = Path(tempfile.mkdtemp())
+    >>> for name in ("f10.csv", "f2.csv", "_SUCCESS", "notes.txt", "b/f1.parquet"):
+    ...     (d / name).parent.mkdir(exist_ok=True)
+    ...     (d / name).touch()
+    >>> [p.relative_to(d).as_posix() for p in table_files(d)]
+    ['b/f1.parquet', 'f2.csv', 'f10.csv']
+    >>> table_files("no/such/folder")
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidTable: no/such/folder: not a folder
+    """
+    root = Path(folder)
+    if not root.is_dir():
+        raise InvalidTable(str(root), "not a folder")
+    files = []
+    for path in root.rglob("*"):
+        rel = path.relative_to(root)
+        if any(part.startswith((".", "_")) for part in rel.parts):
+            continue
+        if path.is_file() and path.suffix.lower() in TABLE_SUFFIXES:
+            files.append(path)
+    return sorted(files, key=lambda p: tuple(natural_key(q) for q in p.relative_to(root).parts))
 
 
 def write_table(table: Any, path: Any) -> Path:
@@ -577,6 +638,25 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
     )
 
 
+def read_columns(path: Any) -> Any:
+    """A table file's columns as a pandas DataFrame, parsed exactly as :func:`read_table`
+    parses files (frame ids as written, no column named twice, UTF-8, one value per cell),
+    not yet validated as boxes. Cluster workers load files with it.
+
+    Examples
+    --------
+    >>> import tempfile, os
+    >>> p = os.path.join(tempfile.mkdtemp(), "t.csv")
+    >>> _ = open(p, "w").write("frame,label" + chr(10) + "007,vessel" + chr(10))
+    >>> read_columns(p)["frame"].tolist()
+    ['007']
+    """
+    import pandas as pd
+
+    cols, _, n = _load(os.fspath(path))
+    return pd.DataFrame(cols, index=pd.RangeIndex(n))
+
+
 def _is_empty(value: Any) -> bool:
     if value is None:
         return True
@@ -708,6 +788,53 @@ def infer_layout(names: set[str], source: str) -> str:
     return layout
 
 
+def _read_folder(folder: str, role: str, shape: str | None, degrees: bool) -> Table:
+    """The tables of a folder's files (:func:`table_files` order) as one table."""
+    files = table_files(folder)
+    if not files:
+        reason = "folder holds no table files (.csv, .parquet, .pq, .jsonl, .ndjson)"
+        raise InvalidTable(folder, reason)
+    parts: list[Table] = []
+    for path in files:
+        part = read_table(path, role=role, shape=shape, degrees=degrees)
+        if parts:
+            first = parts[0]
+            if part.shape != first.shape or part.boxes.data.shape[1:] != first.boxes.data.shape[1:]:
+                reason = (
+                    f"boxes of shape {part.shape!r} ({part.boxes.data.shape[1:]}) while "
+                    f"{first.source} has {first.shape!r} ({first.boxes.data.shape[1:]})"
+                )
+                raise InvalidTable(str(path), reason)
+            if list(part.extra) != list(first.extra):
+                reason = (
+                    f"other columns ({', '.join(part.extra) or 'none'}) than {first.source} "
+                    f"({', '.join(first.extra) or 'none'}); every file of a folder needs the same"
+                )
+                raise InvalidTable(str(path), reason)
+        shape = part.shape
+        parts.append(part)
+    frames = comparable_frame_ids([p.frame for p in parts])
+    written = None
+    if any(p.frame_written is not None for p in parts):
+        written = np.concatenate(
+            [
+                (p.frame if p.frame_written is None else p.frame_written).astype(object)
+                for p in parts
+            ]
+        )
+    return Table(
+        role,
+        np.concatenate(frames),
+        np.concatenate([p.label for p in parts]),
+        None if role == "truth" else np.concatenate([p.score for p in parts]),
+        np.concatenate([p.ignore for p in parts]),
+        Boxes(np.ascontiguousarray(np.concatenate([p.boxes.data for p in parts])), shape, False),
+        {c: np.concatenate([p.extra[c] for p in parts]) for c in parts[0].extra},
+        folder,
+        written,
+    )
+
+
 def read_table(
     source: Any,
     *,
@@ -720,8 +847,10 @@ def read_table(
     Parameters
     ----------
     source : str, os.PathLike, pandas.DataFrame or mapping
-        A ``.csv``, ``.parquet`` (``.pq``) or ``.jsonl`` (``.ndjson``) file, a DataFrame, or a
-        mapping of column name -> 1-D array. A :class:`Table` is returned as it is.
+        A ``.csv``, ``.parquet`` (``.pq``) or ``.jsonl`` (``.ndjson``) file, a folder of such
+        files (read in the natural order of their names, :func:`table_files`, as one table;
+        every file with the same columns), a DataFrame, or a mapping of column name -> 1-D
+        array. A :class:`Table` is returned as it is.
     role : {"truth", "detections"}
         Detections need a ``score`` column; truth may have a boolean ``ignore`` column.
     shape : str, optional
@@ -765,6 +894,8 @@ def read_table(
         return source
     if role not in _ROLES:
         raise InvalidInput("role", f"expected 'truth' or 'detections', got {role!r}")
+    if isinstance(source, (str, os.PathLike)) and os.path.isdir(source):
+        return _read_folder(os.fspath(source), role, shape, degrees)
     cols, where, n = _load(source)
     name = where.source
     names = set(cols)

@@ -418,3 +418,66 @@ def test_csv_errors_after_a_quoted_newline_name_the_physical_line(tmp_path):
         read_table(str(path), role="detections")
     # hand-counted: header line 1, the record with the quoted newline lines 2-3, then line 4
     assert (err.value.line, err.value.column) == (4, "width")
+
+
+# -- folders: the files in natural order of their names, as one table -------------------
+
+
+def tie_folders(tmp_path, suffix):
+    """One truth; two detections of equal score in one frame, in files f2 and f10: the one
+    in f2 is the truth itself (IoU 1), the one in f10 lies elsewhere (IoU 0)."""
+    truth, dets = tmp_path / "truth", tmp_path / "dets"
+    truth.mkdir()
+    dets.mkdir()
+    box = dict(BOX, frame=5)
+    write(truth, f"t1{suffix}", [box])
+    write(dets, f"f2{suffix}", [dict(box, score=0.5)])
+    write(dets, f"f10{suffix}", [dict(box, score=0.5, cx=500.0)])
+    (dets / "_SUCCESS").write_text("")  # dataset writers leave such files: not a table
+    return str(truth), str(dets)
+
+
+@pytest.mark.parametrize("suffix", [".parquet", ".csv", ".jsonl"])
+def test_folders_are_read_in_natural_order(tmp_path, suffix):
+    truth, dets = tie_folders(tmp_path, suffix)
+    d = read_table(dets, role="detections")
+    assert d.boxes.data[:, 0].tolist() == [10.0, 500.0]  # f2 before f10
+    # hand-worked: ranked by score, ties in input order: TP then FP, precision 1 at recall 1
+    # (AP 1.0); in plain text order (f10 first) it would be FP, TP: AP 0.5
+    ev = evaluate(truth, dets)
+    assert ev.ap("vessel") == 1.0 and ev.counts("vessel")[:4] == (1, 1, 0, 0)
+
+
+def test_folder_of_files_equals_the_rows_in_one_table(tmp_path):
+    folder = tmp_path / "scan"
+    (folder / "b").mkdir(parents=True)
+    write(folder, "f10.csv", ROWS[2:])
+    write(folder, "f9.jsonl", ROWS[1:2])
+    write(folder / "b", "a.parquet", ROWS[:1])  # the folder b sorts before f9
+    t = read_table(str(folder), role="detections")
+    same(t, read_table(pd.DataFrame(ROWS), role="detections"))
+    assert t.source == str(folder)
+
+
+def test_folder_errors_name_the_file(tmp_path):
+    folder = tmp_path / "d"
+    folder.mkdir()
+    with pytest.raises(InvalidTable, match="holds no table files"):
+        read_table(str(folder), role="detections")
+    write(folder, "a.csv", ROWS[:1])
+    write(folder, "b.csv", [{k: v for k, v in ROWS[1].items() if k != "camera"}])
+    with pytest.raises(InvalidTable, match="other columns") as err:
+        read_table(str(folder), role="detections")
+    assert err.value.source.endswith("b.csv")
+    (folder / "b.csv").write_text(HEADER + ",camera\n3,a,0.9,1,1,-2,1,0,x\n")
+    with pytest.raises(InvalidTable, match="negative width") as err:
+        read_table(str(folder), role="detections")
+    assert err.value.source.endswith("b.csv") and err.value.line == 2
+
+
+def test_natural_key_orders_numbers_by_value():
+    from obbiou.tables import natural_key
+
+    names = ["f10", "f2", "f1", "f02", "g", "f", "10", "9"]
+    # hand-sorted: digit runs by value (ties by text), digits before letters
+    assert sorted(names, key=natural_key) == ["9", "10", "f", "f1", "f02", "f2", "f10", "g"]

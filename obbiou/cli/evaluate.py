@@ -15,7 +15,8 @@ EXAMPLE = (
     "  obbiou evaluate truth.csv detections.csv --iou 0.5:0.95:0.05 \\\n"
     "      --json result.json --plot curves.png\n"
     "  obbiou evaluate truth.parquet dets.parquet --iou 0.5 --iou crane=0.7 --interval\n"
-    "  obbiou evaluate truth/ dets/ --workers 2      # folders of Parquet files, on Dask"
+    "  obbiou evaluate truth/ dets/                  # folders of table files, natural order\n"
+    "  obbiou evaluate truth/ dets/ --workers 2      # the same, matched on Dask workers"
 )
 
 
@@ -23,12 +24,12 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument(
         "truth",
         metavar="TRUTH",
-        help="ground-truth table (with --workers/--scheduler: or a folder)",
+        help="ground-truth table, or a folder of them (read in natural order of file names)",
     )
     p.add_argument(
         "detections",
         metavar="DETECTIONS",
-        help="detections table (with --workers/--scheduler: or a folder of Parquet files)",
+        help="detections table, or a folder of them (read in natural order of file names)",
     )
     add_matching(p)
     p.add_argument(

@@ -179,8 +179,10 @@ def evaluate_distributed(
     truth, detections : Dask DataFrame, str or path, or pandas DataFrame
         Tables with the columns of :func:`obbiou.evaluation.read_table` (``frame``,
         ``label``, ``score`` for detections, optional ``ignore`` for truth, and the box
-        columns of one layout). A folder is read as a Parquet dataset (every worker must see
-        the same path); a single file or an in-memory table is cut into pieces here.
+        columns of one layout). A folder gives one partition per table file (Parquet, CSV,
+        JSON Lines; natural order of the names, :func:`obbiou.tables.table_files`), read on
+        the workers (every worker must see the same path); a single file or an in-memory
+        table is cut into pieces here.
     shape, iou, ap, recall_points, max_detections, size_buckets, range_buckets : optional
         As for :func:`obbiou.evaluation.evaluate` (the protocol is written out there).
     degrees, localisation_floor : optional
