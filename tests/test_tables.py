@@ -5,6 +5,8 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from obbiou.errors import InvalidTable
 from obbiou.evaluation import evaluate, read_table
@@ -481,3 +483,22 @@ def test_natural_key_orders_numbers_by_value():
     names = ["f10", "f2", "f1", "f02", "g", "f", "10", "9"]
     # hand-sorted: digit runs by value (ties by text), digits before letters
     assert sorted(names, key=natural_key) == ["9", "10", "f", "f1", "f02", "f2", "f10", "g"]
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.integers(-(10**40), 10**40), st.integers(0, 3), st.sampled_from(["", " ", "+"]))
+def test_integer_text_is_its_integer_exactly(k, zeros, decoration):
+    from obbiou.tables import comparable_frame_ids, frame_ids
+
+    # the reference is Python's own integer arithmetic (exact at any length)
+    sign = "-" if k < 0 else ("+" if decoration == "+" else "")
+    text = f"{' ' if decoration == ' ' else ''}{sign}{'0' * zeros}{abs(k)}"
+    ids, _ = frame_ids(np.array([text, "name"], dtype=object))
+    assert ids.tolist() == [str(k), "name"]  # with a name among them, ids are text
+    alone, _ = frame_ids(np.array([text], dtype=object))
+    if -(2**63) <= k < 2**63:
+        assert alone.dtype == np.int64 and int(alone[0]) == k
+        (a,) = comparable_frame_ids([np.array([k], dtype=np.int64)])
+        assert a.tolist() == alone.tolist()
+    else:
+        assert alone.tolist() == [str(k)]
