@@ -92,7 +92,7 @@ def _split_frames(
 def _join_tables(pieces: Sequence[Any]) -> Any:
     """One table from per-partition pieces, in partition order (that is, input order)."""
     from obbiou.shapes import Boxes
-    from obbiou.tables import Table
+    from obbiou.tables import Table, comparable_frame_ids
 
     first = pieces[0]
     layouts = {p.shape for p in pieces if len(p)}
@@ -104,9 +104,7 @@ def _join_tables(pieces: Sequence[Any]) -> Any:
         )
     layout = layouts.pop() if layouts else first.shape
     data = [p.boxes.data for p in pieces if len(p)] or [first.boxes.data]
-    frames = [p.frame for p in pieces]
-    if any(f.dtype.kind not in "iu" for f in frames):
-        frames = [f.astype(object) for f in frames]
+    frames = comparable_frame_ids([p.frame for p in pieces])  # all int64, or all text
     return Table(
         first.role,
         np.concatenate(frames),
