@@ -223,8 +223,10 @@ def frame_ids(values: Any, *, name: str = "frame") -> tuple[np.ndarray, np.ndarr
       NaN) is an error: above 2**53 two ids written differently can round to one float
       (``1e19`` and ``1e19 + 1``), so the float may not be the id that was written.
       Write such ids as integers or as text.
-    * Integers of any length are exact (a 30-digit id is held as its decimal text); booleans
-      and other values (lists, None) are errors.
+    * Integers of any length are exact (a 30-digit id is held as its decimal text).
+    * Timestamps (``datetime64``) are names: their ISO text in nanoseconds, so that the same
+      instant meets itself in tables of different time units. Booleans and other values
+      (lists, None) are errors.
 
     The ids come back as int64 when every id is an integer within int64, else as text (an
     object array of str; integers as their decimal digits without leading zeros), so that
@@ -269,6 +271,12 @@ def frame_ids(values: Any, *, name: str = "frame") -> tuple[np.ndarray, np.ndarr
         return values.astype(np.int64), None
     if kind == "b":
         raise InvalidInput(name, _other_reason(bool(values[0])), row=0)
+    if kind == "M":  # timestamps are names: their ISO text, in one unit for every table
+        bad = np.isnat(values)
+        if bad.any():
+            raise InvalidInput(name, "empty value (NaT)", row=int(np.argmax(bad)))
+        text = np.datetime_as_string(values.astype("datetime64[ns]"), unit="ns")
+        return text.astype(object), None
     return _frame_ids_of_objects(values, name)
 
 
@@ -818,7 +826,7 @@ def _read_folder(folder: str, role: str, shape: str | None, degrees: bool) -> Ta
     if any(p.frame_written is not None for p in parts):
         written = np.concatenate(
             [
-                (p.frame if p.frame_written is None else p.frame_written).astype(object)
+                p.frame.astype(str).astype(object) if p.frame_written is None else p.frame_written
                 for p in parts
             ]
         )

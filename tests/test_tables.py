@@ -8,7 +8,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from obbiou.errors import InvalidTable
+from obbiou.errors import InvalidInput, InvalidTable
 from obbiou.evaluation import evaluate, read_table
 
 ROWS = [
@@ -502,3 +502,16 @@ def test_integer_text_is_its_integer_exactly(k, zeros, decoration):
         assert a.tolist() == alone.tolist()
     else:
         assert alone.tolist() == [str(k)]
+
+
+def test_timestamps_are_names_in_one_unit():
+    from obbiou.tables import comparable_frame_ids, frame_ids
+
+    # the same instant in microseconds and in nanoseconds is one frame (ISO 8601 text)
+    us = np.array(["2026-03-01T10:00:00.250"], dtype="datetime64[us]")
+    ns = us.astype("datetime64[ns]")
+    (a, _), (b, _) = frame_ids(us), frame_ids(ns)
+    assert a.tolist() == b.tolist() == ["2026-03-01T10:00:00.250000000"]
+    assert comparable_frame_ids([a, np.array([7])])[0].tolist() == a.tolist()
+    with pytest.raises(InvalidInput, match="NaT"):
+        frame_ids(np.array(["NaT"], dtype="datetime64[ns]"))
