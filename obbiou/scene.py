@@ -62,7 +62,7 @@ class Pairs:
 
         Entry ``[first[k], second[k]]`` holds ``iou[k]``; absent entries are pairs that do
         not overlap (IoU 0, or not above ``min_iou``). Self-pairs fill the upper triangle
-        only. Needs scipy.
+        only. Needs scipy (part of the ``eval`` extra: ``pip install 'obbiou[eval]'``).
 
         Examples
         --------
@@ -73,9 +73,10 @@ class Pairs:
         """
         try:
             from scipy import sparse
-        except ImportError:  # pragma: no cover - scipy is installed in the test setup
+        except ImportError:
             raise ImportError(
-                "Pairs.to_sparse needs scipy; install it with `pip install scipy`"
+                "Pairs.to_sparse needs scipy, which is not installed; install the eval extra "
+                "(pip install 'obbiou[eval]') or scipy itself (pip install scipy)"
             ) from None
         return sparse.csr_array(
             (self.iou, (self.first, self.second)), shape=(self.n_first, self.n_second)

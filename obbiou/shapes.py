@@ -25,6 +25,9 @@ This module is the one place where input is read and checked; the numba kernels 
 
 from __future__ import annotations
 
+import re
+import sys
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -35,6 +38,9 @@ from obbiou.errors import InvalidInput
 __all__ = [
     "SHAPES",
     "COLUMNS",
+    "box_columns",
+    "polygon_vertices",
+    "layout_of_columns",
     "Boxes",
     "read_boxes",
     "check",
@@ -55,6 +61,89 @@ COLUMNS: dict[str, tuple[str, ...]] = {
     "upright": ("cx", "cy", "cz", "length", "width", "height", "yaw"),
 }
 _BY_WIDTH = {len(cols): name for name, cols in COLUMNS.items()}
+
+
+def box_columns(shape: str, vertices: int = 4) -> tuple[str, ...]:
+    """Column names of the boxes of layout ``shape`` in a table (polygons: ``px0 py0 …``).
+
+    Examples
+    --------
+    >>> box_columns("rotated")
+    ('cx', 'cy', 'width', 'height', 'angle')
+    >>> box_columns("polygon", 3)
+    ('px0', 'py0', 'px1', 'py1', 'px2', 'py2')
+    """
+    if shape == "polygon":
+        return tuple(c for k in range(vertices) for c in (f"px{k}", f"py{k}"))
+    if shape not in COLUMNS:
+        reason = f"unknown shape {shape!r}; expected one of {', '.join(map(repr, SHAPES))}"
+        raise InvalidInput("shape", reason, message=reason)
+    return COLUMNS[shape]
+
+
+def polygon_vertices(names: Any) -> int:
+    """How many polygon vertices the columns ``px0 py0 px1 py1 …`` present give."""
+    k = 0
+    while f"px{k}" in names and f"py{k}" in names:
+        k += 1
+    return k
+
+
+#: Every column name of a box layout (polygon vertices aside).
+_BOX_NAMES = frozenset(c for cols in COLUMNS.values() for c in cols)
+_VERTEX_NAME = re.compile(r"p[xy][0-9]+")
+
+
+def layout_of_columns(names: Any, *, name: str = "boxes") -> str | None:
+    """The layout whose box columns are all among the column ``names``; None when no name
+    is a box column name of any layout (the columns are then read by position).
+
+    A 3D layout's columns include a 2D one's (``axis3`` those of ``axis``): the 3D one is
+    meant. Columns of two complete layouts, or of none complete while some box column
+    names are present, raise :class:`~obbiou.errors.InvalidInput` naming what is missing.
+
+    Examples
+    --------
+    >>> layout_of_columns(["frame", "cy", "cx", "angle", "height", "width"])
+    'rotated'
+    >>> layout_of_columns(["x", "y", "w", "h", "a"]) is None
+    True
+    >>> layout_of_columns(["cx", "cy", "w", "h", "angle"])
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: boxes: missing column 'width' (the columns present look like
+    the 'rotated' layout: cx cy width height angle)
+    """
+    names = {str(c) for c in names}
+    complete = [s for s in ("upright", "axis3", "rotated", "axis") if set(COLUMNS[s]) <= names]
+    if "upright" in complete and "rotated" in complete:
+        complete.remove("rotated")
+    if "axis3" in complete:
+        complete = [s for s in complete if s != "axis"]
+    if polygon_vertices(names) >= 3:
+        complete.append("polygon")
+    if len(complete) == 1:
+        return complete[0]
+    if len(complete) > 1:
+        reason = (
+            f"box columns of several layouts are present ({', '.join(complete)}); "
+            "pass shape= to choose one"
+        )
+        raise InvalidInput(name, reason)
+    if not names & _BOX_NAMES and not any(_VERTEX_NAME.fullmatch(c) for c in names):
+        return None
+    if not names & _BOX_NAMES:
+        reason = "polygon columns need at least px0 py0 px1 py1 px2 py2"
+        raise InvalidInput(name, reason)
+    # Name what is missing for the layout that is closest to complete.
+    best = max(COLUMNS, key=lambda s: len(set(COLUMNS[s]) & names) / len(COLUMNS[s]))
+    missing = [c for c in COLUMNS[best] if c not in names]
+    reason = (
+        f"missing column {missing[0]!r} (the columns present look like the {best!r} "
+        f"layout: {' '.join(COLUMNS[best])})"
+    )
+    raise InvalidInput(name, reason)
+
 
 #: Which columns are sizes (must be >= 0), per flat layout.
 _SIZE_COLUMNS = {
@@ -225,6 +314,15 @@ def read_boxes(boxes: Any, shape: str | None = None, *, name: str = "boxes") -> 
     >>> b.shape, b.single, b.data.shape
     ('rotated', True, (1, 5))
     """
+    named = None if isinstance(boxes, np.ndarray) else _by_name(boxes, shape, name)
+    if named is not None:
+        boxes, shape, columns = named
+        try:
+            return read_boxes(boxes, shape, name=name)
+        except InvalidInput as exc:  # name the table's column, not its position in the layout
+            if isinstance(exc.column, int):
+                exc.column = columns[exc.column]
+            raise
     arr = as_float_array(boxes, name)
     if arr.ndim == 1 and arr.size == 0 and shape is None:
         raise InvalidInput(name, "an empty 1-D array has no layout; pass shape= or an (0, C) array")
@@ -235,6 +333,81 @@ def read_boxes(boxes: Any, shape: str | None = None, *, name: str = "boxes") -> 
     if arr.size:
         _validate(arr, layout, name)
     return Boxes(arr, layout, single)
+
+
+def _columns_of(boxes: Any) -> tuple[list[Any], Any] | None:
+    """The column labels of a table-like input and how to get a column, or None.
+
+    A pandas DataFrame (columns), a pandas Series (one box: its index) or a mapping of
+    column -> values. pandas is looked up only when it is already imported: an object of it
+    cannot exist otherwise.
+    """
+    pd = sys.modules.get("pandas")
+    if pd is not None and isinstance(boxes, (pd.DataFrame, pd.Series)):
+        labels = list(boxes.columns if isinstance(boxes, pd.DataFrame) else boxes.index)
+        return labels, boxes.__getitem__
+    if isinstance(boxes, Mapping):
+        return list(boxes.keys()), boxes.__getitem__
+    return None
+
+
+def _by_name(boxes: Any, shape: str | None, name: str) -> tuple[np.ndarray, str, tuple] | None:
+    """A table's box columns in layout order, read by their names; None to read by position.
+
+    Columns are read by name when their names name a layout's columns (``cx cy width height
+    angle``, ``px0 py0 …``: :func:`box_columns`); by position only when no column name is a
+    box column name. The layout's columns, the layout and the column names are returned.
+    """
+    found = _columns_of(boxes)
+    if found is None:
+        return None
+    labels, get = found
+    by_text = {}
+    for label in labels:
+        if str(label) in by_text:
+            raise InvalidInput(name, "column name given twice", column=str(label))
+        by_text[str(label)] = label
+    if shape is None:
+        shape = layout_of_columns(by_text, name=name)
+        positional = shape is None
+    else:  # by position only when no name is a box column name of any layout
+        positional = not set(by_text) & _BOX_NAMES and not any(
+            _VERTEX_NAME.fullmatch(c) for c in by_text
+        )
+    if positional:
+        if isinstance(boxes, Mapping):  # the columns in their order
+            return _stack([get(k) for k in labels], labels, name), shape, tuple(labels)
+        return None  # a DataFrame or Series: numpy reads it by position
+    vertices = max(polygon_vertices(by_text), 3) if shape == "polygon" else 4
+    columns = box_columns(shape, vertices)
+    missing = [c for c in columns if c not in by_text]
+    if missing:
+        reason = f"missing column {missing[0]!r} (shape {shape!r} needs {' '.join(columns)})"
+        raise InvalidInput(name, reason, column=missing[0])
+    data = _stack([get(by_text[c]) for c in columns], columns, name)
+    if shape == "polygon":
+        data = data.reshape(*data.shape[:-1], vertices, 2)
+    return data, shape, columns
+
+
+def _stack(values: list[Any], columns: Any, name: str) -> np.ndarray:
+    """Columns (or, for one box, values) side by side as float64: (N, C), or (C,)."""
+    out = []
+    scalars = all(np.ndim(v) == 0 for v in values)
+    for column, v in zip(columns, values, strict=True):
+        try:
+            arr = as_float_array(v, name)
+        except InvalidInput as exc:
+            reason = f"column {str(column)!r}: {exc.reason}"
+            raise InvalidInput(name, reason, column=str(column)) from None
+        out.append(arr.reshape(-1) if scalars else arr)
+    if not out:
+        return np.zeros((0, 0))
+    if scalars:
+        return np.concatenate(out)  # one box: a row of scalars
+    if any(a.ndim != 1 for a in out) or len({len(a) for a in out}) > 1:
+        raise InvalidInput(name, "columns must be 1-D and of one length")
+    return np.stack(out, axis=-1)
 
 
 def check(boxes: Any, shape: str | None = None, *, name: str = "boxes") -> np.ndarray:

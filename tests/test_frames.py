@@ -50,7 +50,8 @@ def test_overlap_frames_matches_integer_and_text_frame_ids():
     b = table(["7", "9"], role="truth", seed=2)
     pairs = overlap_frames(a, b)
     assert set(pairs["frame"].tolist()) <= {7}
-    rows_a, rows_b = np.flatnonzero(a.frame == 7), np.flatnonzero(b.frame == "7")
+    assert sorted(set(b.frame.tolist())) == [7, 9]  # "7" spells an integer: it is frame 7
+    rows_a, rows_b = np.flatnonzero(a.frame == 7), np.flatnonzero(b.frame == 7)
     ref = obbiou.overlapping_pairs(a.boxes.data[rows_a], b.boxes.data[rows_b])
     assert pairs["first"].tolist() == rows_a[ref.first].tolist()
     assert pairs["second"].tolist() == rows_b[ref.second].tolist()

@@ -188,6 +188,15 @@ def test_sparse_matrix_matches_pairs():
     np.testing.assert_array_equal(sp.toarray(), dense)
 
 
+def test_sparse_matrix_without_scipy_says_what_to_install(monkeypatch):
+    import sys
+
+    p = overlapping_pairs([[0, 0, 2, 2], [1, 0, 3, 2]])
+    monkeypatch.setitem(sys.modules, "scipy", None)  # as if scipy were not installed
+    with pytest.raises(ImportError, match=r"needs scipy.*pip install 'obbiou\[eval\]'"):
+        p.to_sparse()
+
+
 def test_mixed_layouts_in_2d_and_bev_footprint():
     from obbiou.boxes import footprint
 

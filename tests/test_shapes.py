@@ -510,3 +510,89 @@ def test_sizes_that_overflow_float64_are_rejected(rows, shape, message):
     # An area of inf would turn iou(x, x) into inf/inf: the project's rule is an error, not NaN.
     with pytest.raises(ValueError, match="^" + re.escape(message)):
         check(rows, shape, name="b")
+
+
+# -- tables read by column name (the gate reads DataFrames and mappings by their names) ----
+
+
+def _shapely_rotated(rows: np.ndarray) -> np.ndarray:
+    """shapely polygons of (cx, cy, width, height, angle) rows, corners worked out here."""
+    c, s = np.cos(rows[:, 4]), np.sin(rows[:, 4])
+    hw, hh = rows[:, 2] / 2, rows[:, 3] / 2
+    pts = []
+    for sx, sy in ((-1, -1), (1, -1), (1, 1), (-1, 1)):
+        pts.append(
+            np.stack(
+                [rows[:, 0] + sx * hw * c - sy * hh * s, rows[:, 1] + sx * hw * s + sy * hh * c], 1
+            )
+        )
+    return shapely.polygons(np.stack(pts, axis=1))
+
+
+@settings(max_examples=60, deadline=None)
+@given(rotated_boxes(min_n=1, max_n=6), rotated_boxes(min_n=1, max_n=6), st.randoms())
+def test_dataframe_columns_in_another_order_are_read_by_name(a, b, rnd):
+    import pandas as pd
+
+    import obbiou
+
+    names = ["cx", "cy", "width", "height", "angle"]
+    order = names[:]
+    rnd.shuffle(order)
+    da = pd.DataFrame(a, columns=names)[order].assign(score=0.5)  # an extra column too
+    db = pd.DataFrame(b, columns=names)[order[::-1]]
+    got = obbiou.iou(da, db)
+    assert np.array_equal(got, obbiou.iou(a, b))  # the same numbers as the plain arrays
+    # shapely on the boxes the names describe is the outside reference
+    pa, pb = _shapely_rotated(a), _shapely_rotated(b)
+    inter = shapely.area(shapely.intersection(pa[:, None], pb[None, :]))
+    union = shapely.area(pa)[:, None] + shapely.area(pb)[None, :] - inter
+    with np.errstate(invalid="ignore", divide="ignore"):
+        want = np.where(union > 0, inter / union, 0.0)
+    np.testing.assert_allclose(got, want, atol=1e-7)
+    # a mapping of columns and one row (a Series) are read by name as well
+    assert np.array_equal(obbiou.iou(dict(da), db), got)
+    assert np.array_equal(obbiou.iou(da.iloc[0], db), got[0])
+
+
+def test_columns_by_name_for_every_layout_and_by_position_without_names():
+    import pandas as pd
+
+    import obbiou
+
+    # hand-worked: the square [0, 2]^2 against the axis box [0, 2] x [0, 1]: IoU 2 / 4
+    square = {"py0": [0.0], "px0": [0.0], "px1": [2.0], "py1": [0.0], "px2": [2.0],
+              "py2": [2.0], "px3": [0.0], "py3": [2.0]}  # fmt: skip
+    half = pd.DataFrame({"y_max": [1.0], "x_max": [2.0], "y_min": [0.0], "x_min": [0.0]})
+    assert obbiou.iou(square, half)[0, 0] == 0.5
+    # upright: unit cube against the same cube shifted by 0.5 along x: 0.5 / 1.5 (hand-worked)
+    cube = {"yaw": [0.0], "height": [1.0], "width": [1.0], "length": [1.0], "cz": [0.5],
+            "cy": [0.0], "cx": [0.0]}  # fmt: skip
+    moved = dict(cube, cx=[0.5])
+    assert obbiou.iou(cube, moved)[0, 0] == pytest.approx(1 / 3, abs=1e-15)
+    # no column name is a box column name: read by position (the README's rule)
+    plain = pd.DataFrame([[0.0, 0.0, 2.0, 1.0]])
+    assert obbiou.iou(plain, half)[0, 0] == 1.0
+
+
+def test_tables_with_some_box_names_missing_or_doubled_are_errors():
+    import pandas as pd
+
+    import obbiou
+    from obbiou.errors import InvalidInput
+
+    df = pd.DataFrame({"cx": [0.0], "cy": [0.0], "w": [2.0], "h": [1.0], "angle": [0.0]})
+    with pytest.raises(InvalidInput, match=r"^a: missing column 'width'"):
+        obbiou.iou(df, df)
+    full = pd.DataFrame({"cx": [0.0], "cy": [0.0], "width": [2.0], "height": [1.0], "angle": [0.0]})
+    with pytest.raises(InvalidInput, match=r"missing column 'x_min' \(shape 'axis' needs"):
+        obbiou.iou(full, full, shape="axis")
+    doubled = pd.concat([full, full[["cx"]]], axis=1)
+    with pytest.raises(InvalidInput, match="column name given twice") as err:
+        obbiou.iou(doubled, full)
+    assert err.value.column == "cx"
+    # a bad value names its column by name, whatever its position in the table
+    bad = full[["width", "cx", "cy", "height", "angle"]].assign(width=[-1.0])
+    with pytest.raises(InvalidInput, match=r"^b\[0\]: negative width -1\.0$") as err:
+        obbiou.iou(full, bad)
+    assert err.value.column == "width"

@@ -22,7 +22,8 @@ EXAMPLE = (
     "      --json result.json --plot curves.png\n"
     "  obbiou evaluate truth.parquet dets.parquet --iou 0.5 --iou crane=0.7 --interval\n"
     "  obbiou evaluate truth.csv dets.csv --at-score 0.5 --details rows.parquet\n"
-    "  obbiou evaluate truth/ dets/ --workers 2      # folders of Parquet files, on Dask"
+    "  obbiou evaluate truth/ dets/                  # folders of table files, natural order\n"
+    "  obbiou evaluate truth/ dets/ --workers 2      # the same, matched on Dask workers"
 )
 
 
@@ -30,12 +31,12 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument(
         "truth",
         metavar="TRUTH",
-        help="ground-truth table (with --workers/--scheduler: or a folder)",
+        help="ground-truth table, or a folder of them (read in natural order of file names)",
     )
     p.add_argument(
         "detections",
         metavar="DETECTIONS",
-        help="detections table (with --workers/--scheduler: or a folder of Parquet files)",
+        help="detections table, or a folder of them (read in natural order of file names)",
     )
     add_matching(p)
     p.add_argument(

@@ -8,6 +8,7 @@ bad option); what only the library can judge is left to it (it raises
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 from collections.abc import Sequence
 from typing import Any
@@ -144,6 +145,11 @@ def bucket_edges(text: str | None, option: str) -> list[float] | None:
     Traceback (most recent call last):
     ...
     obbiou.errors.InvalidInput: --size-buckets '5,1': expected at least two increasing edges
+    >>> bucket_edges("0,nan", "--size-buckets")
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: --size-buckets '0,nan': an edge is NaN (edges are numbers; inf
+    is allowed)
     """
     if text is None:
         return None
@@ -153,6 +159,9 @@ def bucket_edges(text: str | None, option: str) -> list[float] | None:
         raise bad_option(
             option, f"{option} {text!r}: expected numbers separated by commas"
         ) from None
+    if any(math.isnan(e) for e in edges):
+        reason = f"{option} {text!r}: an edge is NaN (edges are numbers; inf is allowed)"
+        raise bad_option(option, reason)
     if len(edges) < 2 or any(b <= a for a, b in zip(edges, edges[1:], strict=False)):
         raise bad_option(option, f"{option} {text!r}: expected at least two increasing edges")
     return edges

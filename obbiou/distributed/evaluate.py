@@ -47,11 +47,11 @@ def _mix(values: np.ndarray) -> np.ndarray:
 def _frame_buckets(frame: np.ndarray, n_buckets: int) -> np.ndarray:
     """Bucket of each frame id, the same in every process and for either table.
 
-    Integer ids are mixed by splitmix64. Text ids that spell an integer (``"7"``) go where
-    that integer goes: by the frame-id rule (:func:`obbiou.tables.comparable_frame_ids`) ``7``
-    and ``"7"`` are one frame once either table has text ids, and a partition cannot know
-    what the other table holds; other text is hashed with pandas' fixed-key
-    hash, not Python's per-process ``hash``.
+    Integer ids are mixed by splitmix64. Text ids that spell an integer (``"7"``: the text
+    form of integer ids in a table that also holds names, :func:`obbiou.tables.frame_ids`)
+    go where that integer goes: ``7`` and ``"7"`` are one frame, and a partition cannot know
+    what the other table holds; other text is hashed with pandas' fixed-key hash, not
+    Python's per-process ``hash``.
     """
     import pandas as pd
 
@@ -84,7 +84,7 @@ def _split_frames(
     from obbiou.tables import read_table
 
     table = read_table(part, role=role, shape=shape, degrees=degrees)
-    table = replace(table, extra={})
+    table = replace(table, extra={}, frame_written=None)
     buckets = _frame_buckets(table.frame, n_buckets)
     order = np.argsort(buckets, kind="stable")  # stable: input order kept within a bucket
     cuts = np.searchsorted(buckets[order], np.arange(n_buckets + 1))
@@ -101,7 +101,7 @@ def _join_tables(pieces: Sequence[Any], offsets: Sequence[int]) -> Any:
     """One table from per-partition pieces, in partition order (that is, input order), and
     the row of each in the whole input (``offsets``: the first row of each partition)."""
     from obbiou.shapes import Boxes
-    from obbiou.tables import Table
+    from obbiou.tables import Table, comparable_frame_ids
 
     rows = np.concatenate(
         [np.zeros(0, np.int64)] + [o + r for (_, r), o in zip(pieces, offsets, strict=True)]
@@ -117,9 +117,7 @@ def _join_tables(pieces: Sequence[Any], offsets: Sequence[int]) -> Any:
         )
     layout = layouts.pop() if layouts else first.shape
     data = [p.boxes.data for p in pieces if len(p)] or [first.boxes.data]
-    frames = [p.frame for p in pieces]
-    if any(f.dtype.kind not in "iu" for f in frames):
-        frames = [f.astype(object) for f in frames]
+    frames = comparable_frame_ids([p.frame for p in pieces])  # all int64, or all text
     table = Table(
         first.role,
         np.concatenate(frames),
@@ -202,8 +200,10 @@ def evaluate_distributed(
     truth, detections : Dask DataFrame, str or path, or pandas DataFrame
         Tables with the columns of :func:`obbiou.evaluation.read_table` (``frame``,
         ``label``, ``score`` for detections, optional ``ignore`` for truth, and the box
-        columns of one layout). A folder is read as a Parquet dataset (every worker must see
-        the same path); a single file or an in-memory table is cut into pieces here.
+        columns of one layout). A folder gives one partition per table file (Parquet, CSV,
+        JSON Lines; natural order of the names, :func:`obbiou.tables.table_files`), read on
+        the workers (every worker must see the same path); a single file or an in-memory
+        table is cut into pieces here.
     shape, iou, ap, recall_points, max_detections, size_buckets, range_buckets : optional
         As for :func:`obbiou.evaluation.evaluate` (the protocol is written out there).
     degrees, localisation_floor : optional

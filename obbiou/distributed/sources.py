@@ -1,8 +1,9 @@
 """Inputs of a distributed run as partitions the workers can load, each with a name.
 
-A Dask DataFrame keeps its partitions; a folder is read as a Parquet dataset (the files with
-a Parquet suffix of :data:`obbiou.tables.TABLE_SUFFIXES`); a file, a pandas DataFrame, a
-mapping of columns or an array of boxes is cut into row ranges here.
+A Dask DataFrame keeps its partitions; a folder gives one partition per table file
+(:func:`obbiou.tables.table_files`: Parquet, CSV or JSON Lines, in the natural order of their
+names, the order in-process reading uses too), each read on a worker; a file, a pandas
+DataFrame, a mapping of columns or an array of boxes is cut into row ranges here.
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ import numpy as np
 
 from obbiou.distributed.cluster import require_dask
 from obbiou.errors import InvalidInput
-from obbiou.tables import TABLE_SUFFIXES, table_format
+from obbiou.tables import TABLE_SUFFIXES, table_files
 
 __all__ = ["Source", "partitions_of", "submit_parts"]
 
@@ -32,9 +33,9 @@ class Source:
 def partitions_of(table: Any, *, what: str, chunks: int = 1, boxes: bool = False) -> Source:
     """Cut an input table into partitions the workers can load.
 
-    A Dask DataFrame keeps its partitions; a folder is read as a Parquet dataset; a file, a
-    pandas DataFrame or a mapping of columns is one partition (cut into ``chunks`` row
-    ranges when it is in memory).
+    A Dask DataFrame keeps its partitions; a folder gives one partition per table file, in
+    natural order of their names; a file, a pandas DataFrame or a mapping of columns is one
+    partition (cut into ``chunks`` row ranges when it is in memory).
     """
     require_dask()
     import dask.dataframe as dd
@@ -43,26 +44,28 @@ def partitions_of(table: Any, *, what: str, chunks: int = 1, boxes: bool = False
     if isinstance(table, (str, os.PathLike)):
         path = Path(table)
         if path.is_dir():
-            files = sorted(
-                p
-                for p in path.rglob("*")
-                if p.is_file() and TABLE_SUFFIXES.get(p.suffix.lower()) == "parquet"
-            )
+            import dask
+
+            files = table_files(path)
             if not files:
-                raise InvalidInput(what, f"folder {str(path)!r} holds no .parquet files")
-            table = dd.read_parquet([str(p) for p in files])
-            origin = f"Parquet dataset {str(path)!r}"
+                raise InvalidInput(
+                    what, f"folder {str(path)!r} holds no table files (.parquet, .csv, .jsonl)"
+                )
+            read = dask.delayed(_read_file, pure=True)
+            return Source(
+                [read(f, what) for f in files],
+                [f"{what} file {str(f)!r} ({i + 1} of {len(files)})" for i, f in enumerate(files)],
+            )
         elif path.is_file():
             frame = _read_file(path, what)
             return _in_memory(frame, what, chunks, origin=f"file {str(path)!r}")
         else:
             raise InvalidInput(what, f"no such file or folder: {str(path)!r}")
-    else:
-        origin = "Dask DataFrame"
     if isinstance(table, dd.DataFrame):
         parts = list(table.to_delayed())
         return Source(
-            parts, [f"{what} partition {i} of {len(parts)} ({origin})" for i in range(len(parts))]
+            parts,
+            [f"{what} partition {i} of {len(parts)} (Dask DataFrame)" for i in range(len(parts))],
         )
     if isinstance(table, pd.DataFrame):
         return _in_memory(table, what, chunks, origin="DataFrame")
@@ -81,27 +84,22 @@ def partitions_of(table: Any, *, what: str, chunks: int = 1, boxes: bool = False
 
 
 def _read_file(path: Path, what: str) -> Any:
-    import pandas as pd
+    from obbiou.tables import read_columns
 
     if path.suffix.lower() not in TABLE_SUFFIXES:
         raise InvalidInput(
             what,
             f"cannot read {str(path)!r}: expected .parquet, .csv or .jsonl, "
-            "or a folder of .parquet files",
+            "or a folder of such files",
         )
-    kind = table_format(path)
-    if kind == "parquet":
-        return pd.read_parquet(path)
-    if kind == "csv":
-        return pd.read_csv(path)
-    return pd.read_json(path, lines=True)
+    return read_columns(path)  # parsed as in-process reading parses it
 
 
 def _in_memory(frame: Any, what: str, chunks: int, *, origin: str, raw: Any = None) -> Source:
     if frame is None:
         raise TypeError(
             f"{what}: expected a Dask DataFrame, a pandas DataFrame, a mapping of columns, "
-            f"a file, a folder of Parquet files or an array of boxes, got {type(raw).__name__}"
+            f"a file, a folder of table files or an array of boxes, got {type(raw).__name__}"
         )
     n = len(frame)
     chunks = max(1, min(int(chunks), n)) if n else 1

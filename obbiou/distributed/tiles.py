@@ -259,8 +259,8 @@ def overlapping_pairs_distributed(
     Raises
     ------
     obbiou.errors.InvalidInput
-        Bad input, naming the partition and the row (``a partition 3 of 8 (Parquet dataset
-        'scene/'): row[17]: negative width -3.0``).
+        Bad input, naming the partition and the row (``a file 'scene/f3.parquet' (3 of 8):
+        row[17]: negative width -3.0``).
     TaskFailed
         Any other failing task, naming the partition or tile.
 

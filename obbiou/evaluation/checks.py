@@ -5,8 +5,9 @@ an AP of 0 without any error; angles in degrees read as radians give a wrong but
 AP. :func:`warn_likely_mistakes` looks for these before matching and warns
 (:class:`obbiou.errors.LikelyMistake`; the command line prints each as one line on stderr):
 
-* the tables share no frame id — and, when they would once integer-valued text is read as
-  an integer (``7`` against ``"007"``), it says so;
+* the tables share no frame id; or they share frames only by the frame-id rule
+  (:func:`obbiou.tables.frame_ids`), which reads integer-valued text as the integer, while
+  no id is written alike in both (``7`` against ``"007"``);
 * a detection label equals a truth label only up to letter case or surrounding spaces;
 * no detection label is a truth label at all;
 * more than a tenth of the angles lie beyond 2π in magnitude (rule of thumb, no source:
@@ -16,6 +17,7 @@ AP. :func:`warn_likely_mistakes` looks for these before matching and warns
 from __future__ import annotations
 
 import warnings
+from typing import Any
 
 import numpy as np
 
@@ -26,16 +28,6 @@ __all__ = ["warn_likely_mistakes"]
 
 #: Share of angles beyond 2*pi above which they look like degrees (rule of thumb).
 DEGREES_SHARE = 0.1
-
-
-def _as_integer(value: object) -> int | None:
-    """The integer a frame id names when it is integer-valued text or number, else None."""
-    if isinstance(value, (int, np.integer)) and not isinstance(value, bool):
-        return int(value)
-    text = str(value).strip()
-    if text.lstrip("+-").isdigit():
-        return int(text)
-    return None
 
 
 def _example(values: set) -> str:
@@ -56,7 +48,7 @@ def warn_likely_mistakes(truth: Table, detections: Table, *, degrees: bool) -> l
     ...     warnings.simplefilter("ignore")
     ...     for line in warn_likely_mistakes(t, d, degrees=False):
     ...         print(line[:64] + " ...")
-    truth and detections share no frame id as written, but 1 frame m ...
+    truth and detections share no frame id as written; 1 frame match ...
     detection label 'panel ' equals truth label 'Panel' only up to l ...
     no detection label is a truth label (detections: 'panel ', truth ...
     """
@@ -71,25 +63,35 @@ def warn_likely_mistakes(truth: Table, detections: Table, *, degrees: bool) -> l
     return messages
 
 
+def _written(table: Table, ids: np.ndarray) -> dict[Any, Any]:
+    """Each frame (by its comparable id) and the id as first written (int or text)."""
+    written = table.frame if table.frame_written is None else table.frame_written
+    _, first = np.unique(ids, return_index=True)
+    return {ids[i]: written[i].item() if hasattr(written[i], "item") else written[i]
+            for i in first.tolist()}  # fmt: skip
+
+
 def _frame_messages(truth: Table, detections: Table) -> list[str]:
     tid, did = comparable_frame_ids([truth.frame, detections.frame])
-    t_set, d_set = set(tid.tolist()), set(did.tolist())
-    if t_set & d_set:
-        return []
-    t_int = {_as_integer(v): v for v in np.unique(truth.frame).tolist()}
-    d_int = {_as_integer(v): v for v in np.unique(detections.frame).tolist()}
-    common = (set(t_int) & set(d_int)) - {None}
-    if common:
-        k = sorted(common)[0]
+    t_written, d_written = _written(truth, tid), _written(detections, did)
+    common = set(t_written) & set(d_written)
+    if not common:
         return [
-            f"truth and detections share no frame id as written, but {len(common)} frame"
-            f"{'' if len(common) == 1 else 's'} match{'es' if len(common) == 1 else ''} once "
-            f"ids are read as integers (e.g. truth {t_int[k]!r}, detections {d_int[k]!r}): "
-            "frame ids compare as text here; write them the same way in both tables"
+            f"truth and detections share no frame id (truth e.g. "
+            f"{_example(set(t_written.values()))}, detections e.g. "
+            f"{_example(set(d_written.values()))}): every detection is a false positive, "
+            "every truth a miss"
         ]
+    if {str(v) for v in t_written.values()} & {str(v) for v in d_written.values()}:
+        return []
+    k = sorted(common, key=str)[0]
+    n = len(common)
     return [
-        f"truth and detections share no frame id (truth e.g. {_example(t_set)}, detections "
-        f"e.g. {_example(d_set)}): every detection is a false positive, every truth a miss"
+        f"truth and detections share no frame id as written; {n} frame"
+        f"{'' if n == 1 else 's'} match{'es' if n == 1 else ''} only because integer-valued "
+        f"text names the integer (e.g. truth {t_written[k]!r}, detections {d_written[k]!r}: "
+        "one frame by the frame-id rule); if they are different frames, write the ids as "
+        "names that are not numbers"
     ]
 
 

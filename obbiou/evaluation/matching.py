@@ -55,6 +55,23 @@ class Thresholds:
         )
 
 
+#: Most IoU thresholds one evaluation takes: a step of 0.00001 across [0, 1]. The cost of an
+#: evaluation grows linearly with the count, and so does its memory: the match records hold
+#: every detection's outcome, matched truth and IoU at every threshold (17 bytes per
+#: detection and threshold: 100 001 thresholds of 100 000 detections are 170 GB). Finer
+#: steps change no AP that matters (rule of thumb, no source).
+MAX_THRESHOLDS = 100_001
+
+
+def _too_many(count: int, what: str) -> InvalidInput:
+    return InvalidInput(
+        "iou",
+        f"{what} gives {count:,} thresholds; at most {MAX_THRESHOLDS:,} are evaluated (a step "
+        "of 0.00001 across [0, 1]): each threshold costs time and 17 bytes of match records "
+        "per detection",
+    )
+
+
 def _check_threshold(v: Any) -> float:
     try:
         f = float(v)
@@ -82,14 +99,20 @@ def _parse_one(iou: Any) -> tuple[float, ...]:
                 raise InvalidInput(
                     "iou", f"'start:stop:step' needs step > 0 and stop >= start: {iou!r}"
                 )
+            if not all(np.isfinite((start, stop, step))):
+                raise InvalidInput("iou", f"'start:stop:step' needs finite numbers: {iou!r}")
             # inclusive of stop within rounding: 0.5:0.95:0.05 gives 10 thresholds
             count = int(np.floor((stop - start) / step + 1e-9)) + 1
+            if count > MAX_THRESHOLDS:  # before building them: 5 million would take long
+                raise _too_many(count, repr(iou))
             values = [round(start + i * step, 10) for i in range(count)]
             return tuple(sorted({_check_threshold(v) for v in values}))
         if "," in text:
             return tuple(sorted({_check_threshold(p) for p in text.split(",")}))
         return (_check_threshold(text),)
     if isinstance(iou, (Sequence, np.ndarray)):
+        if len(iou) > MAX_THRESHOLDS:
+            raise _too_many(len(iou), "the sequence")
         values = tuple(sorted({_check_threshold(v) for v in iou}))
         if not values:
             raise InvalidInput("iou", "no thresholds given")
@@ -102,7 +125,9 @@ def parse_thresholds(iou: Any) -> Thresholds:
 
     A number, a sequence, a ``"start:stop:step"`` string (stop included within rounding), a
     comma list ``"0.5,0.7"``, or a mapping label -> any of these (key ``None``: the default
-    for other labels).
+    for other labels). At most :data:`MAX_THRESHOLDS` (100 001) distinct thresholds: the
+    cost of an evaluation grows linearly with their count, its match records by 17 bytes per
+    detection and threshold.
 
     Examples
     --------
@@ -115,6 +140,12 @@ def parse_thresholds(iou: Any) -> Thresholds:
     Traceback (most recent call last):
     ...
     obbiou.errors.InvalidInput: iou: a threshold must lie in (0, 1], got 1.5
+    >>> parse_thresholds("0.5:0.95:0.0000001")
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: iou: '0.5:0.95:0.0000001' gives 4,500,001 thresholds; at most
+    100,001 are evaluated (a step of 0.00001 across [0, 1]): each threshold costs time and 17
+    bytes of match records per detection
     """
     if isinstance(iou, Thresholds):
         return iou
@@ -124,6 +155,8 @@ def parse_thresholds(iou: Any) -> Thresholds:
         per_label = {str(k): _parse_one(v) for k, v in iou.items() if k is not None}
         default = _parse_one(iou[None]) if None in iou else None
         union = set().union(*per_label.values(), default or ())
+        if len(union) > MAX_THRESHOLDS:
+            raise _too_many(len(union), "the mapping")
         return Thresholds(tuple(sorted(union)), per_label, default)
     return Thresholds(_parse_one(iou))
 

@@ -82,6 +82,17 @@ def _json_edges(edges: Sequence[float]) -> list[float | None]:
     return [float(e) if math.isfinite(e) else None for e in edges]
 
 
+def _nearest(sorted_values: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Index of the entry of ``sorted_values`` nearest to each of ``values`` (bisection)."""
+    if not len(sorted_values):
+        return np.zeros(len(values), dtype=np.int64)
+    i = np.clip(np.searchsorted(sorted_values, values), 1, max(len(sorted_values) - 1, 1))
+    lower = np.maximum(i - 1, 0)
+    upper = np.minimum(i, len(sorted_values) - 1)
+    closer = np.abs(sorted_values[lower] - values) <= np.abs(sorted_values[upper] - values)
+    return np.where(closer, lower, upper)
+
+
 def _parse_buckets(spec: Any, what: str) -> dict[str, tuple[float, float]]:
     """Buckets from edges ``[e0, e1, ...]`` or a mapping name -> (low, high); low <= v < high."""
     if spec is None:
@@ -95,11 +106,18 @@ def _parse_buckets(spec: Any, what: str) -> dict[str, tuple[float, float]]:
                 raise InvalidInput(
                     what, f"bucket {name!r} needs (low, high), got {pair!r}"
                 ) from None
+            if math.isnan(lo) or math.isnan(hi):
+                raise InvalidInput(what, f"bucket {name!r} has a NaN edge: {pair!r}")
             if not lo < hi:
                 raise InvalidInput(what, f"bucket {name!r} needs low < high, got {pair!r}")
             out[str(name)] = (lo, hi)
         return out
-    edges = [float(e) for e in spec]
+    try:
+        edges = [float(e) for e in spec]
+    except (TypeError, ValueError):
+        raise InvalidInput(what, f"expected numbers as edges, got {spec!r}") from None
+    if any(math.isnan(e) for e in edges):
+        raise InvalidInput(what, f"an edge is NaN in {spec!r} (edges are numbers; inf is allowed)")
     if len(edges) < 2 or any(b <= a for a, b in zip(edges, edges[1:], strict=False)):
         raise InvalidInput(what, f"expected increasing edges (at least two), got {spec!r}")
     return {f"{a:g}-{b:g}": (a, b) for a, b in zip(edges, edges[1:], strict=False)}
@@ -158,18 +176,27 @@ class Evaluation:
         self._dlabel = lcodes[: r.n_detections]
         self._tlabel = lcodes[r.n_detections :]
         self.thresholds: tuple[float, ...] = tuple(spec.values)
-        self._column = {}
-        for t in spec.values:
-            hit = np.flatnonzero(np.abs(r.thresholds - t) < 1e-9)
-            if not len(hit):
-                raise InvalidInput(
-                    "iou",
-                    f"threshold {t:g} was not matched; records hold "
-                    f"{', '.join(_key(v) for v in r.thresholds)}",
-                )
-            self._column[t] = int(hit[0])
+        # Threshold -> column of the records, looked up by bisection: a lookup per label and
+        # threshold stays O(log K), so K thresholds cost O(K log K), not O(K^2).
+        order = np.argsort(r.thresholds, kind="stable")
+        have = np.asarray(r.thresholds, dtype=np.float64)[order]
+        wanted = np.asarray(spec.values, dtype=np.float64)
+        cols = _nearest(have, wanted)
+        missing = np.abs(have[cols] - wanted) >= 1e-9 if len(have) else np.ones(len(wanted), bool)
+        if missing.any():
+            t = float(wanted[int(np.argmax(missing))])
+            raise InvalidInput(
+                "iou",
+                f"threshold {t:g} was not matched; records hold "
+                f"{', '.join(_key(v) for v in r.thresholds[:20])}"
+                f"{' …' if len(r.thresholds) > 20 else ''}",
+            )
+        self._column = dict(zip(spec.values, order[cols].tolist(), strict=True))
+        self._sorted = tuple(sorted(spec.values))
+        self._evaluated = np.asarray(self._sorted, dtype=np.float64)
+        self._of = {}
         for lab in self.labels:
-            spec.of(lab)  # every label needs thresholds
+            self._of[lab] = frozenset(spec.of(lab))  # every label needs thresholds
         # truth index of each match: truths are sorted by (frame, rank)
         self._truth_ptr = np.r_[0, np.cumsum(np.bincount(self._tcode, minlength=len(self.frames)))]
         self._prepare_slice()
@@ -209,21 +236,19 @@ class Evaluation:
 
     # -- core numbers ------------------------------------------------------------------------
     def _col(self, t: float) -> int:
-        for v, c in self._column.items():
-            if abs(v - float(t)) < 1e-9:
-                return c
+        return self._column[self._threshold(t)]
+
+    def _threshold(self, t: float) -> float:
+        """The evaluated threshold within 1e-9 of ``t`` (bisection), or InvalidInput."""
+        i = int(_nearest(self._evaluated, np.array([float(t)]))[0]) if self._sorted else 0
+        if self._sorted and abs(self._sorted[i] - float(t)) < 1e-9:
+            return self._sorted[i]
+        shown = ", ".join(_key(v) for v in self.thresholds[:20])
         raise InvalidInput(
             "iou",
             f"{t!r} is not among the thresholds evaluated "
-            f"({', '.join(_key(v) for v in self.thresholds)})",
+            f"({shown}{' …' if len(self.thresholds) > 20 else ''})",
         )
-
-    def _threshold(self, t: float) -> float:
-        for v in self._column:
-            if abs(v - float(t)) < 1e-9:
-                return v
-        self._col(t)
-        raise AssertionError  # pragma: no cover
 
     def _label(self, label: Any) -> str:
         lab = str(label)
@@ -308,7 +333,7 @@ class Evaluation:
         if iou is None:
             return self._spec.of(lab)
         t = self._threshold(iou)
-        return (t,) if t in self._spec.of(lab) else ()
+        return (t,) if t in self._of[lab] else ()
 
     def ap(self, label: Any, iou: float | None = None) -> float | None:
         """AP of ``label`` at threshold ``iou`` (None: mean over the label's thresholds).
@@ -459,7 +484,7 @@ class Evaluation:
         )
         out = {}
         for lab in self.labels:
-            if t not in self._spec.of(lab):
+            if t not in self._of[lab]:
                 continue
             c = cls[self._by_label[lab]]
             n = [int((c == i).sum()) for i in range(4)]
@@ -481,7 +506,7 @@ class Evaluation:
         cls = _bd.classify_misses(is_miss, r.truth_best_same, r.truth_best_other, t, self._floor)
         out = {}
         for lab in self.labels:
-            if t not in self._spec.of(lab):
+            if t not in self._of[lab]:
                 continue
             c = cls[self._truths_of[lab]]
             n = [int((c == i).sum()) for i in range(4)]

@@ -485,3 +485,25 @@ def test_bev_flag_of_suppress_and_overlap(tmp_path):
     pairs = run("overlap", str(path), "--bev", "-q")
     assert pairs.returncode == 0, pairs.stderr
     assert pd.read_csv(io.StringIO(pairs.stdout))["iou"].tolist() == [1.0]
+
+
+def test_nan_bucket_edges_are_one_line(hand_files):
+    for option in ("--size-buckets", "--range-buckets"):
+        line = one_line_error(run("evaluate", *map(str, hand_files), option, "0,nan", "-q"))
+        assert f"{option} '0,nan': an edge is NaN" in line
+
+
+def test_too_many_thresholds_is_one_line(hand_files):
+    line = one_line_error(run("evaluate", *map(str, hand_files), "--iou", "0.5:0.95:0.00000009"))
+    assert "gives 5,000,001 thresholds; at most 100,001" in line
+
+
+def test_evaluate_reads_folders_in_process(tmp_path):
+    from tests.test_tables import tie_folders
+
+    truth, dets = tie_folders(tmp_path, ".parquet")
+    out = tmp_path / "r.json"
+    done = run("evaluate", truth, dets, "--json", str(out), "-q")
+    assert done.returncode == 0, done.stderr
+    # hand-worked (tests/test_tables.py): f2's true positive ranks before f10's false one
+    assert json.loads(out.read_text())["labels"]["vessel"]["ap"]["0.5"] == 1.0

@@ -216,3 +216,14 @@ def test_single_files_read_here_like_in_process(client, tables, tmp_path):
     with pytest.raises(ValueError) as distributed_run:
         evaluate_distributed(str(tmp_path / "bad.csv"), d, client=client)
     assert str(distributed_run.value) == str(in_process.value)
+
+
+@pytest.mark.parametrize("suffix", [".csv", ".jsonl"])
+def test_folders_of_any_table_files_in_natural_order(client, tmp_path, suffix):
+    from tests.test_tables import tie_folders
+
+    truth, dets = tie_folders(tmp_path, suffix)
+    want = evaluation.evaluate(truth, dets)
+    assert want.ap("vessel") == 1.0  # hand-worked: f2 before f10 (tests/test_tables.py)
+    got = evaluate_distributed(truth, dets, client=client, buckets=3)
+    assert_same(got, want)

@@ -34,15 +34,19 @@ def test_clean_tables_give_no_warning():
 
 
 def test_frame_ids_written_differently():
-    # integers in the truth, zero-padded text in the detections: compared as text they
-    # share no frame (AP 0); read as integers they are the same frame
+    # integers in the truth, zero-padded text in the detections: one frame by the frame-id
+    # rule, but no id is written alike in both tables, so it is said once
     truth, dets = tables([7, 7], ["007", "007"])
     got = messages(truth, dets)
     assert len(got) == 1
-    assert (
-        "share no frame id as written, but 1 frame matches once ids are read as integers" in got[0]
-    )
+    assert "share no frame id as written; 1 frame matches only because integer-valued" in got[0]
     assert "truth 7, detections '007'" in got[0]
+    # the same ids written alike in one frame at least: nothing to say (hand-worked)
+    truth, dets = tables([7, 8], ["007", "8"])
+    assert messages(truth, dets) == []
+    # integers against their own text (a CSV cell has no type): nothing to say
+    truth, dets = tables([7, 7], ["7", "7"])
+    assert messages(truth, dets) == []
 
 
 def test_no_common_frame_at_all():
@@ -96,12 +100,12 @@ def test_the_command_line_prints_each_warning_as_one_line(tmp_path):
     assert "Traceback" not in done.stderr and "warnings.warn" not in done.stderr
 
 
-def test_the_warned_case_still_evaluates_as_written():
-    # the warning changes no result: frames compared as text share none, so both
-    # detections are false positives and both truths misses (hand-worked: AP 0)
+def test_the_warned_case_evaluates_by_the_frame_id_rule():
+    # the warning changes no result: by the frame-id rule 7 and "007" are one frame, so
+    # both identical detections match their truths (hand-worked: AP 1)
     truth, dets = tables([7, 7], ["007", "007"])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", LikelyMistake)
         ev = evaluate(truth, dets)
-    assert ev.ap("panel", 0.5) == 0.0
-    assert ev.counts("panel", 0.5)[:4] == (0, 2, 0, 2)
+    assert ev.ap("panel", 0.5) == 1.0
+    assert ev.counts("panel", 0.5)[:4] == (2, 0, 0, 0)

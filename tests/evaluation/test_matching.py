@@ -303,3 +303,31 @@ def test_per_label_thresholds():
         evaluate(truth, dets, iou={"ship": 0.7})
     ev2 = evaluate(truth, dets, iou={"ship": 0.7, None: 0.5})
     assert ev2.ap("crane") == whole.ap("crane", 0.5)
+
+
+def test_many_thresholds_agree_with_each_threshold_alone_and_have_a_limit():
+    from obbiou.errors import InvalidInput
+    from obbiou.evaluation.matching import MAX_THRESHOLDS, parse_thresholds
+
+    truth = {"frame": [0, 0, 1], "label": ["crane"] * 3, "x_min": [0, 10, 0],
+             "y_min": [0, 0, 0], "x_max": [4, 14, 4], "y_max": [4, 4, 4]}  # fmt: skip
+    dets = {"frame": [0, 0, 1], "label": ["crane"] * 3, "score": [0.9, 0.8, 0.7],
+            "x_min": [0, 11, 1], "y_min": [0, 0, 0], "x_max": [4, 14, 4],
+            "y_max": [4, 4, 4]}  # fmt: skip
+    # hand-worked IoUs: 1, 12/16 = 0.75, 12/16 = 0.75 (the last two overlap by 3 x 4)
+    ev = evaluate(truth, dets, iou="0.5:0.95:0.0001")  # 4 501 thresholds
+    assert len(ev.thresholds) == 4501
+    for t, tp in ((0.5, 3), (0.75, 3), (0.7501, 1), (0.95, 1)):
+        alone = evaluate(truth, dets, iou=t)
+        assert ev.counts("crane", t) == alone.counts("crane", t)
+        assert ev.counts("crane", t).tp == tp
+        assert ev.ap("crane", t) == alone.ap("crane", t)
+    assert ev.threshold(0.75000000001) == 0.75  # lookups within 1e-9, by bisection
+    with pytest.raises(InvalidInput, match="not among the thresholds evaluated"):
+        ev.counts("crane", 0.75005)
+    # 5 million thresholds: refused at once, before they are built
+    with pytest.raises(InvalidInput, match=r"gives 5,000,001 thresholds; at most 100,001"):
+        parse_thresholds("0.5:0.95:0.00000009")
+    with pytest.raises(InvalidInput, match="at most 100,001"):
+        parse_thresholds(np.linspace(0.01, 1, MAX_THRESHOLDS + 1))
+    assert len(parse_thresholds("0.00001:1:0.00001").values) == MAX_THRESHOLDS - 1

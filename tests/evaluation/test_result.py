@@ -5,6 +5,7 @@ import json
 import numpy as np
 import pytest
 
+from obbiou.errors import InvalidInput
 from obbiou.evaluation import evaluate
 
 
@@ -290,3 +291,17 @@ def test_open_ended_bucket_is_json_safe():
         "high": None,
     }
     assert d["buckets"]["size"]["1-inf"]["mean_ap"] == 1.0
+
+
+def test_nan_bucket_edges_are_an_error():
+    # NaN compares False with everything, so "increasing" used to let it through and the
+    # bucket 0-nan held nothing; inf stays a valid edge (hand-worked cases)
+    truth, dets = upright_scene(1)
+    for spec in ([0, float("nan")], [float("nan"), 1, 2], {"all": (0, float("nan"))}):
+        with pytest.raises(InvalidInput, match="NaN") as err:
+            evaluate(truth, dets, size_buckets=spec)
+        assert err.value.argument == "size_buckets"
+    with pytest.raises(InvalidInput, match="NaN"):
+        evaluate(truth, dets, range_buckets=[0, float("nan")])
+    ev = evaluate(truth, dets, size_buckets=[0, float("inf")])
+    assert list(ev.buckets["size"]) == ["0-inf"]
