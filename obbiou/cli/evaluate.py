@@ -5,7 +5,13 @@ from __future__ import annotations
 import argparse
 import sys
 
-from obbiou.cli.options import add_common, add_matching, bucket_edges, matching_options
+from obbiou.cli.options import (
+    add_common,
+    add_matching,
+    bad_option,
+    bucket_edges,
+    matching_options,
+)
 
 SUMMARY = (
     "Evaluate detections against ground truth: matching, precision/recall, AP per label "
@@ -15,7 +21,9 @@ EXAMPLE = (
     "  obbiou evaluate truth.csv detections.csv --iou 0.5:0.95:0.05 \\\n"
     "      --json result.json --plot curves.png\n"
     "  obbiou evaluate truth.parquet dets.parquet --iou 0.5 --iou crane=0.7 --interval\n"
-    "  obbiou evaluate truth/ dets/ --workers 2      # folders of Parquet files, on Dask"
+    "  obbiou evaluate truth/ dets/ --workers 2      # folders of Parquet files, on Dask\n"
+    "  obbiou evaluate truth.csv dets.csv --distance 0.5,1,2,4 --points points.parquet \\\n"
+    "      --min-points 5                             # lidar: centre distance, few returns"
 )
 
 
@@ -97,6 +105,8 @@ def run(args: argparse.Namespace) -> int:
     if args.workers is not None or args.scheduler is not None:
         from obbiou.distributed import evaluate_distributed
 
+        if args.points is not None:
+            raise bad_option("--points", "--points is not taken with --workers/--scheduler yet")
         # warm=True: the workers compile (or load from the cache) first, with its own bar
         cluster = {"workers": args.workers, "scheduler": args.scheduler, "warm": True}
         result = evaluate_distributed(

@@ -140,7 +140,9 @@ def evaluate_distributed(
     detections: Any,
     *,
     shape: str | None = None,
-    iou: Any = 0.5,
+    iou: Any = None,
+    distance: Any = None,
+    bev: bool = False,
     ap: str = "all-points",
     recall_points: int | None = None,
     max_detections: int | None = None,
@@ -181,8 +183,11 @@ def evaluate_distributed(
         ``label``, ``score`` for detections, optional ``ignore`` for truth, and the box
         columns of one layout). A folder is read as a Parquet dataset (every worker must see
         the same path); a single file or an in-memory table is cut into pieces here.
-    shape, iou, ap, recall_points, max_detections, size_buckets, range_buckets : optional
+    shape, iou, distance, bev, ap, recall_points, max_detections : optional
         As for :func:`obbiou.evaluation.evaluate` (the protocol is written out there).
+    size_buckets, range_buckets : optional
+        As for :func:`obbiou.evaluation.evaluate`. (Lidar points, ``points=``, are not
+        taken here yet: count them in process with :func:`obbiou.evaluation.evaluate`.)
     degrees, localisation_floor : optional
         As for :func:`obbiou.evaluation.evaluate` (the protocol is written out there).
     progress : bool
@@ -232,12 +237,11 @@ def evaluate_distributed(
     True
     """
     from obbiou.evaluation import reduce_records
-    from obbiou.evaluation.matching import parse_thresholds
+    from obbiou.evaluation.protocol import matching_criterion
 
-    if iou is None:
-        raise InvalidInput("iou", "give a threshold, e.g. 0.5")
-    thresholds = parse_thresholds(iou)  # bad options fail here, before any work is sent
-    match_options = {"max_detections": max_detections}
+    # bad options fail here, before any work is sent
+    criterion, thresholds = matching_criterion(iou, distance, bev)
+    match_options = {"max_detections": max_detections, "criterion": criterion}
     with connect(client=client, scheduler=scheduler, workers=workers) as cl:
         if warm:
             warm_workers(cl, progress=progress, timeout=timeout)
@@ -298,7 +302,7 @@ def evaluate_distributed(
     # The same reduce call as obbiou.evaluation.evaluate makes, on the same records.
     return reduce_records(
         [unpack_records(r) for r in records],
-        iou=thresholds,
+        iou=thresholds,  # a Thresholds spec: IoUs or distances, as matched
         ap=ap,
         recall_points=recall_points,
         size_buckets=size_buckets,

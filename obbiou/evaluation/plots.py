@@ -3,7 +3,7 @@
 The curves are drawn on a :class:`matplotlib.figure.Figure` of their own (no pyplot, no
 global backend switch), so that plotting inside a notebook or a GUI program leaves its
 matplotlib state alone. A result is read through its public methods only (``labels``,
-``thresholds``, ``threshold``, ``thresholds_of``, ``ap``, ``curve``, ``mean_ap``).
+``thresholds``, ``threshold``, ``thresholds_of``, ``ap``, ``curve``, ``mean_ap``, ``rule``).
 """
 
 from __future__ import annotations
@@ -20,9 +20,10 @@ def draw_curves(
 ) -> Any:
     """Draw the precision-recall curves of every label with truths at ``iou`` on ``figure``.
 
-    ``iou`` defaults to the lowest threshold; ``title``, when given, heads the figure above
-    the per-threshold caption. The step curve is drawn as evaluated (precision after each
-    ranked detection) with its monotone envelope as a thicker line. Returns the axes.
+    ``iou`` defaults to the most lenient threshold (lowest IoU, largest distance);
+    ``title``, when given, heads the figure above the per-threshold caption. The step
+    curve is drawn as evaluated (precision after each ranked detection) with its monotone
+    envelope as a thicker line. Returns the axes.
 
     Examples
     --------
@@ -39,7 +40,7 @@ def draw_curves(
     """
     import numpy as np
 
-    t = min(evaluation.thresholds) if iou is None else evaluation.threshold(iou)
+    t = evaluation.threshold(iou)  # None: the most lenient threshold
     ax = figure.subplots()
     drawn = 0
     for i, lab in enumerate(evaluation.labels):
@@ -70,7 +71,7 @@ def draw_curves(
     ax.set_xlabel("recall")
     ax.set_ylabel("precision")
     m = evaluation.mean_ap(t)
-    heading, caption = title, f"precision vs recall at IoU >= {t:g}"
+    heading, caption = title, f"precision vs recall at {evaluation.rule(t)}"
     if m is not None:
         caption += f"   (mean AP {m:.3f})"
     ax.set_title(caption, fontsize=10, loc="left")

@@ -91,8 +91,12 @@ class Evaluation:
 
     Attributes
     ----------
+    criterion : str
+        What decided the matches: ``"iou"``, ``"bev"`` (IoU of the ground-plane
+        footprints) or ``"distance"`` (ground-plane centre distance; the thresholds are
+        metres, and every method's ``iou`` argument takes such a distance).
     thresholds : tuple of float
-        All IoU thresholds evaluated.
+        All thresholds evaluated (IoUs, or distances in metres).
     labels : tuple of str
         Every label seen in the truth or the detections, sorted.
     frames : numpy.ndarray
@@ -113,6 +117,13 @@ class Evaluation:
         localisation_floor: float = 0.1,
     ):
         self.records = records
+        self.criterion: str = records.criterion
+        if (spec.argument == "distance") != (self.criterion == "distance"):
+            raise InvalidInput(
+                spec.argument,
+                f"the records were matched by {self.criterion}; give the thresholds as "
+                f"{'distance' if self.criterion == 'distance' else 'iou'}=",
+            )
         self._spec = spec
         self._ap = ap
         self._recall_points = recall_points
@@ -232,8 +243,11 @@ class Evaluation:
         )
         return value, counts
 
-    def threshold(self, iou: float) -> float:
+    def threshold(self, iou: float | None) -> float:
         """The evaluated threshold equal to ``iou`` (within 1e-9); InvalidInput if none is.
+
+        ``None`` gives the most lenient threshold (the lowest IoU, or the largest distance),
+        the default of the breakdowns and plots.
 
         Examples
         --------
@@ -244,7 +258,7 @@ class Evaluation:
         >>> ev.threshold(0.7000000000001), ev.thresholds_of("a")
         (0.7, (0.5, 0.7))
         """
-        return self._threshold(iou)
+        return self._default_iou(iou)
 
     def thresholds_of(self, label: Any) -> tuple[float, ...]:
         """The thresholds ``label`` is evaluated at (labels may have thresholds of their own)."""
@@ -400,24 +414,55 @@ class Evaluation:
 
     # -- breakdowns --------------------------------------------------------------------------
     def _default_iou(self, iou: float | None) -> float:
-        return min(self.thresholds) if iou is None else self._threshold(iou)
+        if iou is not None:
+            return self._threshold(iou)
+        # the most lenient threshold: the lowest IoU, or the largest distance
+        return max(self.thresholds) if self.criterion == "distance" else min(self.thresholds)
+
+    def _closeness(self, values: np.ndarray, t: float) -> tuple[np.ndarray, float, float]:
+        """Per-pair values, threshold and localisation floor as "higher is closer"
+        (distances negated), for the breakdowns' ``>=`` tests. By distance, "poor
+        localisation" means within the largest distance threshold (but not within t)."""
+        if self.criterion == "distance":
+            return -values, -t, -float(np.max(self.records.thresholds))
+        return values, t, self._floor
+
+    def rule(self, iou: float | None = None) -> str:
+        """The matching rule at a threshold as text: ``"IoU ≥ 0.5"``, ``"BEV IoU ≥ 0.5"``
+        or ``"distance ≤ 2 m"`` (default: the most lenient threshold).
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0], "cy": [0.0], "width": [2.0], "height": [1.0], "angle": [0.0]}
+        >>> t, d = {"frame": [0], "label": ["a"], **box}, {"frame": [0], "label": ["a"],
+        ...     "score": [1.0], **box}
+        >>> evaluate(t, d).rule(), evaluate(t, d, distance=[1, 2]).rule()
+        ('IoU ≥ 0.5', 'distance ≤ 2 m')
+        """
+        from obbiou.evaluation.text import rule_text
+
+        return rule_text(self.criterion, self._default_iou(iou))
 
     def false_positives(self, iou: float | None = None) -> dict[str, _bd.FalsePositives]:
-        """False positives by class per label at ``iou`` (default: the lowest threshold).
+        """False positives by class per label at ``iou`` (default: the most lenient
+        threshold, see :meth:`threshold`).
 
         Classes, tested in this order (each FP in exactly one):
         ``duplicate`` — a non-ignore truth of its label has IoU >= iou with it, but all such
         truths were already taken by higher-scoring detections; ``wrong_label`` — a
         non-ignore truth of another label has IoU >= iou with it; ``poor_localisation`` — a
         non-ignore truth of its label has IoU in [0.1, iou) with it (the floor is the
-        ``localisation_floor`` option); ``background`` — none of these.
+        ``localisation_floor`` option); ``background`` — none of these. Matched by centre
+        distance, "IoU >= iou" reads "within distance iou" and the poor-localisation band is
+        "within the largest distance threshold but not within iou".
         """
         t = self._default_iou(iou)
         k = self._col(t)
         r = self.records
-        cls = _bd.classify_false_positives(
-            self._outcome[:, k] == FP, r.det_best_same, r.det_best_other, t, self._floor
-        )
+        same, tt, floor = self._closeness(r.det_best_same, t)
+        other = self._closeness(r.det_best_other, t)[0]
+        cls = _bd.classify_false_positives(self._outcome[:, k] == FP, same, other, tt, floor)
         out = {}
         for lab in self.labels:
             if t not in self._spec.of(lab):
@@ -428,7 +473,8 @@ class Evaluation:
         return out
 
     def misses(self, iou: float | None = None) -> dict[str, _bd.Misses]:
-        """Missed truths by class per label at ``iou`` (default: the lowest threshold).
+        """Missed truths by class per label at ``iou`` (default: the most lenient
+        threshold, see :meth:`threshold`).
 
         Classes, tested in this order: ``crowded`` — a detection of its label has IoU >= iou
         with it but was matched to another truth; ``wrong_label`` — a detection of another
@@ -439,7 +485,9 @@ class Evaluation:
         k = self._col(t)
         r = self.records
         is_miss = self._positive & ~r.truth_matched[:, k]
-        cls = _bd.classify_misses(is_miss, r.truth_best_same, r.truth_best_other, t, self._floor)
+        same, tt, floor = self._closeness(r.truth_best_same, t)
+        other = self._closeness(r.truth_best_other, t)[0]
+        cls = _bd.classify_misses(is_miss, same, other, tt, floor)
         out = {}
         for lab in self.labels:
             if t not in self._spec.of(lab):
@@ -452,7 +500,8 @@ class Evaluation:
     def orientation_error(
         self, iou: float | None = None, label: Any = None
     ) -> _bd.OrientationError:
-        """Orientation error of the matched pairs at ``iou`` (default: the lowest threshold).
+        """Orientation error of the matched pairs at ``iou`` (default: the most lenient
+        threshold, see :meth:`threshold`).
 
         Rectangles (rotated; polygons by their longest edge) compare angles modulo π; upright
         3D boxes compare headings modulo 2π and report the share of flipped headings (more
@@ -491,9 +540,12 @@ class Evaluation:
                 "ap": {_key(t): num(self._cells[(lab, t)][0]) for t in ts},
                 "counts": {_key(t): self._cells[(lab, t)][1]._asdict() for t in ts},
             }
+        by = {_key(t): num(self.mean_ap(t)) for t in self.thresholds}
         d: dict[str, Any] = {
             "mean_ap": num(self.mean_ap()),
-            "mean_ap_by_iou": {_key(t): num(self.mean_ap(t)) for t in self.thresholds},
+            "criterion": self.criterion,
+            "rule": {_key(t): self.rule(t) for t in self.thresholds},
+            ("mean_ap_by_distance" if self.criterion == "distance" else "mean_ap_by_iou"): by,
             "thresholds": [float(t) for t in self.thresholds],
             "frames": int(len(self.frames)),
             "detections": self.records.n_detections,
@@ -508,6 +560,9 @@ class Evaluation:
                 "low": self.bucket[2],
                 "high": self.bucket[3],
             }
+        points = self.point_counts()
+        if points is not None:
+            d["points"] = points
         if breakdowns:
             d["false_positives"] = {k: v._asdict() for k, v in self.false_positives().items()}
             d["misses"] = {k: v._asdict() for k, v in self.misses().items()}
@@ -519,6 +574,31 @@ class Evaluation:
                 }
         d["note"] = SAFETY_NOTE
         return d
+
+    def point_counts(self) -> dict | None:
+        """Lidar points inside the truths, per label (``None`` without a point table).
+
+        Per label: ``truths`` (all of its truths), ``set_aside`` (made ignore truths for
+        holding fewer than ``min_points`` points), ``no_points`` (truths holding none),
+        ``median`` (median count); and ``min_points`` (None when no truth was set aside by
+        count). The count of each truth is ``records.truth_points``.
+        """
+        r = self.records
+        if not r.n_truths or not np.all(r.truth_points >= 0):
+            return None
+        out: dict[str, Any] = {"min_points": self.options.get("min_points"), "labels": {}}
+        for lab in self.labels:
+            idx = self._truths_of[lab]
+            if not len(idx):
+                continue
+            c = r.truth_points[idx]
+            out["labels"][lab] = {
+                "truths": int(len(idx)),
+                "set_aside": int(r.truth_set_aside[idx].sum()),
+                "no_points": int((c == 0).sum()),
+                "median": float(np.median(c)),
+            }
+        return out
 
     def protocol(self) -> dict:
         """The protocol options of this evaluation (JSON-safe)."""
@@ -534,9 +614,8 @@ class Evaluation:
             "default_thresholds": list(self._spec.default) if self._spec.default else None,
             "localisation_floor": self._floor,
             **self.options,
-            "matching": "greedy by descending score per frame and label; highest IoU >= "
-            "threshold among unmatched non-ignore truths (ties: earlier truth); else ignored if "
-            "IoU >= threshold with an ignore truth; else false positive",
+            "criterion": self.criterion,
+            "matching": _MATCHING[self.criterion],
         }
 
     def to_json(self, path: str) -> None:
@@ -546,7 +625,8 @@ class Evaluation:
             fh.write("\n")
 
     def plot(self, path: str, *, iou: float | None = None, title: str | None = None) -> None:
-        """Precision-recall curves per label at ``iou`` (default: the lowest), PNG at ``path``.
+        """Precision-recall curves per label at ``iou`` (default: the most lenient), PNG
+        at ``path``.
 
         ``title`` (optional) heads the figure, e.g. the data set and model name.
         """
@@ -563,10 +643,26 @@ class Evaluation:
         )
 
 
+_MATCHING = {
+    "iou": "greedy by descending score per frame and label; highest IoU >= threshold among "
+    "unmatched non-ignore truths (ties: earlier truth); else ignored if IoU >= threshold with "
+    "an ignore truth; else false positive",
+    "bev": "greedy by descending score per frame and label; highest IoU of the ground-plane "
+    "footprints (bird's-eye view) >= threshold among unmatched non-ignore truths (ties: "
+    "earlier truth); else ignored if that IoU >= threshold with an ignore truth; else false "
+    "positive",
+    "distance": "greedy by descending score per frame and label; nearest unmatched non-ignore "
+    "truth whose ground-plane centre lies within the threshold distance (metres; ties: "
+    "earlier truth); else ignored if an ignore truth lies within it; else false positive "
+    "(Caesar et al., CVPR 2020)",
+}
+
+
 def reduce_records(
     records: MatchRecords | Sequence[MatchRecords],
     *,
     iou: Any = None,
+    distance: Any = None,
     ap: str = "all-points",
     recall_points: int | None = None,
     size_buckets: Any = None,
@@ -584,6 +680,8 @@ def reduce_records(
     iou : optional
         Which thresholds (and per-label thresholds) to report, as for :func:`evaluate`;
         ``None``: all thresholds in the records.
+    distance : optional
+        The same for records matched by centre distance (either may be used there).
     ap, recall_points, size_buckets, range_buckets, localisation_floor
         As for :func:`evaluate`.
     options : dict, optional
@@ -597,8 +695,14 @@ def reduce_records(
         records = MatchRecords.concat(records)
     rec = records.canonical()
     _check_whole_frames(rec)
-    spec = parse_thresholds(list(rec.thresholds) if iou is None else iou)
-    opts = {"max_detections": None, "degrees": False, **(options or {})}
+    argument = "distance" if rec.criterion == "distance" else "iou"
+    if iou is not None and distance is not None:
+        raise InvalidInput("distance", "give either iou= or distance=, not both")
+    chosen = distance if distance is not None else iou
+    if distance is not None and argument != "distance":
+        raise InvalidInput("distance", f"the records were matched by {rec.criterion}, not distance")
+    spec = parse_thresholds(list(rec.thresholds) if chosen is None else chosen, argument=argument)
+    opts = {"max_detections": None, "degrees": False, "min_points": None, **(options or {})}
     sizes = _parse_buckets(size_buckets, "size_buckets")
     ranges = _parse_buckets(range_buckets, "range_buckets")
     if ranges and rec.shape not in ("upright", "axis3"):
