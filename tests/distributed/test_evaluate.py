@@ -216,3 +216,19 @@ def test_single_files_read_here_like_in_process(client, tables, tmp_path):
     with pytest.raises(ValueError) as distributed_run:
         evaluate_distributed(str(tmp_path / "bad.csv"), d, client=client)
     assert str(distributed_run.value) == str(in_process.value)
+
+
+def test_distance_matching_gives_the_same_numbers(client, tables):
+    # centre-distance matching: the same records, result and intervals on the cluster
+    truth, dets = tables
+    want = evaluation.evaluate(truth, dets, distance=[0.5, 1, 2, 4])
+    assert want.counts("vessel", 1.0)[0] > 50  # enough matches for the check to bite
+    got = evaluate_distributed(
+        dd.from_pandas(truth, npartitions=3),
+        dd.from_pandas(dets, npartitions=4),
+        client=client,
+        buckets=3,
+        distance=[0.5, 1, 2, 4],
+    )
+    assert got.criterion == "distance"
+    assert_same(got, want)
