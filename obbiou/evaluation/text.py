@@ -14,6 +14,7 @@ __all__ = [
     "SAFETY_NOTE",
     "rule_text",
     "summary_text",
+    "tp_errors_text",
     "details_text",
     "interval_text",
     "buckets_text",
@@ -101,7 +102,46 @@ def summary_text(evaluation: Any) -> str:
             f"truths with fewer than {points['min_points']} lidar points set aside (ignore): "
             f"{aside} of {total}"
         )
+    if hasattr(evaluation, "tp_error") and evaluation.labels:
+        lines.append("")
+        lines.append(tp_errors_text(evaluation))
     lines.append(SAFETY_NOTE)
+    return "\n".join(lines)
+
+
+def tp_errors_text(evaluation: Any) -> str:
+    """Errors of true positives, one line per label at its most lenient threshold.
+
+    Centre distance (mean, in the boxes' unit), size error (mean of 1 - IoU after aligning
+    centre and heading), orientation error (mean, degrees) and, for upright boxes, the
+    heading-weighted AP (APH). ``n/a`` where undefined.
+    """
+    criterion = getattr(evaluation, "criterion", "iou")
+    upright = evaluation.records.shape == "upright"
+    width = max([len(c) for c in evaluation.labels] + [5])
+    fmt = f"  {{:<{width}}}  {{:>6}}  {{:>6}}  {{:>11}}  {{:>10}}  {{:>11}}  {{:>7}}"
+    cols = ("label", _COLUMN[criterion], "TP", "centre dist", "size err", "orient deg", "APH")
+    lines = ["Errors of true positives (means over the TPs):", fmt.format(*cols)]
+
+    def show(v: float | None, f: str) -> str:
+        return "n/a" if v is None or math.isnan(v) else format(v, f)
+
+    for lab in evaluation.labels:
+        own = evaluation.thresholds_of(lab)
+        t = max(own) if criterion == "distance" else min(own)
+        e = evaluation.tp_error(lab, t)
+        orient = None if e.orientation_error is None else math.degrees(e.orientation_error)
+        lines.append(
+            fmt.format(
+                lab,
+                _shown(criterion, t),
+                e.tp,
+                show(e.centre_distance, ".3f"),
+                show(e.size_error, ".3f"),
+                show(orient, ".2f"),
+                show(e.heading_ap, ".4f") if upright else "n/a",
+            )
+        )
     return "\n".join(lines)
 
 
