@@ -36,6 +36,9 @@ def count_truth_points(truth: Table, points: Any) -> np.ndarray:
 
     One call of :func:`obbiou.points.count_in_boxes` per frame that has both truths and
     points (the points are sorted by frame once; each call takes one contiguous slice).
+    The calls cost about 0.15 ms each on the 2-core machine, mostly the Python set-up of
+    a call: 10^4 frames of 5 truths and 100 points took 1.4 s of CPU, against 0.07 s for
+    matching them by distance (a batched entry in :mod:`obbiou.points` would remove it).
     Warns (:class:`~obbiou.errors.LikelyMistake`) when there are truths and points but no
     frame id in common: every truth would then hold 0 points.
 
