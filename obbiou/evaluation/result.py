@@ -569,9 +569,8 @@ class Evaluation:
         if shape == "upright":
             keep = (out == TP) | (out == FP)
             weights = np.zeros(len(idx))
-            mi = np.maximum(self._matched_index[idx, k], 0)
-            err = _tpe.heading_error(r.det_angle[idx], r.truth_angle[mi], 2 * np.pi)
-            weights[out == TP] = 1.0 - err[out == TP] / np.pi
+            err = _tpe.heading_error(r.det_angle[tp], r.truth_angle[ti], 2 * np.pi)
+            weights[out == TP] = 1.0 - err / np.pi
             heading_ap = _ap.weighted_average_precision(
                 np.clip(weights[keep], 0.0, 1.0),
                 counts.truths,

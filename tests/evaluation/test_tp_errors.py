@@ -150,3 +150,17 @@ def test_table_json_and_summary_columns():
     e = evaluate(axis, dict(axis, score=[1.0])).tp_error("crate")
     assert (e.orientation_error, e.heading_ap, e.size_error) == (None, None, 0.0)
     assert np.isnan(evaluate(axis, dict(axis, score=[1.0])).tp_errors()["heading_ap"][0])
+
+
+def test_labels_without_truths_and_empty_tables():
+    # a label seen only in the detections: no TP, AP undefined, no error values (None)
+    car = [0, 0, 0.75, 4, 2, 1.5, 0]
+    truth = table(UPRIGHT, [car], [0], ["car"])
+    dets = table(UPRIGHT, [car, car], [0, 0], ["car", "van"], score=[0.9, 0.8])
+    ev = evaluate(truth, dets, distance=[1.0])
+    e = ev.tp_error("van")
+    assert (e.tp, e.centre_distance, e.ap, e.heading_ap) == (0, None, None, None)
+    assert ev.to_dict()["tp_errors"]["van"]["1"]["heading_ap"] is None
+    empty = {k: v[:0] for k, v in dets.items()}
+    assert evaluate(truth, empty, distance=[1.0]).tp_error("car").heading_ap == 0.0
+    assert len(evaluate({k: v[:0] for k, v in truth.items()}, empty).tp_errors()) == 0
