@@ -28,17 +28,23 @@ SAFETY_NOTE = (
 )
 
 
-def rule_text(criterion: str, threshold: float) -> str:
-    """The matching rule at one threshold, as shown in summaries, JSON and plots.
+def rule_text(criterion: str, threshold: Any) -> str:
+    """The matching rule at a threshold (or several), as shown in summaries, JSON and plots.
 
     Examples
     --------
     >>> rule_text("iou", 0.5), rule_text("bev", 0.7), rule_text("distance", 1.0)
     ('IoU ≥ 0.5', 'BEV IoU ≥ 0.7', 'distance ≤ 1 m')
+    >>> rule_text("distance", [0.5, 1, 2, 4])
+    'distance ≤ 0.5, 1, 2, 4 m'
     """
+    if isinstance(threshold, (int, float)):
+        values = f"{threshold:g}"
+    else:
+        values = ", ".join(f"{t:g}" for t in threshold)
     if criterion == "distance":
-        return f"distance ≤ {threshold:g} m"
-    return f"{'BEV IoU' if criterion == 'bev' else 'IoU'} ≥ {threshold:g}"
+        return f"distance ≤ {values} m"
+    return f"{'BEV IoU' if criterion == 'bev' else 'IoU'} ≥ {values}"
 
 
 #: Column heading of the threshold in the text tables, per criterion.
@@ -272,10 +278,13 @@ def buckets_text(evaluation: Any) -> str:
 def comparison_text(comparison: Any) -> str:
     """A short text report of a paired comparison (:class:`obbiou.evaluation.Comparison`)."""
     lo, hi = comparison.interval
+    a = comparison.a
+    criterion = getattr(a, "criterion", "iou")
+    rule = rule_text(criterion, a.thresholds)
     return "\n".join(
         [
             f"obbiou comparison | {len(comparison.frames)} frames | "
-            f"{comparison.resamples} paired resamples",
+            f"{comparison.resamples} paired resamples | matched at {rule}",
             f"mean AP  A: {comparison.mean_ap_a:.4f}   B: {comparison.mean_ap_b:.4f}",
             f"B - A: {comparison.difference:+.4f}   {comparison.level:.0%} interval "
             f"[{lo:+.4f}, {hi:+.4f}]   p = {comparison.p_value:.4f}",

@@ -77,3 +77,15 @@ def test_bev_and_errors(tmp_path):
     alone = run("evaluate", str(paths["truth"]), str(paths["dets"]), "--min-points", "3")
     assert "--points" in one_line_error(alone)
     assert np.isfinite(truth["cx"]).all()  # the scene itself is valid
+
+
+def test_compare_says_how_it_matched(tmp_path):
+    paths, *_ = write_scene(tmp_path)
+    proc = run(
+        "compare", str(paths["truth"]), str(paths["dets"]), str(paths["dets"]),
+        "--distance", "1,2", "--points", str(paths["points"]), "--min-points", "3",
+        "--resamples", "50", "-q",
+    )  # fmt: skip
+    assert proc.returncode == 0, proc.stderr
+    assert "matched at distance ≤ 1, 2 m" in proc.stdout
+    assert "B - A: +0.0000" in proc.stdout  # the same detections twice: no difference
