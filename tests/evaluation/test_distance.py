@@ -251,3 +251,30 @@ def test_bev_against_shapely_footprints():
     assert tp.tolist() == (want >= 0.05).tolist()
     # 3D IoU differs (the cz noise): bev ignores height, as it should
     assert not np.allclose(evaluate(truth, dets, iou=0.05).records.det_best_same, want)
+
+
+def test_bev_equals_evaluating_the_footprint_tables():
+    # bev=True is the evaluation of the footprints as rotated boxes (footprint puts length
+    # into width and width into height): the same outcomes and IoUs, bit for bit
+    from obbiou.boxes import footprint
+
+    rng = np.random.default_rng(2)
+    m = 40
+    t = np.column_stack([rng.uniform(0, 8, (m, 2)), rng.uniform(0, 2, m),
+                         rng.uniform(0.5, 3, (m, 3)), rng.uniform(-3, 3, m)])  # fmt: skip
+    d = t + rng.normal(0, 0.3, t.shape)
+    d[:, 3:6] = np.abs(d[:, 3:6])
+    frames = rng.integers(0, 4, m).tolist()
+    truth = upright_table(t, frames, ["pallet"] * m)
+    dets = upright_table(d, frames, ["pallet"] * m, scores=rng.random(m).tolist())
+
+    def flat(table, boxes):
+        f = footprint(boxes)
+        out = {k: v for k, v in table.items() if k not in UPRIGHT}
+        return {**out, **dict(zip(("cx", "cy", "width", "height", "angle"), f.T, strict=True))}
+
+    a = evaluate(truth, dets, bev=True, iou=[0.3, 0.5, 0.7]).records
+    b = evaluate(flat(truth, t), flat(dets, d), iou=[0.3, 0.5, 0.7]).records
+    assert np.array_equal(a.det_outcome, b.det_outcome)
+    assert np.array_equal(a.det_iou, b.det_iou)
+    assert np.array_equal(a.det_best_same, b.det_best_same)
