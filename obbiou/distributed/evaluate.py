@@ -171,10 +171,11 @@ def evaluate_distributed(
     across files). Each bucket's truths and detections are matched on a worker, which sends
     back the compact match records: per detection its frame, rank, label, score, size,
     range, orientation, best IoUs and, per threshold, its outcome, matched truth and IoU;
-    per truth the like — no coordinates, in a lossless wire form (text as codes, narrow
-    integers, per-threshold IoUs only where they change) of about the size of the box rows
-    themselves. So each box crosses the network at most once (to its bucket's worker), and
-    only records come back to the client.
+    per truth the like; for the errors of true positives, each box's ground-plane centre and
+    its size aligned to the origin (no full boxes) — in a lossless wire form (text as codes,
+    narrow integers, per-threshold IoUs only where they change) of about 1.3 times the size
+    of the box rows themselves (upright boxes, two thresholds). So each box crosses the
+    network at most once (to its bucket's worker), and only records come back to the client.
 
     Parameters
     ----------
