@@ -62,6 +62,8 @@ __all__ = [
     "comparable_frame_ids",
     "frame_ids",
     "frame_groups",
+    "Points",
+    "read_points",
 ]
 
 #: File suffixes of tables and the format each names; every reader and writer uses this list.
@@ -963,3 +965,77 @@ def read_table(
     used = set(required) | set(bcols) | ({"ignore"} if role == "truth" else set())
     extra = {c: v for c, v in cols.items() if c not in used}
     return Table(role, frame, label, score, ignore, boxes, extra, name, written)
+
+
+@dataclass(frozen=True)
+class Points:
+    """A validated table of lidar points: one row per point.
+
+    Attributes
+    ----------
+    frame : numpy.ndarray
+        Frame id per row (int64 when all ids are integers, else str), compared with the
+        frames of box tables by :func:`comparable_frame_ids`.
+    xyz : numpy.ndarray
+        float64 ``(N, 2)`` (columns ``x, y``) or ``(N, 3)`` (``x, y, z``).
+    source : str
+        The file name, or ``"<DataFrame>"`` / ``"<mapping>"``.
+    """
+
+    frame: np.ndarray
+    xyz: np.ndarray
+    source: str = "<mapping>"
+
+    def __len__(self) -> int:
+        return int(self.xyz.shape[0])
+
+
+def read_points(source: Any) -> Points:
+    """Read and validate a table of points with columns ``frame, x, y`` and optionally ``z``.
+
+    Parameters
+    ----------
+    source : str, os.PathLike, pandas.DataFrame, mapping or Points
+        As for :func:`read_table` (CSV, Parquet, JSON Lines); a :class:`Points` is returned
+        as it is. Other columns are allowed and left out.
+
+    Returns
+    -------
+    Points
+
+    Raises
+    ------
+    obbiou.errors.InvalidTable
+        A missing column, or an empty, non-numeric or non-finite cell (naming the file, line
+        or row, and column).
+
+    Examples
+    --------
+    >>> p = read_points({"frame": [3, 3], "x": [0.5, 1.0], "y": [0.0, 2.0], "z": [0.1, 0.2]})
+    >>> p.xyz.shape, p.frame.tolist()
+    ((2, 3), [3, 3])
+    >>> read_points({"frame": [], "x": [], "y": []}).xyz.shape  # empty, 2D
+    (0, 2)
+    >>> read_points({"frame": [0], "x": [1.0], "y": [float("nan")]})
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidTable: <mapping>, row 0, column 'y': empty value (NaN)
+    """
+    if isinstance(source, Points):
+        return source
+    cols, where, n = _load(source)
+    for col in ("frame", "x", "y"):
+        if col not in cols:
+            raise InvalidTable(where.source, f"missing column {col!r} (points need frame, x, y)")
+    names = ("x", "y", "z") if "z" in cols else ("x", "y")
+    xyz = np.empty((n, len(names)))
+    for j, col in enumerate(names):
+        xyz[:, j] = _numeric(cols[col], col, where)
+    i = _first_empty(cols["frame"])
+    if i is not None:
+        raise where.error(i, "frame", "empty value")
+    try:
+        frame, _ = frame_ids(cols["frame"])
+    except InvalidInput as exc:
+        raise where.error(exc.row, "frame", exc.reason) from None
+    return Points(frame, xyz, where.source)

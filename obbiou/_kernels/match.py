@@ -92,13 +92,20 @@ def greedy_match(
     pair_truth,
     pair_iou,
     thresholds,
+    empty,
 ):
     """Greedy matching of every frame at every threshold in one pass.
 
     Detections of a frame must come in processing order (descending score, ties by input
     order); truths of a frame in input order, so that a lower index is the earlier truth.
-    Returns (outcome, matched truth, matched IoU, best IoU with a truth of the same label,
-    of another label; per truth: taken per threshold, best IoU same / other label).
+    ``pair_iou`` is a similarity per candidate pair, higher is better, and a pair matches
+    at threshold t when its similarity is >= t: the IoU, or the negated centre distance
+    with thresholds -d (then "highest" is "nearest" and ">= -d" is "distance <= d",
+    exactly). ``empty`` is the best similarity of a detection or truth without candidate
+    pairs (0.0 for IoU, -inf for negated distances).
+    Returns (outcome, matched truth, matched similarity, best similarity with a truth of
+    the same label, of another label; per truth: taken per threshold, best similarity
+    same / other label).
     """
     n = det_label.shape[0]
     m = truth_label.shape[0]
@@ -107,14 +114,14 @@ def greedy_match(
         np.full((n, nk), CAPPED, dtype=np.int8),
         np.full((n, nk), -1, dtype=np.int64),
         np.zeros((n, nk)),
-        np.zeros(n),
-        np.zeros(n),
+        np.full(n, empty),
+        np.full(n, empty),
         np.zeros((m, nk), dtype=np.bool_),
-        np.zeros(m),
-        np.zeros(m),
+        np.full(m, empty),
+        np.full(m, empty),
     )
     inputs = (det_ptr, det_label, det_live, truth_ptr, truth_label, truth_ignore)
-    args = inputs + (pair_ptr, pair_truth, pair_iou, thresholds) + out
+    args = inputs + (pair_ptr, pair_truth, pair_iou, thresholds, float(empty)) + out
     threads.run(greedy_spans, args, det_ptr.shape[0] - 1, serial=n < SERIAL_BELOW)
     return out
 
@@ -131,6 +138,7 @@ def greedy_spans(
     pair_truth,
     pair_iou,
     thresholds,
+    empty,
     outcome,
     matched_truth,
     matched_iou,
@@ -149,8 +157,8 @@ def greedy_spans(
             if not det_live[d]:
                 continue
             lab = det_label[d]
-            bs = 0.0
-            bo = 0.0
+            bs = empty
+            bo = empty
             for p in range(pair_ptr[d], pair_ptr[d + 1]):
                 t = pair_truth[p]
                 if truth_ignore[t]:
@@ -171,9 +179,9 @@ def greedy_spans(
             for k in range(nk):
                 thr = thresholds[k]
                 best = -1
-                best_v = -1.0
+                best_v = -np.inf
                 ign = -1
-                ign_v = -1.0
+                ign_v = -np.inf
                 for p in range(pair_ptr[d], pair_ptr[d + 1]):
                     t = pair_truth[p]
                     if truth_label[t] != lab:

@@ -8,6 +8,7 @@ import sys
 from obbiou.cli.options import (
     add_common,
     add_matching,
+    bad_option,
     bucket_edges,
     finite_float,
     matching_options,
@@ -23,7 +24,9 @@ EXAMPLE = (
     "  obbiou evaluate truth.parquet dets.parquet --iou 0.5 --iou crane=0.7 --interval\n"
     "  obbiou evaluate truth.csv dets.csv --at-score 0.5 --details rows.parquet\n"
     "  obbiou evaluate truth/ dets/                  # folders of table files, natural order\n"
-    "  obbiou evaluate truth/ dets/ --workers 2      # the same, matched on Dask workers"
+    "  obbiou evaluate truth/ dets/ --workers 2      # the same, matched on Dask workers\n"
+    "  obbiou evaluate truth.csv dets.csv --distance 0.5,1,2,4 --points points.parquet \\\n"
+    "      --min-points 5                             # lidar: centre distance, few returns"
 )
 
 
@@ -132,6 +135,8 @@ def run(args: argparse.Namespace) -> int:
     if args.workers is not None or args.scheduler is not None:
         from obbiou.distributed import evaluate_distributed
 
+        if args.points is not None:
+            raise bad_option("--points", "--points is not taken with --workers/--scheduler yet")
         # warm=True: the workers compile (or load from the cache) first, with its own bar
         cluster = {"workers": args.workers, "scheduler": args.scheduler, "warm": True}
         result = evaluate_distributed(

@@ -99,7 +99,7 @@ def positive_int(text: str) -> int:
     return value
 
 
-def parse_iou(values: Sequence[str] | None) -> Any:
+def parse_iou(values: Sequence[str] | None, option: str = "--iou") -> Any:
     """Turn the ``--iou`` options into the ``iou`` argument of the evaluation.
 
     Each value is a threshold ``0.5``, a list ``0.5,0.75``, a range ``0.5:0.95:0.05`` or one
@@ -114,6 +114,8 @@ def parse_iou(values: Sequence[str] | None) -> Any:
     {None: '0.5', 'crane': '0.7'}
     >>> parse_iou(None)
     0.5
+    >>> parse_iou(["0.5,1,2,4"], "--distance")
+    '0.5,1,2,4'
     """
     if not values:
         return 0.5
@@ -123,11 +125,11 @@ def parse_iou(values: Sequence[str] | None) -> Any:
         key = label.strip() if sep else None
         if sep and not key:
             raise bad_option(
-                "--iou", f"--iou {text!r}: expected LABEL=VALUE with a label before '='"
+                option, f"{option} {text!r}: expected LABEL=VALUE with a label before '='"
             )
         if key in per_label:
             what = f"label {key!r}" if key else "the default"
-            raise bad_option("--iou", f"--iou: {what} is given twice")
+            raise bad_option(option, f"{option}: {what} is given twice")
         per_label[key] = value.strip()
     if list(per_label) == [None]:
         return per_label[None]
@@ -217,14 +219,39 @@ def add_common(p: argparse.ArgumentParser, *, shape: bool = True) -> None:
 
 
 def add_matching(p: argparse.ArgumentParser) -> None:
-    """The options of the evaluation protocol: ``--iou``, ``--ap``, ``--recall-points``,
-    ``--top``."""
+    """The options of the evaluation protocol: ``--iou`` or ``--distance``, ``--bev``,
+    ``--points``, ``--min-points``, ``--ap``, ``--recall-points``, ``--top``."""
     p.add_argument(
         "--iou",
         action="append",
         metavar="[LABEL=]T",
         help="IoU threshold(s) for a match: 0.5, a list 0.5,0.75, a range "
         "0.5:0.95:0.05; repeat as LABEL=T for a label's own (default: 0.5)",
+    )
+    p.add_argument(
+        "--distance",
+        action="append",
+        metavar="[LABEL=]D",
+        help="match by ground-plane centre distance instead of IoU, at these distances "
+        "(metres), e.g. 0.5,1,2,4; repeat as LABEL=D for a label's own",
+    )
+    p.add_argument(
+        "--bev",
+        action="store_true",
+        help="3D boxes: match by the IoU of their ground-plane footprints (bird's-eye view)",
+    )
+    p.add_argument(
+        "--points",
+        metavar="PATH",
+        default=None,
+        help="lidar points (columns frame, x, y[, z]): count the points inside each truth",
+    )
+    p.add_argument(
+        "--min-points",
+        type=positive_int,
+        default=None,
+        metavar="K",
+        help="with --points: truths holding fewer than K points become ignore truths",
     )
     p.add_argument(
         "--ap",
@@ -252,12 +279,24 @@ def add_matching(p: argparse.ArgumentParser) -> None:
 def matching_options(args: argparse.Namespace) -> dict[str, Any]:
     """The keyword arguments of :func:`obbiou.evaluation.evaluate` that
     :func:`add_common` and :func:`add_matching` give."""
+    if args.iou and args.distance:
+        raise bad_option("--distance", "give either --iou or --distance, not both")
+    if args.min_points is not None and args.points is None:
+        raise bad_option("--min-points", "--min-points needs --points PATH")
     opts: dict[str, Any] = {
         "shape": args.shape,
-        "iou": parse_iou(args.iou),
+        "iou": None if args.distance else parse_iou(args.iou),
         "ap": args.ap,
         "degrees": args.degrees,
     }
+    if args.distance:
+        opts["distance"] = parse_iou(args.distance, "--distance")
+    if args.bev:
+        opts["bev"] = True
+    if args.points is not None:
+        opts["points"] = args.points
+    if args.min_points is not None:
+        opts["min_points"] = args.min_points
     if args.recall_points is not None:
         opts["recall_points"] = args.recall_points
     if args.top is not None:

@@ -63,6 +63,7 @@ __all__ = [
     "INVENTED",
     "harbour_survey",
     "warehouse_lidar",
+    "warehouse_returns",
     "simulate_detector",
     "scenarios",
 ]
@@ -524,6 +525,81 @@ def warehouse_lidar(frames: int = 8, *, seed: int = 0) -> Scenario:
         labels=("pallet", "forklift", "person"),
         layout={"frames": names, "poses": poses},
     )
+
+
+#: Invented lidar density: returns per square metre of a face seen square-on at 1 m.
+RETURNS_PER_M2_AT_1M = 1500.0
+
+
+def warehouse_returns(scenario: Scenario, *, seed: int = 0) -> pd.DataFrame:
+    """Invented lidar returns for the warehouse sweeps: columns ``frame, x, y, z`` (metres).
+
+    Each object's faces that look towards the sensor (at the origin, 1 m above the floor)
+    get returns in proportion to their area seen from there and falling off with the
+    square of the range (:data:`RETURNS_PER_M2_AT_1M`, Poisson counts), 0–2 cm inside the
+    face; nothing occludes anything (a simplification). Clutter is added: floor returns
+    (z within 2 cm of 0) and a few stray returns in the air. So near objects hold many
+    returns and far or small ones few — what ``min_points`` is for. All of it is
+    **invented**.
+
+    Examples
+    --------
+    >>> s = warehouse_lidar(frames=2, seed=3)
+    >>> pts = warehouse_returns(s, seed=3)
+    >>> list(pts.columns), sorted(pts.frame.unique()) == s.frames
+    (['frame', 'x', 'y', 'z'], True)
+    >>> warehouse_returns(s, seed=3).equals(pts)  # seeded
+    True
+    """
+    rng = np.random.default_rng([seed, 5])
+    sensor = np.array([0.0, 0.0, 1.0])
+    chunks = []
+    truth = scenario.truth
+    # the six faces of a unit box: outward normal and the two axes spanning the face
+    faces = [
+        (np.array(n, float), np.array(u, float), np.array(v, float))
+        for n, u, v in (
+            ((1, 0, 0), (0, 1, 0), (0, 0, 1)),
+            ((-1, 0, 0), (0, 1, 0), (0, 0, 1)),
+            ((0, 1, 0), (1, 0, 0), (0, 0, 1)),
+            ((0, -1, 0), (1, 0, 0), (0, 0, 1)),
+            ((0, 0, 1), (1, 0, 0), (0, 1, 0)),
+            ((0, 0, -1), (1, 0, 0), (0, 1, 0)),
+        )
+    ]
+    for frame in scenario.frames:
+        rows = truth[truth["frame"] == frame]
+        pts = []
+        for b in rows[list(COLUMNS["upright"])].to_numpy(float):
+            centre, dims, yaw = b[:3], b[3:6], b[6]
+            c, s_ = np.cos(yaw), np.sin(yaw)
+            turn = np.array([[c, -s_, 0.0], [s_, c, 0.0], [0.0, 0.0, 1.0]])
+            for n, u, v in faces:
+                half = dims / 2
+                normal = turn @ n
+                face_centre = centre + turn @ (n * half)
+                look = sensor - face_centre
+                dist = float(np.linalg.norm(look))
+                facing = float(normal @ look) / max(dist, 1e-9)
+                if facing <= 0:
+                    continue
+                area = float(np.prod(dims[np.abs(u) + np.abs(v) > 0]))
+                count = rng.poisson(RETURNS_PER_M2_AT_1M * area * facing / max(dist, 1.0) ** 2)
+                a = rng.uniform(-1, 1, (count, 1)) * (u * half)
+                bb = rng.uniform(-1, 1, (count, 1)) * (v * half)
+                depth = rng.uniform(0.0, 0.02, (count, 1)) * n  # 0-2 cm inside the face
+                local = n * half + a + bb - depth
+                pts.append(centre + local @ turn.T)
+        r = WAREHOUSE_MAX_RANGE
+        floor = rng.uniform(-r, r, (400, 3))
+        floor[:, 2] = rng.uniform(0.0, 0.02, 400)
+        stray = rng.uniform([-r, -r, 0.0], [r, r, 4.0], (40, 3))
+        xyz = np.vstack(pts + [floor, stray])
+        chunks.append(pd.DataFrame({"frame": frame, "x": xyz[:, 0], "y": xyz[:, 1],
+                                    "z": xyz[:, 2]}))  # fmt: skip
+    if not chunks:
+        return pd.DataFrame({"frame": [], "x": [], "y": [], "z": []})
+    return pd.concat(chunks, ignore_index=True)
 
 
 def _table(rows: list[dict], shape: str, *, truth: bool) -> pd.DataFrame:

@@ -161,7 +161,9 @@ def evaluate_distributed(
     detections: Any,
     *,
     shape: str | None = None,
-    iou: Any = 0.5,
+    iou: Any = None,
+    distance: Any = None,
+    bev: bool = False,
     ap: str = "all-points",
     recall_points: int | None = None,
     max_detections: int | None = None,
@@ -190,10 +192,11 @@ def evaluate_distributed(
     across files). Each bucket's truths and detections are matched on a worker, which sends
     back the compact match records: per detection its frame, rank, label, score, size,
     range, orientation, best IoUs and, per threshold, its outcome, matched truth and IoU;
-    per truth the like — no coordinates, in a lossless wire form (text as codes, narrow
-    integers, per-threshold IoUs only where they change) of about the size of the box rows
-    themselves. So each box crosses the network at most once (to its bucket's worker), and
-    only records come back to the client.
+    per truth the like; for the errors of true positives, each box's ground-plane centre and
+    its size aligned to the origin (no full boxes) — in a lossless wire form (text as codes,
+    narrow integers, per-threshold IoUs only where they change) of about 1.3 times the size
+    of the box rows themselves (upright boxes, two thresholds). So each box crosses the
+    network at most once (to its bucket's worker), and only records come back to the client.
 
     Parameters
     ----------
@@ -204,8 +207,11 @@ def evaluate_distributed(
         JSON Lines; natural order of the names, :func:`obbiou.tables.table_files`), read on
         the workers (every worker must see the same path); a single file or an in-memory
         table is cut into pieces here.
-    shape, iou, ap, recall_points, max_detections, size_buckets, range_buckets : optional
+    shape, iou, distance, bev, ap, recall_points, max_detections : optional
         As for :func:`obbiou.evaluation.evaluate` (the protocol is written out there).
+    size_buckets, range_buckets : optional
+        As for :func:`obbiou.evaluation.evaluate`. (Lidar points, ``points=``, are not
+        taken here yet: count them in process with :func:`obbiou.evaluation.evaluate`.)
     degrees, localisation_floor : optional
         As for :func:`obbiou.evaluation.evaluate` (the protocol is written out there).
     progress : bool
@@ -255,13 +261,12 @@ def evaluate_distributed(
     True
     """
     from obbiou.evaluation import reduce_records
-    from obbiou.evaluation.matching import parse_thresholds
+    from obbiou.evaluation.protocol import matching_criterion
     from obbiou.tables import Table
 
-    if iou is None:
-        raise InvalidInput("iou", "give a threshold, e.g. 0.5")
-    thresholds = parse_thresholds(iou)  # bad options fail here, before any work is sent
-    match_options = {"max_detections": max_detections}
+    # bad options fail here, before any work is sent
+    criterion, thresholds = matching_criterion(iou, distance, bev)
+    match_options = {"max_detections": max_detections, "criterion": criterion}
     with connect(client=client, scheduler=scheduler, workers=workers) as cl:
         if warm:
             warm_workers(cl, progress=progress, timeout=timeout)
@@ -332,7 +337,7 @@ def evaluate_distributed(
     read = tuple(roles[k] for k in ("truth", "detections"))
     return reduce_records(
         [unpack_records(r) for r in records],
-        iou=thresholds,
+        iou=thresholds,  # a Thresholds spec: IoUs or distances, as matched
         ap=ap,
         recall_points=recall_points,
         size_buckets=size_buckets,

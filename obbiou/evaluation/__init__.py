@@ -6,11 +6,13 @@ Map then reduce: :func:`match_frames` matches each frame into compact
 :func:`compare` a paired bootstrap comparison of two detectors. Tables are read by
 :func:`obbiou.tables.read_table` (also importable from here).
 
-Where things are: ``matching`` (the map step and the match records), ``ap``, ``bootstrap``
-and ``breakdown`` (the numbers), ``result`` (:class:`Evaluation`, :class:`Counts`, the reduce
-step), ``protocol`` (:func:`evaluate`, the protocol written out), ``compare``, ``text``
-(summaries), ``plots`` (precision-recall curves on a matplotlib Figure), ``pictures``
-(:func:`draw_frame`: one frame's truths and detections by status) and ``palette``.
+Where things are: ``matching`` (the map step and the match records, by IoU, BEV IoU or
+centre distance), ``ap``, ``bootstrap``, ``breakdown`` and ``tp_errors`` (the numbers),
+``point_counts`` (lidar points inside truths), ``result`` (:class:`Evaluation`,
+:class:`Counts`, the reduce step), ``protocol`` (:func:`evaluate`, the protocol written
+out), ``compare``, ``text`` (summaries), ``plots`` (precision-recall curves on a matplotlib
+Figure), ``pictures`` (:func:`draw_frame`: one frame's truths and detections by status)
+and ``palette``.
 
 Detection metrics do not establish that a vehicle, robot or any other system is safe; defer
 to the applicable safety standards, local regulation and qualified engineers.

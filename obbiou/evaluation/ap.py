@@ -32,7 +32,14 @@ import numpy as np
 
 from obbiou.errors import InvalidInput
 
-__all__ = ["Curve", "curve", "average_precision", "ap_kind", "KINDS"]
+__all__ = [
+    "Curve",
+    "curve",
+    "average_precision",
+    "weighted_average_precision",
+    "ap_kind",
+    "KINDS",
+]
 
 KINDS = ("all-points", "11-point", "101-point", "step")
 
@@ -153,4 +160,70 @@ def average_precision(
     ctp = np.cumsum(tp)[tp]  # TP count at each TP: 1, 2, ...
     first = np.searchsorted(ctp * (npoints - 1), q * npos, side="left")
     sampled = np.where(first < len(envelope), envelope[np.minimum(first, len(envelope) - 1)], 0.0)
+    return float(sampled.mean())
+
+
+def weighted_average_precision(
+    weights: np.ndarray,
+    npos: int,
+    *,
+    kind: str = "all-points",
+    recall_points: int | None = None,
+) -> float | None:
+    """AP of a ranking whose true positives count by a weight in [0, 1] (FPs weigh 0).
+
+    After the i-th detection, precision ``sum(w[:i]) / i`` and recall ``sum(w[:i]) / npos``;
+    then the variants of :func:`average_precision` on these. With weights ``1 - Δθ/π`` (Δθ
+    the heading error in [0, π]) this is the heading-weighted AP of Sun et al., CVPR 2020
+    (the weighting of both precision and recall by the TP weights is written here from
+    memory of that paper). With 0/1 weights it equals :func:`average_precision`. Recall
+    levels of the sampled variants are compared in floating point.
+
+    Parameters
+    ----------
+    weights : array_like of float
+        Per ranked detection (descending score; ignored detections left out): the TP's
+        weight, 0 for an FP.
+    npos : int
+        Number of positives.
+    kind, recall_points
+        As for :func:`average_precision`.
+
+    Returns
+    -------
+    float or None
+        ``None`` when ``npos == 0``.
+
+    Examples
+    --------
+    One truth, found once with its heading a quarter turn off (weight 1/2): precision and
+    recall both 1/2, so AP 1/4 (hand-worked).
+
+    >>> weighted_average_precision([0.5], npos=1)
+    0.25
+    >>> weighted_average_precision([1.0, 0.0, 1.0], npos=4)  # == average_precision, 0/1
+    0.41666666666666663
+    >>> weighted_average_precision([], npos=2), weighted_average_precision([1.0], npos=0)
+    (0.0, None)
+    """
+    code, npoints = ap_kind(kind, recall_points)
+    w = np.asarray(weights, dtype=np.float64)
+    if npos <= 0:
+        return None
+    if w.size and (np.any(w < 0) or np.any(w > 1) or not np.all(np.isfinite(w))):
+        raise InvalidInput("weights", "TP weights must lie in [0, 1]")
+    if not np.any(w > 0):
+        return 0.0
+    c = np.cumsum(w)
+    precision = c / np.arange(1, len(w) + 1)
+    recall = c / npos
+    step = np.diff(np.r_[0.0, recall])
+    if code == 1:
+        return float(np.sum(step * precision))
+    envelope = np.maximum.accumulate(precision[::-1])[::-1]
+    if code == 0:
+        return float(np.sum(step * envelope))
+    levels = np.arange(npoints) / (npoints - 1)
+    first = np.searchsorted(recall, levels, side="left")  # first rank reaching each level
+    sampled = np.where(first < len(w), envelope[np.minimum(first, len(w) - 1)], 0.0)
     return float(sampled.mean())

@@ -11,7 +11,7 @@ from obbiou.evaluation.bootstrap import frame_weights, percentile_interval
 from obbiou.evaluation.protocol import evaluate
 from obbiou.evaluation.result import Evaluation
 from obbiou.evaluation.text import SAFETY_NOTE, comparison_text
-from obbiou.tables import Table, comparable_frame_ids, read_table
+from obbiou.tables import Table, comparable_frame_ids, read_points, read_table
 
 __all__ = ["Comparison", "LabelComparison", "compare"]
 
@@ -108,7 +108,11 @@ def compare(
     detections_b: Any,
     *,
     shape: str | None = None,
-    iou: Any = 0.5,
+    iou: Any = None,
+    distance: Any = None,
+    bev: bool = False,
+    points: Any = None,
+    min_points: int | None = None,
     ap: str = "all-points",
     resamples: int = 1000,
     level: float = 0.95,
@@ -120,7 +124,8 @@ def compare(
 ) -> Comparison:
     """Is detector B better than detector A on the same truth? A paired bootstrap.
 
-    Both are evaluated with the protocol of :func:`evaluate`. Then the frames (the union of
+    Both are evaluated with the protocol of :func:`evaluate` (``iou``, ``distance``,
+    ``bev``, ``points`` and ``min_points`` as there). Then the frames (the union of
     all frames in the truth and both detection tables) are resampled with replacement
     ``resamples`` times; each resample weights *both* detectors' match records with the same
     frame counts, giving a paired difference d* = mAP_B* - mAP_A* (mAP over all thresholds).
@@ -147,9 +152,15 @@ def compare(
     (0.5, 1.0)
     """
     truth_t = read_table(truth, role="truth", shape=shape, degrees=degrees)
+    if points is not None:
+        points = read_points(points)  # read once for both detectors
     kw = dict(
         shape=truth_t.shape,
         iou=iou,
+        distance=distance,
+        bev=bev,
+        points=points,
+        min_points=min_points,
         ap=ap,
         recall_points=recall_points,
         max_detections=max_detections,

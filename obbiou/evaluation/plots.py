@@ -3,7 +3,7 @@
 The curves are drawn on a :class:`matplotlib.figure.Figure` of their own (no pyplot, no
 global backend switch), so that plotting inside a notebook or a GUI program leaves its
 matplotlib state alone. A result is read through its public methods only (``labels``,
-``thresholds``, ``threshold``, ``thresholds_of``, ``ap``, ``curve``, ``mean_ap``).
+``thresholds``, ``threshold``, ``thresholds_of``, ``ap``, ``curve``, ``mean_ap``, ``rule``).
 """
 
 from __future__ import annotations
@@ -17,7 +17,8 @@ __all__ = ["curve_thresholds", "draw_curves", "plot_curves"]
 
 def curve_thresholds(evaluation: Any, iou: float | None = None) -> dict[str, float]:
     """The threshold each label's curve is drawn at: ``iou`` for the labels evaluated there;
-    by default each label's own lowest threshold (labels may have thresholds of their own).
+    by default each label's own most lenient threshold (its lowest IoU or largest distance;
+    labels may have thresholds of their own).
 
     Examples
     --------
@@ -29,7 +30,8 @@ def curve_thresholds(evaluation: Any, iou: float | None = None) -> dict[str, flo
     ({'car': 0.7, 'van': 0.5}, {'van': 0.6})
     """
     if iou is None:
-        return {lab: min(evaluation.thresholds_of(lab)) for lab in evaluation.labels}
+        lenient = max if evaluation.criterion == "distance" else min
+        return {lab: lenient(evaluation.thresholds_of(lab)) for lab in evaluation.labels}
     t = evaluation.threshold(iou)
     return {lab: t for lab in evaluation.labels if t in evaluation.thresholds_of(lab)}
 
@@ -39,7 +41,8 @@ def draw_curves(
 ) -> Any:
     """Draw the precision-recall curves of every label with truths on ``figure``.
 
-    Each label is drawn at ``iou`` or, by default, at its own lowest threshold (see
+    Each label is drawn at ``iou`` or, by default, at its own most lenient threshold (lowest
+    IoU, largest distance; see
     :func:`curve_thresholds`; a label with a threshold of its own, cars at 0.7, is drawn at
     it); the legend names the threshold when labels differ. ``title``, when given, heads the
     figure above the caption. The step curve is drawn as evaluated (precision after each
@@ -80,7 +83,7 @@ def draw_curves(
         envelope = np.maximum.accumulate(p[::-1])[::-1]
         lowest = min(lowest, float(p.min()))
         ax.plot(r, p, color=colour, linestyle=style, linewidth=1.0, alpha=0.45)
-        name = f"{lab}  AP {value:.3f}" + ("" if one else f"  (IoU ≥ {t:g})")
+        name = f"{lab}  AP {value:.3f}" + ("" if one else f"  ({evaluation.rule(t)})")
         ax.step(r, envelope, where="pre", color=colour, linestyle=style, linewidth=1.8, label=name)
         drawn += 1
     ax.set_xlim(0, 1.0)
@@ -90,15 +93,15 @@ def draw_curves(
     ax.set_ylabel("precision")
     if one and at:
         t = next(iter(at.values()))
-        caption = f"precision vs recall at IoU ≥ {t:g}"
+        caption = f"precision vs recall at {evaluation.rule(t)}"
         m = evaluation.mean_ap(t)
         if m is not None:
             caption += f"   (mean AP {m:.3f})"
     else:
-        caption = "precision vs recall, each label at its own IoU threshold"
+        caption = "precision vs recall, each label at its own threshold"
     left_out = [lab for lab in evaluation.labels if lab not in at]
     if left_out:
-        caption += f"\nnot evaluated at IoU {iou:g}: {', '.join(left_out)}"
+        caption += f"\nnot evaluated at {evaluation.rule(iou)}: {', '.join(left_out)}"
     ax.set_title(caption, fontsize=10, loc="left")
     if title:
         figure.suptitle(title, fontsize=11, x=0.02, ha="left")

@@ -6,11 +6,11 @@ from typing import Any
 
 from obbiou.errors import InvalidInput
 from obbiou.evaluation.checks import warn_likely_mistakes
-from obbiou.evaluation.matching import match_frames, parse_thresholds
+from obbiou.evaluation.matching import Thresholds, match_frames, parse_thresholds
 from obbiou.evaluation.result import Evaluation, reduce_records
 from obbiou.tables import read_table
 
-__all__ = ["evaluate"]
+__all__ = ["evaluate", "matching_criterion"]
 
 
 def evaluate(
@@ -18,7 +18,11 @@ def evaluate(
     detections: Any,
     *,
     shape: str | None = None,
-    iou: Any = 0.5,
+    iou: Any = None,
+    distance: Any = None,
+    bev: bool = False,
+    points: Any = None,
+    min_points: int | None = None,
     ap: str = "all-points",
     recall_points: int | None = None,
     max_detections: int | None = None,
@@ -43,7 +47,19 @@ def evaluate(
        and are true positives (TP). Failing that, a detection with IoU >= t to an ``ignore``
        truth of its label is *ignored* (neither TP nor FP; an ignore truth absorbs any number
        of detections). Otherwise it is a false positive (FP). Ignore truths never count as
-       misses. IoU is the exact area (2D) or volume (3D) IoU of the layout.
+       misses. IoU is the exact area (2D) or volume (3D) IoU of the layout; with
+       ``bev=True`` (3D boxes) the exact area IoU of their ground-plane footprints
+       (bird's-eye view).
+       **By centre distance** (``distance=[0.5, 1, 2, 4]``, metres; Caesar et al., CVPR
+       2020) the same rule reads: the *nearest* unmatched non-ignore truth whose
+       ground-plane centre lies within d (``hypot(dx, dy) <= d`` in float64; ties: the
+       earlier truth), else ignored when an ignore truth lies within d, else FP. Centres:
+       the middle of the x and y extents (``axis``, ``axis3``), ``cx, cy`` (``rotated``,
+       ``upright``), the area centroid (``polygon``); 3D boxes on the ground plane
+       (x, y). Exactly one of ``iou`` and ``distance`` is given (``iou`` defaults to 0.5).
+    3b. **Lidar points** (``points=``, ``min_points=K``): truths that hold fewer than K points
+       of their frame become ignore truths before matching (the count is kept per truth in
+       the records, ``truth_points``; see :mod:`obbiou.evaluation.point_counts`).
     4. **Accounting**, per label and threshold: TP + FP + ignored = evaluated detections,
        TP + missed = non-ignored truths (checked; see :meth:`Evaluation.counts`).
     5. **Ranking** per label over all frames: descending score, ties by frame id then input
@@ -69,10 +85,22 @@ def evaluate(
         detections with ``score``; truth with optional ``ignore``).
     shape : str, optional
         Box layout; inferred from the columns when ``None``.
-    iou : float, sequence, str or mapping
-        Threshold(s): ``0.5``, ``[0.5, 0.75]``, ``"0.5:0.95:0.05"`` (stop included within
+    iou : float, sequence, str or mapping, optional
+        IoU threshold(s): ``0.5``, ``[0.5, 0.75]``, ``"0.5:0.95:0.05"`` (stop included within
         rounding: 10 thresholds), or a mapping label -> threshold(s) (key ``None``: default
-        for unlisted labels).
+        for unlisted labels). Default 0.5 unless ``distance`` is given.
+    distance : float, sequence, str or mapping, optional
+        Match by ground-plane centre distance instead, at these thresholds in metres (any
+        of the forms of ``iou``), e.g. ``[0.5, 1, 2, 4]``. The result's methods take these
+        distances where they take a threshold (``ap(label, 2.0)``).
+    bev : bool
+        3D boxes (``upright``, ``axis3``) by the IoU of their ground-plane footprints.
+    points : path, DataFrame, mapping or obbiou.tables.Points, optional
+        Lidar points, columns ``frame, x, y`` and optionally ``z``: each truth's count of
+        the points of its frame inside it is kept (``records.truth_points``) and summed up
+        per label in :meth:`Evaluation.to_dict` (``"points"``).
+    min_points : int, optional
+        With ``points``: truths holding fewer points become ignore truths.
     ap : str
         ``"all-points"``, ``"11-point"``, ``"101-point"`` or ``"step"``.
     recall_points : int, optional
@@ -116,14 +144,19 @@ def evaluate(
     >>> evaluate({k: v[:0] for k, v in truth.items()}, dets).ap("van") is None
     True
     """
-    if iou is None:
-        raise InvalidInput("iou", "give a threshold, e.g. 0.5")
-    spec = parse_thresholds(iou)
+    criterion, spec = matching_criterion(iou, distance, bev)
     truth_t = read_table(truth, role="truth", shape=shape, degrees=degrees)
     det_t = read_table(detections, role="detections", shape=shape, degrees=degrees)
     warn_likely_mistakes(truth_t, det_t, degrees=degrees)
     records = match_frames(
-        truth_t, det_t, thresholds=spec, max_detections=max_detections, progress=progress
+        truth_t,
+        det_t,
+        thresholds=spec,
+        criterion=criterion,
+        max_detections=max_detections,
+        progress=progress,
+        points=points,
+        min_points=min_points,
     )
     return reduce_records(
         records,
@@ -133,9 +166,40 @@ def evaluate(
         size_buckets=size_buckets,
         range_buckets=range_buckets,
         localisation_floor=localisation_floor,
-        options={"max_detections": max_detections, "degrees": degrees},
+        options={"max_detections": max_detections, "degrees": degrees, "min_points": min_points},
         inputs=(truth_t, det_t),
     )
+
+
+def matching_criterion(iou: Any, distance: Any, bev: bool) -> tuple[str, Thresholds]:
+    """What decides a match and at which thresholds: ``("iou" | "bev" | "distance", spec)``.
+
+    Exactly one of ``iou`` and ``distance`` (``iou`` defaults to 0.5 when neither is given);
+    ``bev`` applies to IoU matching only (centre distances are on the ground plane already).
+
+    Examples
+    --------
+    >>> matching_criterion(None, None, False)[0], matching_criterion(None, "1,2", False)[1].values
+    ('iou', (1.0, 2.0))
+    >>> matching_criterion(0.5, 2.0, False)
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: distance: give either iou= or distance=, not both
+    """
+    if iou is not None and distance is not None:
+        raise InvalidInput(
+            "distance",
+            "give either iou= or distance=, not both",
+        )
+    if distance is not None:
+        if bev:
+            raise InvalidInput(
+                "bev",
+                "bev=True applies to IoU matching; centre distances are on the ground "
+                "plane already",
+            )
+        return "distance", parse_thresholds(distance, argument="distance")
+    return ("bev" if bev else "iou"), parse_thresholds(0.5 if iou is None else iou)
 
 
 def warmup() -> None:

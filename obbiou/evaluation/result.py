@@ -22,6 +22,7 @@ import numpy as np
 from obbiou.errors import InvalidInput
 from obbiou.evaluation import ap as _ap
 from obbiou.evaluation import breakdown as _bd
+from obbiou.evaluation import tp_errors as _tpe
 from obbiou.evaluation.bootstrap import (
     LabelRanking,
     frame_weights,
@@ -128,8 +129,12 @@ class Evaluation:
 
     Attributes
     ----------
+    criterion : str
+        What decided the matches: ``"iou"``, ``"bev"`` (IoU of the ground-plane
+        footprints) or ``"distance"`` (ground-plane centre distance; the thresholds are
+        metres, and every method's ``iou`` argument takes such a distance).
     thresholds : tuple of float
-        All IoU thresholds evaluated.
+        All thresholds evaluated (IoUs, or distances in metres).
     labels : tuple of str
         Every label seen in the truth or the detections, sorted.
     frames : numpy.ndarray
@@ -158,6 +163,13 @@ class Evaluation:
     ):
         self.records = records
         self.inputs = _check_inputs(records, inputs)
+        self.criterion: str = records.criterion
+        if (spec.argument == "distance") != (self.criterion == "distance"):
+            raise InvalidInput(
+                spec.argument,
+                f"the records were matched by {self.criterion}; give the thresholds as "
+                f"{'distance' if self.criterion == 'distance' else 'iou'}=",
+            )
         self._spec = spec
         self._ap = ap
         self._recall_points = recall_points
@@ -284,8 +296,11 @@ class Evaluation:
         )
         return value, counts
 
-    def threshold(self, iou: float) -> float:
+    def threshold(self, iou: float | None) -> float:
         """The evaluated threshold equal to ``iou`` (within 1e-9); InvalidInput if none is.
+
+        ``None`` gives the most lenient threshold (the lowest IoU, or the largest distance),
+        the default of the breakdowns and plots.
 
         Examples
         --------
@@ -296,7 +311,7 @@ class Evaluation:
         >>> ev.threshold(0.7000000000001), ev.thresholds_of("a")
         (0.7, (0.5, 0.7))
         """
-        return self._threshold(iou)
+        return self._default_iou(iou)
 
     def thresholds_of(self, label: Any) -> tuple[float, ...]:
         """The thresholds ``label`` is evaluated at (labels may have thresholds of their own)."""
@@ -464,24 +479,55 @@ class Evaluation:
 
     # -- breakdowns --------------------------------------------------------------------------
     def _default_iou(self, iou: float | None) -> float:
-        return min(self.thresholds) if iou is None else self._threshold(iou)
+        if iou is not None:
+            return self._threshold(iou)
+        # the most lenient threshold: the lowest IoU, or the largest distance
+        return max(self.thresholds) if self.criterion == "distance" else min(self.thresholds)
+
+    def _closeness(self, values: np.ndarray, t: float) -> tuple[np.ndarray, float, float]:
+        """Per-pair values, threshold and localisation floor as "higher is closer"
+        (distances negated), for the breakdowns' ``>=`` tests. By distance, "poor
+        localisation" means within the largest distance threshold (but not within t)."""
+        if self.criterion == "distance":
+            return -values, -t, -float(np.max(self.records.thresholds))
+        return values, t, self._floor
+
+    def rule(self, iou: float | None = None) -> str:
+        """The matching rule at a threshold as text: ``"IoU ≥ 0.5"``, ``"BEV IoU ≥ 0.5"``
+        or ``"distance ≤ 2 m"`` (default: the most lenient threshold).
+
+        Examples
+        --------
+        >>> from obbiou.evaluation import evaluate
+        >>> box = {"cx": [0.0], "cy": [0.0], "width": [2.0], "height": [1.0], "angle": [0.0]}
+        >>> t, d = {"frame": [0], "label": ["a"], **box}, {"frame": [0], "label": ["a"],
+        ...     "score": [1.0], **box}
+        >>> evaluate(t, d).rule(), evaluate(t, d, distance=[1, 2]).rule()
+        ('IoU ≥ 0.5', 'distance ≤ 2 m')
+        """
+        from obbiou.evaluation.text import rule_text
+
+        return rule_text(self.criterion, self._default_iou(iou))
 
     def false_positives(self, iou: float | None = None) -> dict[str, _bd.FalsePositives]:
-        """False positives by class per label at ``iou`` (default: the lowest threshold).
+        """False positives by class per label at ``iou`` (default: the most lenient
+        threshold, see :meth:`threshold`).
 
         Classes, tested in this order (each FP in exactly one):
         ``duplicate`` — a non-ignore truth of its label has IoU >= iou with it, but all such
         truths were already taken by higher-scoring detections; ``wrong_label`` — a
         non-ignore truth of another label has IoU >= iou with it; ``poor_localisation`` — a
         non-ignore truth of its label has IoU in [0.1, iou) with it (the floor is the
-        ``localisation_floor`` option); ``background`` — none of these.
+        ``localisation_floor`` option); ``background`` — none of these. Matched by centre
+        distance, "IoU >= iou" reads "within distance iou" and the poor-localisation band is
+        "within the largest distance threshold but not within iou".
         """
         t = self._default_iou(iou)
         k = self._col(t)
         r = self.records
-        cls = _bd.classify_false_positives(
-            self._outcome[:, k] == FP, r.det_best_same, r.det_best_other, t, self._floor
-        )
+        same, tt, floor = self._closeness(r.det_best_same, t)
+        other = self._closeness(r.det_best_other, t)[0]
+        cls = _bd.classify_false_positives(self._outcome[:, k] == FP, same, other, tt, floor)
         out = {}
         for lab in self.labels:
             if t not in self._of[lab]:
@@ -492,7 +538,8 @@ class Evaluation:
         return out
 
     def misses(self, iou: float | None = None) -> dict[str, _bd.Misses]:
-        """Missed truths by class per label at ``iou`` (default: the lowest threshold).
+        """Missed truths by class per label at ``iou`` (default: the most lenient
+        threshold, see :meth:`threshold`).
 
         Classes, tested in this order: ``crowded`` — a detection of its label has IoU >= iou
         with it but was matched to another truth; ``wrong_label`` — a detection of another
@@ -503,7 +550,9 @@ class Evaluation:
         k = self._col(t)
         r = self.records
         is_miss = self._positive & ~r.truth_matched[:, k]
-        cls = _bd.classify_misses(is_miss, r.truth_best_same, r.truth_best_other, t, self._floor)
+        same, tt, floor = self._closeness(r.truth_best_same, t)
+        other = self._closeness(r.truth_best_other, t)[0]
+        cls = _bd.classify_misses(is_miss, same, other, tt, floor)
         out = {}
         for lab in self.labels:
             if t not in self._of[lab]:
@@ -516,7 +565,8 @@ class Evaluation:
     def orientation_error(
         self, iou: float | None = None, label: Any = None
     ) -> _bd.OrientationError:
-        """Orientation error of the matched pairs at ``iou`` (default: the lowest threshold).
+        """Orientation error of the matched pairs at ``iou`` (default: the most lenient
+        threshold, see :meth:`threshold`).
 
         Rectangles (rotated; polygons by their longest edge) compare long axes modulo π, or
         modulo π/2 when either box of the pair is near-square (long / short side below 1.25,
@@ -773,6 +823,90 @@ class Evaluation:
         cap = self.options.get("max_detections")
         return confusion_table(truth, dets, self.labels, t, max_detections=cap)
 
+    # -- errors of true positives -----------------------------------------------------------
+    def tp_error(self, label: Any, iou: float | None = None) -> _tpe.TpErrors:
+        """Errors of the true positives of ``label`` at one threshold (default: the most
+        lenient): mean centre distance, mean size error, mean orientation error (radians),
+        AP and, for upright boxes, the heading-weighted AP. See
+        :mod:`obbiou.evaluation.tp_errors` for the definitions.
+
+        Examples
+        --------
+        Hand-worked: a 4 x 2 x 1.5 car found 0.5 m off with its heading a quarter turn off.
+        Centre distance 0.5; size error 0 (same size once aligned); orientation error π/2;
+        AP 1; heading-weighted AP: the TP counts 1 - (π/2)/π = 1/2, so precision and recall
+        are 1/2 and APH = 1/4.
+
+        >>> from obbiou.evaluation import evaluate
+        >>> cols = ("cx", "cy", "cz", "length", "width", "height", "yaw")
+        >>> car = dict(zip(cols, ([0.0], [0.0], [0.75], [4.0], [2.0], [1.5], [0.0])))
+        >>> seen = dict(car, cx=[0.5], yaw=[np.pi / 2], score=[0.9])
+        >>> ev = evaluate({"frame": [0], "label": ["car"], **car},
+        ...               {"frame": [0], "label": ["car"], **seen}, distance=[1.0])
+        >>> e = ev.tp_error("car")
+        >>> e.tp, e.centre_distance, e.size_error, round(e.orientation_error, 6)
+        (1, 0.5, 0.0, 1.570796)
+        >>> e.ap, e.heading_ap
+        (1.0, 0.25)
+        """
+        lab = self._label(label)
+        t = self._default_iou(iou)
+        if t not in self._spec.of(lab):
+            raise InvalidInput("iou", f"label {lab!r} is not evaluated at {t:g}")
+        k = self._col(t)
+        r = self.records
+        idx = self._by_label[lab]
+        out = self._outcome[idx, k]
+        tp = idx[out == TP]
+        ti = self._matched_index[tp, k]
+        shape = r.shape
+
+        def mean(v: np.ndarray) -> float | None:
+            return float(v.mean()) if len(v) else None
+
+        dist = _tpe.centre_distance(r.det_centre[tp], r.truth_centre[ti])
+        size = _tpe.size_error(r.det_aligned[tp], r.truth_aligned[ti], shape)
+        orient = heading_ap = None
+        if shape not in ("axis", "axis3"):
+            period = 2 * np.pi if shape == "upright" else np.pi
+            orient = mean(_tpe.heading_error(r.det_angle[tp], r.truth_angle[ti], period))
+        value, counts = self._cells[(lab, t)]
+        if shape == "upright":
+            keep = (out == TP) | (out == FP)
+            weights = np.zeros(len(idx))
+            err = _tpe.heading_error(r.det_angle[tp], r.truth_angle[ti], 2 * np.pi)
+            weights[out == TP] = 1.0 - err / np.pi
+            heading_ap = _ap.weighted_average_precision(
+                np.clip(weights[keep], 0.0, 1.0),
+                counts.truths,
+                kind=self._ap if self._recall_points is None else "all-points",
+                recall_points=self._recall_points,
+            )
+        return _tpe.TpErrors(
+            lab, t, int(len(tp)), mean(dist), mean(size), orient, value, heading_ap
+        )
+
+    def tp_errors(self, iou: float | None = None) -> Any:
+        """Errors of true positives per label and threshold, as a pandas DataFrame.
+
+        One row per label and threshold (``iou=None``: every threshold; else the one given),
+        columns :data:`obbiou.evaluation.tp_errors.TP_ERROR_COLUMNS`: ``label``,
+        ``threshold``, ``tp``, ``centre_distance``, ``size_error``, ``orientation_error``
+        (radians), ``ap``, ``heading_ap``; undefined values (no TP, no orientation, no
+        heading) are missing (NaN). See :meth:`tp_error` for one label and
+        :mod:`obbiou.evaluation.tp_errors` for the definitions.
+        """
+        import pandas as pd
+
+        rows = []
+        for lab in self.labels:
+            ts = self._spec.of(lab) if iou is None else self._thresholds_of(lab, iou)
+            rows.extend(self.tp_error(lab, t) for t in ts)
+        frame = pd.DataFrame(rows, columns=list(_tpe.TP_ERROR_COLUMNS))
+        for c in _tpe.TP_ERROR_COLUMNS[3:]:
+            frame[c] = frame[c].astype(np.float64)
+        return frame
+
     # -- reports -----------------------------------------------------------------------------
     def summary(self) -> str:
         """A readable text table: one line per label and threshold, then the means."""
@@ -808,9 +942,12 @@ class Evaluation:
                 "ap": {_key(t): num(self._cells[(lab, t)][0]) for t in ts},
                 "counts": {_key(t): self._cells[(lab, t)][1]._asdict() for t in ts},
             }
+        by = {_key(t): num(self.mean_ap(t)) for t in self.thresholds}
         d: dict[str, Any] = {
             "mean_ap": num(self.mean_ap()),
-            "mean_ap_by_iou": {_key(t): num(self.mean_ap(t)) for t in self.thresholds},
+            "criterion": self.criterion,
+            "rule": {_key(t): self.rule(t) for t in self.thresholds},
+            ("mean_ap_by_distance" if self.criterion == "distance" else "mean_ap_by_iou"): by,
             "thresholds": [float(t) for t in self.thresholds],
             "frames": int(len(self.frames)),
             "detections": self.records.n_detections,
@@ -824,11 +961,25 @@ class Evaluation:
                 "by": self.bucket[1],
                 **dict(zip(("low", "high"), _json_edges(self.bucket[2:]), strict=True)),
             }
+        points = self.point_counts()
+        if points is not None:
+            d["points"] = points
         if breakdowns:
             d["false_positives"] = {k: v._asdict() for k, v in self.false_positives().items()}
             d["misses"] = {k: v._asdict() for k, v in self.misses().items()}
             if self.records.shape not in ("axis", "axis3"):
                 d["orientation_error"] = _degrees(self.orientation_error())
+            d["tp_errors"] = {
+                lab: {
+                    _key(t): {
+                        k: v
+                        for k, v in self.tp_error(lab, t)._asdict().items()
+                        if k not in ("label", "threshold")
+                    }
+                    for t in self._spec.of(lab)
+                }
+                for lab in self.labels
+            }
             for by, group in self.buckets.items():
                 d.setdefault("buckets", {})[by] = {
                     name: ev.to_dict(breakdowns=False) for name, ev in group.items()
@@ -848,6 +999,31 @@ class Evaluation:
         d["note"] = SAFETY_NOTE
         return d
 
+    def point_counts(self) -> dict | None:
+        """Lidar points inside the truths, per label (``None`` without a point table).
+
+        Per label: ``truths`` (all of its truths), ``set_aside`` (made ignore truths for
+        holding fewer than ``min_points`` points), ``no_points`` (truths holding none),
+        ``median`` (median count); and ``min_points`` (None when no truth was set aside by
+        count). The count of each truth is ``records.truth_points``.
+        """
+        r = self.records
+        if not r.n_truths or not np.all(r.truth_points >= 0):
+            return None
+        out: dict[str, Any] = {"min_points": self.options.get("min_points"), "labels": {}}
+        for lab in self.labels:
+            idx = self._truths_of[lab]
+            if not len(idx):
+                continue
+            c = r.truth_points[idx]
+            out["labels"][lab] = {
+                "truths": int(len(idx)),
+                "set_aside": int(r.truth_set_aside[idx].sum()),
+                "no_points": int((c == 0).sum()),
+                "median": float(np.median(c)),
+            }
+        return out
+
     def protocol(self) -> dict:
         """The protocol options of this evaluation (JSON-safe)."""
         per_label = None
@@ -862,9 +1038,8 @@ class Evaluation:
             "default_thresholds": list(self._spec.default) if self._spec.default else None,
             "localisation_floor": self._floor,
             **self.options,
-            "matching": "greedy by descending score per frame and label; highest IoU >= "
-            "threshold among unmatched non-ignore truths (ties: earlier truth); else ignored if "
-            "IoU >= threshold with an ignore truth; else false positive",
+            "criterion": self.criterion,
+            "matching": _MATCHING[self.criterion],
         }
 
     def to_json(
@@ -899,10 +1074,26 @@ class Evaluation:
         )
 
 
+_MATCHING = {
+    "iou": "greedy by descending score per frame and label; highest IoU >= threshold among "
+    "unmatched non-ignore truths (ties: earlier truth); else ignored if IoU >= threshold with "
+    "an ignore truth; else false positive",
+    "bev": "greedy by descending score per frame and label; highest IoU of the ground-plane "
+    "footprints (bird's-eye view) >= threshold among unmatched non-ignore truths (ties: "
+    "earlier truth); else ignored if that IoU >= threshold with an ignore truth; else false "
+    "positive",
+    "distance": "greedy by descending score per frame and label; nearest unmatched non-ignore "
+    "truth whose ground-plane centre lies within the threshold distance (metres; ties: "
+    "earlier truth); else ignored if an ignore truth lies within it; else false positive "
+    "(Caesar et al., CVPR 2020)",
+}
+
+
 def reduce_records(
     records: MatchRecords | Sequence[MatchRecords],
     *,
     iou: Any = None,
+    distance: Any = None,
     ap: str = "all-points",
     recall_points: int | None = None,
     size_buckets: Any = None,
@@ -921,6 +1112,8 @@ def reduce_records(
     iou : optional
         Which thresholds (and per-label thresholds) to report, as for :func:`evaluate`;
         ``None``: all thresholds in the records.
+    distance : optional
+        The same for records matched by centre distance (either may be used there).
     ap, recall_points, size_buckets, range_buckets, localisation_floor
         As for :func:`evaluate`.
     options : dict, optional
@@ -937,8 +1130,14 @@ def reduce_records(
         records = MatchRecords.concat(records)
     rec = records.canonical()
     _check_whole_frames(rec)
-    spec = parse_thresholds(list(rec.thresholds) if iou is None else iou)
-    opts = {"max_detections": None, "degrees": False, **(options or {})}
+    argument = "distance" if rec.criterion == "distance" else "iou"
+    if iou is not None and distance is not None:
+        raise InvalidInput("distance", "give either iou= or distance=, not both")
+    chosen = distance if distance is not None else iou
+    if distance is not None and argument != "distance":
+        raise InvalidInput("distance", f"the records were matched by {rec.criterion}, not distance")
+    spec = parse_thresholds(list(rec.thresholds) if chosen is None else chosen, argument=argument)
+    opts = {"max_detections": None, "degrees": False, "min_points": None, **(options or {})}
     sizes = _parse_buckets(size_buckets, "size_buckets")
     ranges = _parse_buckets(range_buckets, "range_buckets")
     if ranges and rec.shape not in ("upright", "axis3"):

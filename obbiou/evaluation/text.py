@@ -12,7 +12,9 @@ from typing import Any
 
 __all__ = [
     "SAFETY_NOTE",
+    "rule_text",
     "summary_text",
+    "tp_errors_text",
     "details_text",
     "interval_text",
     "buckets_text",
@@ -26,6 +28,33 @@ SAFETY_NOTE = (
 )
 
 
+def rule_text(criterion: str, threshold: Any) -> str:
+    """The matching rule at a threshold (or several), as shown in summaries, JSON and plots.
+
+    Examples
+    --------
+    >>> rule_text("iou", 0.5), rule_text("bev", 0.7), rule_text("distance", 1.0)
+    ('IoU ≥ 0.5', 'BEV IoU ≥ 0.7', 'distance ≤ 1 m')
+    >>> rule_text("distance", [0.5, 1, 2, 4])
+    'distance ≤ 0.5, 1, 2, 4 m'
+    """
+    if isinstance(threshold, (int, float)):
+        values = f"{threshold:g}"
+    else:
+        values = ", ".join(f"{t:g}" for t in threshold)
+    if criterion == "distance":
+        return f"distance ≤ {values} m"
+    return f"{'BEV IoU' if criterion == 'bev' else 'IoU'} ≥ {values}"
+
+
+#: Column heading of the threshold in the text tables, per criterion.
+_COLUMN = {"iou": "IoU>=", "bev": "BEV>=", "distance": "dist<="}
+
+
+def _shown(criterion: str, t: float) -> str:
+    return f"{t:g}m" if criterion == "distance" else f"{t:.2f}"
+
+
 def summary_text(evaluation: Any) -> str:
     """One line per label and threshold (AP and counts), the means, the mean AP of each size
     or range bucket (when there are buckets), and the note."""
@@ -33,17 +62,23 @@ def summary_text(evaluation: Any) -> str:
     points = protocol["recall_points"]
     kind = protocol["ap"] if points is None else f"{points}-point"
     records = evaluation.records
+    criterion = getattr(evaluation, "criterion", "iou")
+    matched = {
+        "iou": "matched by IoU",
+        "bev": "matched by BEV IoU (ground-plane footprints)",
+        "distance": "matched by ground-plane centre distance",
+    }[criterion]
     head = (
-        f"obbiou evaluation | {records.shape} boxes | AP {kind} | "
+        f"obbiou evaluation | {records.shape} boxes | {matched} | AP {kind} | "
         f"{len(evaluation.frames)} frames | {records.n_detections} detections | "
         f"{records.n_truths} truths"
     )
     if evaluation.bucket is not None:
         head += f" | {evaluation.bucket[1]} bucket {evaluation.bucket[0]}"
-    cols = ("label", "IoU>=", "AP", "TP", "FP", "ignored", "missed", "capped")
+    cols = ("label", _COLUMN[criterion], "AP", "TP", "FP", "ignored", "missed", "capped")
     width = max([len(c) for c in evaluation.labels] + [5])
     lines = [head, ""]
-    fmt = f"{{:<{width}}}  {{:>5}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>6}}"
+    fmt = f"{{:<{width}}}  {{:>6}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>7}}  {{:>6}}"
     lines.append(fmt.format(*cols))
     lines.append("-" * len(lines[-1]))
     for lab in evaluation.labels:
@@ -51,21 +86,71 @@ def summary_text(evaluation: Any) -> str:
             v, c = evaluation.ap(lab, t), evaluation.counts(lab, t)
             shown = "   n/a" if v is None else f"{v:.4f}"
             lines.append(
-                fmt.format(lab, f"{t:.2f}", shown, c.tp, c.fp, c.ignored, c.missed, c.capped)
+                fmt.format(
+                    lab, _shown(criterion, t), shown, c.tp, c.fp, c.ignored, c.missed, c.capped
+                )
             )
     lines.append("")
     for t in evaluation.thresholds:
         m = evaluation.mean_ap(t)
-        lines.append(f"mean AP at IoU>={t:.2f}: " + ("n/a" if m is None else f"{m:.4f}"))
+        rule = rule_text(criterion, t)
+        lines.append(f"mean AP at {rule}: " + ("n/a" if m is None else f"{m:.4f}"))
     if len(evaluation.thresholds) > 1:
         m = evaluation.mean_ap()
         lines.append("mean AP over all thresholds: " + ("n/a" if m is None else f"{m:.4f}"))
     undefined = [lab for lab in evaluation.labels if evaluation.ap(lab) is None]
     if undefined:
         lines.append(f"no truths (left out of mean AP): {', '.join(undefined)}")
+    points = evaluation.point_counts() if hasattr(evaluation, "point_counts") else None
+    if points is not None and points["min_points"] is not None:
+        aside = sum(v["set_aside"] for v in points["labels"].values())
+        total = sum(v["truths"] for v in points["labels"].values())
+        lines.append(
+            f"truths with fewer than {points['min_points']} lidar points set aside (ignore): "
+            f"{aside} of {total}"
+        )
+    if hasattr(evaluation, "tp_error") and evaluation.labels:
+        lines.append("")
+        lines.append(tp_errors_text(evaluation))
     if evaluation.buckets:
         lines += ["", buckets_text(evaluation), ""]
     lines.append(SAFETY_NOTE)
+    return "\n".join(lines)
+
+
+def tp_errors_text(evaluation: Any) -> str:
+    """Errors of true positives, one line per label at its most lenient threshold.
+
+    Centre distance (mean, in the boxes' unit), size error (mean of 1 - IoU after aligning
+    centre and heading), orientation error (mean, degrees) and, for upright boxes, the
+    heading-weighted AP (APH). ``n/a`` where undefined.
+    """
+    criterion = getattr(evaluation, "criterion", "iou")
+    upright = evaluation.records.shape == "upright"
+    width = max([len(c) for c in evaluation.labels] + [5])
+    fmt = f"  {{:<{width}}}  {{:>6}}  {{:>6}}  {{:>11}}  {{:>10}}  {{:>11}}  {{:>7}}"
+    cols = ("label", _COLUMN[criterion], "TP", "centre dist", "size err", "orient deg", "APH")
+    lines = ["Errors of true positives (means over the TPs):", fmt.format(*cols)]
+
+    def show(v: float | None, f: str) -> str:
+        return "n/a" if v is None or math.isnan(v) else format(v, f)
+
+    for lab in evaluation.labels:
+        own = evaluation.thresholds_of(lab)
+        t = max(own) if criterion == "distance" else min(own)
+        e = evaluation.tp_error(lab, t)
+        orient = None if e.orientation_error is None else math.degrees(e.orientation_error)
+        lines.append(
+            fmt.format(
+                lab,
+                _shown(criterion, t),
+                e.tp,
+                show(e.centre_distance, ".3f"),
+                show(e.size_error, ".3f"),
+                show(orient, ".2f"),
+                show(e.heading_ap, ".4f") if upright else "n/a",
+            )
+        )
     return "\n".join(lines)
 
 
@@ -76,11 +161,12 @@ def details_text(evaluation: Any, iou: float | None = None) -> str:
     may have thresholds of their own).
     """
     per_label = evaluation.to_dict(breakdowns=False)["labels"]
+    criterion = getattr(evaluation, "criterion", "iou")
     at: dict[str, float] = {}
     for lab, entry in per_label.items():
         own = sorted(float(k) for k in entry["ap"])
-        if iou is None:
-            at[lab] = own[0]
+        if iou is None:  # the label's most lenient threshold
+            at[lab] = own[-1] if criterion == "distance" else own[0]
         elif any(abs(float(iou) - v) < 1e-9 for v in own):
             at[lab] = float(iou)
     fps: dict[str, Any] = {}
@@ -93,18 +179,17 @@ def details_text(evaluation: Any, iou: float | None = None) -> str:
             if at.get(lab) == t:
                 misses[lab] = c
     width = max([len(str(lab)) for lab in at] + [5])
-    row = f"  {{:<{width}}}  {{:>5}}  {{:>9}}  {{:>11}}  {{:>11}}  {{:>10}}  {{:>6}}"
+    row = f"  {{:<{width}}}  {{:>6}}  {{:>9}}  {{:>11}}  {{:>11}}  {{:>10}}  {{:>6}}"
+    col = _COLUMN[criterion]
     lines = ["False positives by cause:"]
     lines.append(
-        row.format(
-            "label", "IoU>=", "duplicate", "wrong label", "poor boxes", "background", "total"
-        )
+        row.format("label", col, "duplicate", "wrong label", "poor boxes", "background", "total")
     )
     for lab, c in fps.items():
         lines.append(
             row.format(
                 lab,
-                f"{at[lab]:.2f}",
+                _shown(criterion, at[lab]),
                 c.duplicate,
                 c.wrong_label,
                 c.poor_localisation,
@@ -114,13 +199,13 @@ def details_text(evaluation: Any, iou: float | None = None) -> str:
         )
     lines.append("Missed truths by cause:")
     lines.append(
-        row.format("label", "IoU>=", "crowded", "wrong label", "poor boxes", "not found", "total")
+        row.format("label", col, "crowded", "wrong label", "poor boxes", "not found", "total")
     )
     for lab, c in misses.items():
         lines.append(
             row.format(
                 lab,
-                f"{at[lab]:.2f}",
+                _shown(criterion, at[lab]),
                 c.crowded,
                 c.wrong_label,
                 c.poor_localisation,
@@ -137,7 +222,7 @@ def details_text(evaluation: Any, iou: float | None = None) -> str:
         )
         lines.append(f"Orientation error of matched pairs ({period}, degrees):")
         last = "flipped" if upright else "near-sq."
-        lines.append(row.format("label", "IoU>=", "pairs", "mean", "median", "90th pct", last))
+        lines.append(row.format("label", col, "pairs", "mean", "median", "90th pct", last))
 
         def deg(v: float | None) -> str:
             return "n/a" if v is None or math.isnan(v) else f"{math.degrees(v):.2f}"
@@ -151,7 +236,7 @@ def details_text(evaluation: Any, iou: float | None = None) -> str:
             lines.append(
                 row.format(
                     "all" if lab is None else lab,
-                    f"{t:.2f}",
+                    _shown(criterion, t),
                     e.pairs,
                     deg(e.mean),
                     deg(e.median),
@@ -201,10 +286,13 @@ def buckets_text(evaluation: Any) -> str:
 def comparison_text(comparison: Any) -> str:
     """A short text report of a paired comparison (:class:`obbiou.evaluation.Comparison`)."""
     lo, hi = comparison.interval
+    a = comparison.a
+    criterion = getattr(a, "criterion", "iou")
+    rule = rule_text(criterion, a.thresholds)
     return "\n".join(
         [
             f"obbiou comparison | {len(comparison.frames)} frames | "
-            f"{comparison.resamples} paired resamples",
+            f"{comparison.resamples} paired resamples | matched at {rule}",
             f"mean AP  A: {comparison.mean_ap_a:.4f}   B: {comparison.mean_ap_b:.4f}",
             f"B - A: {comparison.difference:+.4f}   {comparison.level:.0%} interval "
             f"[{lo:+.4f}, {hi:+.4f}]   p = {comparison.p_value:.4f}",

@@ -106,3 +106,28 @@ def test_demo_is_deterministic(demo, tmp_path):
         assert (other / rel).read_bytes() == (out / rel).read_bytes(), rel
     text = (out / "report.txt").read_text().replace(str(out), "OUT")
     assert (other / "report.txt").read_text().replace(str(other), "OUT") == text
+
+
+def test_demo_lidar_evaluation(demo):
+    # the warehouse is also evaluated by centre distance with invented lidar returns
+    from obbiou.evaluation import evaluate
+
+    out, proc = demo
+    assert "by centre distance" in proc.stdout
+    report = (out / "report.txt").read_text()
+    assert "matched by ground-plane centre distance" in report
+    assert "Errors of true positives" in report
+    doc = json.loads((out / "report.json").read_text())
+    lidar = doc["scenarios"]["warehouse"]["lidar_evaluation"]
+    assert lidar["criterion"] == "distance" and lidar["points"]["min_points"] == 5
+    # the JSON is the library's result on the files the demo wrote
+    folder = out / "warehouse"
+    want = evaluate(
+        folder / "truth.csv",
+        folder / "improved.csv",
+        distance=[0.5, 1, 2, 4],
+        points=folder / "returns.csv",
+        min_points=5,
+    ).to_dict()
+    assert lidar["mean_ap"] == pytest.approx(want["mean_ap"], abs=1e-12)
+    assert lidar["points"] == want["points"]

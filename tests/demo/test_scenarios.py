@@ -202,3 +202,24 @@ def test_improved_detector_is_better_and_scores_track_quality(harbour):
         rho = np.corrcoef(np.argsort(np.argsort(iou)), np.argsort(np.argsort(d.score)))[0, 1]
         assert rho > 0.3, (version, rho)  # Spearman rank correlation of score and quality
     assert ious["improved"].mean() > ious["baseline"].mean() + 0.03
+
+
+def test_warehouse_returns_fall_on_the_objects():
+    # invented returns: seeded; near objects hold many, far ones few (density ~ 1/range^2);
+    # counted with obbiou.points against the truth boxes themselves
+    from obbiou.demo.scenarios import warehouse_lidar, warehouse_returns
+    from obbiou.points import count_in_boxes
+
+    s = warehouse_lidar(frames=3, seed=2)
+    pts = warehouse_returns(s, seed=2)
+    assert pts.equals(warehouse_returns(s, seed=2))
+    t = s.truth
+    near, far = [], []
+    for frame in s.frames:
+        rows = t[t.frame == frame]
+        p = pts[pts.frame == frame][["x", "y", "z"]].to_numpy()
+        c = count_in_boxes(p, rows[list(s.box_columns)].to_numpy(), shape="upright")
+        r = np.hypot(rows.cx, rows.cy).to_numpy()
+        near += c[r < 8].tolist()
+        far += c[r > 20].tolist()
+    assert np.median(near) >= 20 and np.median(far) <= 10

@@ -227,3 +227,19 @@ def test_folders_of_any_table_files_in_natural_order(client, tmp_path, suffix):
     assert want.ap("vessel") == 1.0  # hand-worked: f2 before f10 (tests/test_tables.py)
     got = evaluate_distributed(truth, dets, client=client, buckets=3)
     assert_same(got, want)
+
+
+def test_distance_matching_gives_the_same_numbers(client, tables):
+    # centre-distance matching: the same records, result and intervals on the cluster
+    truth, dets = tables
+    want = evaluation.evaluate(truth, dets, distance=[0.5, 1, 2, 4])
+    assert want.counts("vessel", 1.0)[0] > 50  # enough matches for the check to bite
+    got = evaluate_distributed(
+        dd.from_pandas(truth, npartitions=3),
+        dd.from_pandas(dets, npartitions=4),
+        client=client,
+        buckets=3,
+        distance=[0.5, 1, 2, 4],
+    )
+    assert got.criterion == "distance"
+    assert_same(got, want)

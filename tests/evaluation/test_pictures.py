@@ -49,7 +49,7 @@ def test_each_label_is_drawn_at_its_own_threshold():
     # a chosen threshold draws the labels evaluated there and names the others
     ax = draw_curves(ev, Figure(), iou=0.9)
     assert _legend(ax) == ["van  AP 1.000"]
-    assert "not evaluated at IoU 0.9: car" in ax.get_title(loc="left")
+    assert "not evaluated at IoU ≥ 0.9: car" in ax.get_title(loc="left")
     with pytest.raises(ValueError, match="0.6"):
         draw_curves(ev, Figure(), iou=0.6)
 
