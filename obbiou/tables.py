@@ -15,12 +15,15 @@ polygon     ``px0 py0 px1 py1 … px{K-1} py{K-1}`` (K >= 3 vertices; 4 for quad
 
 Angles are radians (counter-clockwise from +x towards +y) unless ``degrees=True``. Extra
 columns are kept in :attr:`Table.extra` and passed through. Nothing is dropped: a missing
-column, an empty cell, a non-numeric value, a NaN, a negative size or an invalid polygon is an
-:class:`~obbiou.errors.InvalidTable` (a ``ValueError``) that names the file, the line (CSV,
-JSON Lines) or row (Parquet, DataFrame, mapping) and the column, as fields and in its text.
+column, an empty cell, a non-numeric value, a NaN, a negative size, an invalid polygon, a
+column named twice, a cell holding a list, a number beyond float64 or a file that is not UTF-8
+is an :class:`~obbiou.errors.InvalidTable` (a ``ValueError``) that names the file, the line
+(CSV, JSON Lines: as an editor counts them) or row (Parquet, DataFrame, mapping) and the
+column, as fields and in its text. A folder stands for its table files, read as one table.
 
 This module is also the one place for the facts every table user shares:
-:data:`TABLE_SUFFIXES` (the file formats, read and written), :func:`frame_ids` (the frame-id
+:data:`TABLE_SUFFIXES` (the file formats, read and written), :func:`table_files` (a folder's
+files in natural order of their names), :func:`frame_ids` (the frame-id
 rule: integers and integer-valued text name one frame, other text is a name, inexact floats
 are errors), :func:`comparable_frame_ids` (ids of several tables made comparable by it) and
 :func:`frame_groups` (the rows of each frame).
