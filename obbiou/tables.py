@@ -15,12 +15,15 @@ polygon     ``px0 py0 px1 py1 … px{K-1} py{K-1}`` (K >= 3 vertices; 4 for quad
 
 Angles are radians (counter-clockwise from +x towards +y) unless ``degrees=True``. Extra
 columns are kept in :attr:`Table.extra` and passed through. Nothing is dropped: a missing
-column, an empty cell, a non-numeric value, a NaN, a negative size or an invalid polygon is an
-:class:`~obbiou.errors.InvalidTable` (a ``ValueError``) that names the file, the line (CSV,
-JSON Lines) or row (Parquet, DataFrame, mapping) and the column, as fields and in its text.
+column, an empty cell, a non-numeric value, a NaN, a negative size, an invalid polygon, a
+column named twice, a cell holding a list, a number beyond float64 or a file that is not UTF-8
+is an :class:`~obbiou.errors.InvalidTable` (a ``ValueError``) that names the file, the line
+(CSV, JSON Lines: as an editor counts them) or row (Parquet, DataFrame, mapping) and the
+column, as fields and in its text. A folder stands for its table files, read as one table.
 
 This module is also the one place for the facts every table user shares:
-:data:`TABLE_SUFFIXES` (the file formats, read and written), :func:`frame_ids` (the frame-id
+:data:`TABLE_SUFFIXES` (the file formats, read and written), :func:`table_files` (a folder's
+files in natural order of their names), :func:`frame_ids` (the frame-id
 rule: integers and integer-valued text name one frame, other text is a name, inexact floats
 are errors), :func:`comparable_frame_ids` (ids of several tables made comparable by it) and
 :func:`frame_groups` (the rows of each frame).
@@ -305,7 +308,47 @@ def _other_reason(v: Any) -> str:
 _INTEGER_TEXT = re.compile(r"\s*[+-]?[0-9]+\s*")
 
 
+def _frame_ids_of_text(values: np.ndarray) -> tuple[np.ndarray, np.ndarray | None] | None:
+    """The frame-id rule on text ids, vectorised, for the common cases: every id spells an
+    integer within int64 (CSV cells), or none does (names). None for anything else."""
+    import pandas as pd
+
+    if values.dtype.kind != "U" and pd.api.types.infer_dtype(values, skipna=False) != "string":
+        return None
+    text = values.astype(str)
+    if text.size and int(text.view(np.uint32).max()) >= 128:
+        return None  # non-ASCII characters: the exact rule below decides
+    stripped = np.strings.strip(text)
+    signed = np.strings.startswith(stripped, "+") | np.strings.startswith(stripped, "-")
+    digits = np.strings.isdigit(np.where(signed, np.strings.slice(stripped, 1, None), stripped))
+    if not digits.any():
+        return values.astype(object), None
+    if not digits.all() or int(np.strings.str_len(stripped).max()) > 18:
+        return None  # names among integers, or integers that may not fit int64
+    # At most 18 ASCII digits each: their value, column by column of the UCS-4 codes
+    # (a string shorter than the widest ends in code 0), fits int64 exactly.
+    body = np.where(signed, np.strings.slice(stripped, 1, None), stripped)
+    codes = body.astype(f"U{max(int(np.strings.str_len(body).max()), 1)}")
+    codes = codes.view(np.uint32).reshape(len(body), -1).astype(np.int64)
+    ids = np.zeros(len(body), dtype=np.int64)
+    for k in range(codes.shape[1]):
+        digit = codes[:, k] - 48
+        ids = np.where(codes[:, k] > 0, ids * 10 + digit, ids)
+    ids = np.where(np.strings.startswith(stripped, "-"), -ids, ids)
+    # written as the integer's own digits: no spaces, no "+", no leading zero
+    canonical = (
+        (stripped == text)
+        & ~np.strings.startswith(stripped, "+")
+        & ~(np.strings.startswith(body, "0") & (np.strings.str_len(body) > 1))
+        & (stripped != "-0")
+    )
+    return ids, None if canonical.all() else values.astype(object)
+
+
 def _frame_ids_of_objects(values: np.ndarray, name: str) -> tuple[np.ndarray, np.ndarray | None]:
+    fast = _frame_ids_of_text(values)
+    if fast is not None:
+        return fast
     n = len(values)
     keys: list[Any] = [None] * n
     written: list[Any] | None = None
@@ -707,11 +750,15 @@ def _numeric(values: np.ndarray, column: str, where: _Where) -> np.ndarray:
 
 
 _CONTAINERS = (list, tuple, dict, set, np.ndarray)
+#: What pandas infers for object columns that certainly hold one plain value per cell.
+_SCALARS = {"string", "integer", "floating", "mixed-integer-float", "boolean", "empty", "decimal"}
 
 
 def _one_value_per_cell(values: np.ndarray, column: str, where: _Where) -> None:
     """Raise for the first cell that holds several values (a JSON list, an array)."""
-    if values.dtype != object:
+    import pandas as pd
+
+    if values.dtype != object or pd.api.types.infer_dtype(values, skipna=True) in _SCALARS:
         return
     for i, v in enumerate(values.tolist()):
         if isinstance(v, _CONTAINERS):

@@ -515,3 +515,16 @@ def test_timestamps_are_names_in_one_unit():
     assert comparable_frame_ids([a, np.array([7])])[0].tolist() == a.tolist()
     with pytest.raises(InvalidInput, match="NaT"):
         frame_ids(np.array(["NaT"], dtype="datetime64[ns]"))
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.tuples(st.integers(-(10**18), 10**18), st.integers(0, 2)), min_size=1))
+def test_columns_of_integer_text_read_exactly(items):
+    from obbiou.tables import frame_ids
+
+    # a CSV column of integer text of mixed lengths (read column-wise, vectorised);
+    # reference: Python's int of each text
+    texts = [("-" if k < 0 else "") + "0" * z + str(abs(k)) for k, z in items]
+    ids, written = frame_ids(np.array(texts, dtype=object))
+    assert ids.tolist() == [int(t) for t in texts]
+    assert (written is None) == all(t == str(int(t)) for t in texts)
