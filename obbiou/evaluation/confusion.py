@@ -63,8 +63,12 @@ def confusion_table(
     threshold: float,
     *,
     max_detections: int | None = None,
+    criterion: str = "iou",
 ) -> Any:
     """Truth label x detected label counts at ``threshold`` (see the module docstring).
+
+    ``criterion`` decides a match as in :func:`~obbiou.evaluation.match_frames` (IoU, BEV
+    IoU or centre distance).
 
     Parameters
     ----------
@@ -113,6 +117,7 @@ def confusion_table(
         replace(detections, label=np.full(len(detections), "*", dtype=object)),
         thresholds=[threshold],
         max_detections=max_detections,
+        criterion=criterion,
     )
     index = {lab: i for i, lab in enumerate(labels)}
     nl = len(labels)

@@ -28,7 +28,12 @@ Columns of the truth table (index ``row``: the row of the truth in the input tab
 (input row of the detection that took it; ``<NA>`` when none), ``iou`` (with that detection),
 ``best_iou`` (highest IoU with any evaluated detection of the frame, any label), ``cause``
 (for a missed truth its class: ``crowded``, ``wrong_label``, ``poor_localisation``,
-``not_detected``; ``<NA>`` otherwise), then the extra columns.
+``not_detected``; ``<NA>`` otherwise), with lidar points ``points`` (points inside the
+truth) and ``set_aside`` (made an ignore truth by ``min_points``), then the extra columns.
+
+Matched by centre distance (``distance=`` of :func:`~obbiou.evaluation.evaluate`), ``iou``
+is ``distance`` (metres, to the matched row) and ``best_iou`` is ``nearest`` (the nearest
+row of the frame; ``<NA>`` when none lies within the largest distance threshold).
 
 An extra column whose name is one of these gets the suffix ``_input`` (with a warning).
 """
@@ -100,6 +105,33 @@ def _with_extras(table: Any, extra: dict[str, np.ndarray] | None, rows: np.ndarr
     return table
 
 
+def _value_names(records: Any) -> tuple[str, str]:
+    """Column names of the per-pair value: IoU, or centre distance when matched by it."""
+    return ("distance", "nearest") if records.criterion == "distance" else ("iou", "best_iou")
+
+
+def _closeness(records, same, other, threshold, floor) -> tuple:
+    """Best values, thresholds and floor as "higher is closer" for the breakdowns' tests:
+    distances negated, the poor-localisation band within the largest distance threshold
+    (as :meth:`Evaluation.false_positives` does)."""
+    if records.criterion != "distance":
+        return same, other, threshold, floor
+    widest = float(np.max(records.thresholds)) if len(records.thresholds) else 0.0
+    return -same, -other, -np.asarray(threshold), -widest
+
+
+def _best(records: Any, live: np.ndarray, truths: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    """Highest IoU (or nearest distance) to any pair of the frame, and where it is defined."""
+    r = records
+    same = r.truth_best_same if truths else r.det_best_same
+    other = r.truth_best_other if truths else r.det_best_other
+    if r.criterion != "distance":
+        return np.maximum(same, other), live
+    with np.errstate(invalid="ignore"):
+        best = np.fmin(same, other)  # NaN: no pair; inf: nothing within range
+    return np.where(np.isfinite(best), best, 0.0), live & np.isfinite(best)
+
+
 def detection_table(
     records: Any,
     outcome: np.ndarray,
@@ -152,12 +184,12 @@ def detection_table(
     tsafe = np.maximum(ti, 0)
     truth_row = r.truth_row[tsafe] if r.n_truths else np.zeros(n, dtype=np.int64)
     iou = r.det_iou[rows, column] if n else np.zeros(0)
-    cls = _bd.classify_false_positives(
-        out == FP, r.det_best_same, r.det_best_other, threshold, floor
-    )
+    same, other, t, floor = _closeness(r, r.det_best_same, r.det_best_other, threshold, floor)
+    cls = _bd.classify_false_positives(out == FP, same, other, t, floor)
     names = np.array(_bd.FP_CLASSES + (None,), dtype=object)
     live = out != CAPPED
-    best = np.maximum(r.det_best_same, r.det_best_other)
+    best, has_best = _best(r, live)
+    value, nearest = _value_names(r)
     order = _input_order(r.det_row, "detection")
     table = pd.DataFrame(
         {
@@ -167,8 +199,8 @@ def detection_table(
             "threshold": np.asarray(threshold, dtype=np.float64),
             "outcome": _OUTCOME_NAMES[out.astype(np.int64)],
             "truth": _nullable(truth_row, has_truth, "Int64"),
-            "iou": _nullable(iou, has_truth, "Float64"),
-            "best_iou": _nullable(best, live, "Float64"),
+            value: _nullable(iou, has_truth, "Float64"),
+            nearest: _nullable(best, has_best, "Float64"),
             "cause": pd.array(names[cls], dtype="string"),
         },
         index=pd.Index(r.det_row, name="row"),
@@ -222,7 +254,10 @@ def truth_table(
     matched = r.truth_matched[np.arange(m), column] if m else np.zeros(0, dtype=bool)
     state = np.where(~positive, 2, np.where(matched, 0, 1))
     is_miss = state == 1
-    cls = _bd.classify_misses(is_miss, r.truth_best_same, r.truth_best_other, threshold, floor)
+    same, other, t, floor = _closeness(r, r.truth_best_same, r.truth_best_other, threshold, floor)
+    cls = _bd.classify_misses(is_miss, same, other, t, floor)
+    best, has_best = _best(r, np.ones(m, dtype=bool), truths=True)
+    value, nearest = _value_names(r)
     names = np.array(_bd.MISS_CLASSES + (None,), dtype=object)
     outcomes = np.array(TRUTH_OUTCOMES, dtype=object)
     has_det = taken_by >= 0
@@ -235,12 +270,16 @@ def truth_table(
             "threshold": np.asarray(threshold, dtype=np.float64),
             "outcome": outcomes[state],
             "detection": _nullable(taken_by, has_det, "Int64"),
-            "iou": _nullable(taken_iou, has_det, "Float64"),
-            "best_iou": np.maximum(r.truth_best_same, r.truth_best_other),
+            value: _nullable(taken_iou, has_det, "Float64"),
+            nearest: _nullable(best, has_best, "Float64"),
             "cause": pd.array(names[cls], dtype="string"),
         },
         index=pd.Index(r.truth_row, name="row"),
-    ).iloc[order]
+    )
+    if m and (r.truth_points >= 0).any():  # lidar points were counted
+        table["points"] = r.truth_points
+        table["set_aside"] = r.truth_set_aside.astype(bool)
+    table = table.iloc[order]
     return _with_extras(table, extra, r.truth_row[order])
 
 

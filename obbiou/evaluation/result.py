@@ -15,6 +15,7 @@ from __future__ import annotations
 import json
 import math
 from collections.abc import Mapping, Sequence
+from dataclasses import replace
 from typing import Any, NamedTuple
 
 import numpy as np
@@ -590,8 +591,9 @@ class Evaluation:
     # -- per-row results, operating points, confusion ----------------------------------------
     def _label_thresholds(self, iou: float | None) -> np.ndarray:
         """Per label code: the threshold of :meth:`detections` and friends at ``iou``."""
-        if iou is None:
-            return np.array([min(self._spec.of(lab)) for lab in self.labels], dtype=np.float64)
+        if iou is None:  # each label's most lenient: its lowest IoU or largest distance
+            lenient = max if self.criterion == "distance" else min
+            return np.array([lenient(self._spec.of(lab)) for lab in self.labels], dtype=float)
         return np.full(len(self.labels), self._threshold(iou))
 
     def _label_columns(self, iou: float | None) -> tuple[np.ndarray, np.ndarray]:
@@ -601,8 +603,9 @@ class Evaluation:
     def detections(self, iou: float | None = None) -> Any:
         """One row per detection, in input order: outcome, matched truth, IoU, cause.
 
-        ``iou=None`` judges each label at the lowest of its own thresholds (with one set of
-        thresholds for all labels: the lowest, as :meth:`false_positives` does; with
+        ``iou=None`` judges each label at the most lenient of its own thresholds (the lowest
+        IoU, or the largest distance; with one set of thresholds for all labels: that one, as
+        :meth:`false_positives` does; with
         per-label thresholds, e.g. cars at 0.7 and people at 0.5, each label at its own);
         a number judges every label at that threshold (one of :attr:`thresholds`: all labels
         are matched at all of them). The ``threshold`` column says which was used. Counts of
@@ -615,7 +618,10 @@ class Evaluation:
         (with any non-ignore truth of the frame, any label), ``cause`` (class of a false
         positive, as in :meth:`false_positives`; ``<NA>`` otherwise), then the input's extra
         columns when :attr:`inputs` holds the input tables (not when the evaluation was
-        built from match records alone). The index ``row`` is the input row.
+        built from match records alone). The index ``row`` is the input row. Matched by
+        centre distance, ``iou`` and ``best_iou`` are ``distance`` (to the matched truth) and
+        ``nearest`` (to any non-ignore truth of the frame; ``<NA>`` when none lies within
+        the largest distance threshold).
 
         Examples
         --------
@@ -660,6 +666,9 @@ class Evaluation:
         frame, any label), ``cause`` (class of a miss, as in :meth:`misses`; ``<NA>``
         otherwise), then the extra columns as for :meth:`detections`. Per label,
         ``matched`` + ``missed`` = ``counts().truths``, ``missed`` = ``counts().missed``.
+        Matched by centre distance: ``distance`` and ``nearest`` as for :meth:`detections`.
+        With lidar points (``points=`` of :func:`~obbiou.evaluation.evaluate`): ``points``
+        (points inside the truth) and ``set_aside`` (made an ignore truth by ``min_points``).
 
         Examples
         --------
@@ -766,7 +775,8 @@ class Evaluation:
         return self._operating(iou, best_cut)
 
     def confusion(self, iou: float | None = None) -> Any:
-        """Truth label x detected label, matched at ``iou`` by IoU alone, labels ignored.
+        """Truth label x detected label, matched at ``iou`` by IoU alone, labels ignored
+        (by the evaluation's criterion: IoU, BEV IoU or centre distance).
 
         The same greedy rule as the protocol with every label made one (see
         :mod:`obbiou.evaluation.confusion`): rows are truth labels plus ``(background)``
@@ -774,9 +784,10 @@ class Evaluation:
         plus ``(missed)`` (non-ignore truths no detection took). Ignore truths have no row;
         detections absorbed by one (IoU >= ``iou`` with an ignore truth, no truth taken) and
         capped detections are left out and counted in ``attrs["ignored"]`` /
-        ``attrs["capped"]``. ``iou=None``: the lowest threshold evaluated (one threshold for
-        all labels even with per-label thresholds, since labels are ignored); any number in
-        (0, 1] may be given, as the detections are matched again.
+        ``attrs["capped"]``. ``iou=None``: the most lenient threshold evaluated (one
+        threshold for all labels even with per-label thresholds, since labels are ignored);
+        any threshold may be given, as the detections are matched again. Truths set aside
+        for too few lidar points are ignore truths here too.
 
         Needs the boxes: available when the evaluation holds its input tables
         (:attr:`inputs`), not when it was built from match records alone, nor for a size or
@@ -813,15 +824,23 @@ class Evaluation:
             )
             raise InvalidInput("confusion", reason)
         if iou is None:
-            t = min(self.thresholds)
+            t = self._default_iou(None)
         else:
-            values = parse_thresholds(iou).values
+            argument = "distance" if self.criterion == "distance" else "iou"
+            values = parse_thresholds(iou, argument=argument).values
             if len(values) != 1:
-                raise InvalidInput("iou", f"expected one threshold, got {iou!r}")
+                raise InvalidInput(argument, f"expected one threshold, got {iou!r}")
             t = values[0]
         truth, dets = self.inputs
+        r = self.records
+        if r.truth_set_aside.any():  # truths with too few lidar points are ignore truths
+            aside = np.zeros(len(truth), dtype=bool)
+            aside[r.truth_row] = r.truth_set_aside
+            truth = replace(truth, ignore=truth.ignore | aside)
         cap = self.options.get("max_detections")
-        return confusion_table(truth, dets, self.labels, t, max_detections=cap)
+        return confusion_table(
+            truth, dets, self.labels, t, max_detections=cap, criterion=self.criterion
+        )
 
     # -- errors of true positives -----------------------------------------------------------
     def tp_error(self, label: Any, iou: float | None = None) -> _tpe.TpErrors:

@@ -278,3 +278,38 @@ def test_bev_equals_evaluating_the_footprint_tables():
     assert np.array_equal(a.det_outcome, b.det_outcome)
     assert np.array_equal(a.det_iou, b.det_iou)
     assert np.array_equal(a.det_best_same, b.det_best_same)
+
+
+def test_per_row_tables_and_confusion_by_distance():
+    # the hand-worked scene of test_hand_worked_nearest_and_tie: judged at the most lenient
+    # distance (4 m) by default, the per-row tables give distances, not IoUs: D0 took T0 at
+    # 1.5 m, D1 took T1 at 1.6 m; D2 is a background FP at 4 m, with no truth within the
+    # largest threshold (nearest <NA>: pairs are only looked for within it); T2 is missed
+    car = [0.0, 0.0, 1.0, 4.0, 2.0, 1.5, 0.0]
+    truth = upright_table([[0, *car[1:]], [3, *car[1:]], [10, *car[1:]]], [0] * 3, ["car"] * 3)
+    dets = upright_table(
+        [[1.5, *car[1:]], [1.4, *car[1:]], [20, *car[1:]]],
+        [0] * 3,
+        ["car"] * 3,
+        scores=[0.9, 0.8, 0.7],
+    )
+    ev = evaluate(truth, dets, distance=[0.5, 1, 2, 4])
+    d = ev.detections()
+    assert "iou" not in d.columns and d["threshold"].tolist() == [4.0] * 3
+    assert d["outcome"].tolist() == ["tp", "tp", "fp"]
+    assert d["distance"].tolist()[:2] == pytest.approx([1.5, 1.6])
+    assert d["nearest"].tolist()[:2] == pytest.approx([1.5, 1.4])
+    assert d["nearest"].isna().tolist() == [False, False, True]
+    assert d["cause"].tolist()[2] == "background"
+    t = ev.truths()
+    assert t["outcome"].tolist() == ["matched", "matched", "missed"]
+    assert t["nearest"].isna().tolist() == [False, False, True]
+    # at 1 m nothing matches: D0 and D1 are poor localisations (within 4 m, not 1 m)
+    assert ev.detections(1.0)["cause"].tolist() == [
+        "poor_localisation", "poor_localisation", "background"
+    ]  # fmt: skip
+    # confusion by distance: labels ignored, the same greedy rule at 4 m
+    table = ev.confusion()
+    assert table.loc["car", "car"] == 2 and table.loc["car", "(missed)"] == 1
+    assert table.loc["(background)", "car"] == 1
+    assert ev.confusion(1.0).loc["car", "(missed)"] == 3

@@ -118,3 +118,25 @@ def test_bad_point_input():
         warnings.simplefilter("always")
         evaluate(truth, dets, points={"frame": [9], "x": [0.0], "y": [0.0]}, min_points=1)
     assert any(issubclass(w.category, LikelyMistake) for w in caught)
+
+
+def test_per_truth_table_and_confusion_know_the_set_aside_truths():
+    # the same hand-worked case: truths() shows each truth's points and whether it was set
+    # aside (P1: 2 points < 5 -> ignore); confusion() treats P1 as an ignore truth too, so
+    # the detection on it is absorbed (attrs["ignored"]), not counted on background
+    p = [0.0, 0.0, 0.9, 0.5, 0.5, 1.8, 0.0]
+    q = [5.0, 0.0, 0.9, 0.5, 0.5, 1.8, 0.0]
+    truth = upright([p, q], [0, 0], ["person"] * 2)
+    dets = upright([p, q], [0, 0], ["person"] * 2, score=[0.9, 0.8])
+    pts = {"frame": [0] * 8, "x": [0.0] * 6 + [5.0] * 2, "y": [0.0] * 8,
+           "z": [0.1, 0.4, 0.7, 1.0, 1.3, 1.6, 0.5, 1.0]}  # fmt: skip
+    ev = evaluate(truth, dets, points=pts, min_points=5)
+    rows = ev.truths()
+    assert rows["points"].tolist() == [6, 2]
+    assert rows["set_aside"].tolist() == [False, True]
+    assert rows["outcome"].tolist() == ["matched", "ignore"]
+    table = ev.confusion()
+    assert table.loc["person", "person"] == 1 and table.loc["(background)", "person"] == 0
+    assert table.attrs["ignored"] == 1
+    # without points no such columns
+    assert "points" not in evaluate(truth, dets).truths().columns
