@@ -599,7 +599,8 @@ def _csv_lines(path: str) -> list[int]:
     """The physical line (1-based) on which each data record of a CSV file starts.
 
     A quoted cell may span several lines, so record i is not always line i + 2; the
-    standard library's reader counts the lines it consumed (``line_num``).
+    standard library's reader counts the lines it consumed (``line_num``). Blank lines (empty
+    or spaces only) carry no record, as in the reading itself.
     """
     import csv
 
@@ -608,8 +609,9 @@ def _csv_lines(path: str) -> list[int]:
         reader = csv.reader(fh)
         next(reader, None)  # the header
         end = reader.line_num
-        for _ in reader:
-            starts.append(end + 1)
+        for record in reader:
+            if record and not (len(record) == 1 and not record[0].strip()):
+                starts.append(end + 1)
             end = reader.line_num
     return starts
 
@@ -640,7 +642,8 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
             try:
                 header = pd.read_csv(path, header=None, nrows=1, dtype=object)
                 _duplicated([str(c) for c in header.iloc[0].tolist()], path, line=1)
-                df = pd.read_csv(path, skip_blank_lines=False, dtype={"frame": object})
+                # blank lines (a trailing one, a gap) carry no row, as in JSON Lines
+                df = pd.read_csv(path, skip_blank_lines=True, dtype={"frame": object})
             except UnicodeDecodeError:
                 line, reason = _first_line_not_utf8(path) or (None, "not UTF-8 text")
                 raise InvalidTable(path, reason, line=line) from None
@@ -650,8 +653,8 @@ def _load(source: Any) -> tuple[dict[str, np.ndarray], _Where, int]:
                 raise
             except Exception as exc:  # pandas parser errors name the line themselves
                 raise InvalidTable(path, f"cannot read as CSV ({exc})") from None
-            # Line 1 is the header; with blank lines kept, row i is line i + 2 unless a
-            # quoted cell spans lines: then the lines are counted, only for an error.
+            # Line 1 is the header; row i is line i + 2 unless a blank line or a quoted cell
+            # spanning lines came before it: the lines are counted, only for an error.
             where = _Where(path, "line", first_line=2, lines=lambda: _csv_lines(path))
             return {str(c): df[c].to_numpy() for c in df.columns}, where, len(df)
         if kind == "parquet":
@@ -832,17 +835,34 @@ def infer_layout(names: set[str], source: str) -> str:
     >>> infer_layout({"frame", "cx", "cy", "cz", "length", "width", "height", "yaw"}, "t")
     'upright'
     """
+    every = {c for s in SHAPES for c in box_columns(s)}
     try:
         layout = layout_of_columns(names)
     except InvalidInput as exc:
-        raise InvalidTable(source, exc.reason) from None
+        raise InvalidTable(source, exc.reason + _spelled_otherwise(every, names)) from None
     if layout is None:
         raise InvalidTable(
             source,
             "no box columns found; expected one of: "
-            + "; ".join(f"{s}: {' '.join(box_columns(s))}" for s in SHAPES),
+            + "; ".join(f"{s}: {' '.join(box_columns(s))}" for s in SHAPES)
+            + _spelled_otherwise(every, names),
         )
     return layout
+
+
+def _spelled_otherwise(wanted: Any, names: Any) -> str:
+    """A hint when the table has ``wanted`` column(s) only in other letter case or with
+    spaces (``FRAME``, ``" cx"``): names are matched exactly, so say which was meant."""
+    wanted = [wanted] if isinstance(wanted, str) else list(wanted)
+    found = {}
+    for name in sorted(names):
+        key = name.strip().lower()
+        if key in wanted and key != name:
+            found.setdefault(key, name)
+    if not found:
+        return ""
+    shown = ", ".join(repr(v) for v in list(found.values())[:4])
+    return f"; the table has {shown}: column names are matched exactly (lower case, no spaces)"
 
 
 def _read_folder(folder: str, role: str, shape: str | None, degrees: bool) -> Table:
@@ -960,6 +980,7 @@ def read_table(
     for col in required:
         if col not in names:
             extra = " (detections need a score per row)" if col == "score" else ""
+            extra += _spelled_otherwise(col, names)
             raise InvalidTable(name, f"missing column {col!r}{extra}")
     layout = shape if shape is not None else infer_layout(names, name)
     if layout not in SHAPES:
@@ -976,9 +997,8 @@ def read_table(
     bcols = box_columns(layout, vertices)
     for col in bcols:
         if col not in names:
-            raise InvalidTable(
-                name, f"missing column {col!r} (shape {layout!r} needs {' '.join(bcols)})"
-            )
+            reason = f"missing column {col!r} (shape {layout!r} needs {' '.join(bcols)})"
+            raise InvalidTable(name, reason + _spelled_otherwise(col, names))
 
     for col in (*required, *bcols, *(["ignore"] if role == "truth" and "ignore" in names else [])):
         _one_value_per_cell(cols[col], col, where)

@@ -176,13 +176,6 @@ def test_nan_and_empty_cells(tmp_path):
         read_table(pd.DataFrame(rows), role="detections")
 
 
-def test_blank_line_is_not_dropped(tmp_path):
-    path = tmp_path / "t.csv"
-    path.write_text("frame,label,cx,cy,width,height,angle\n0,a,1,1,1,1,0\n\n1,a,1,1,1,1,0\n")
-    with pytest.raises(ValueError, match=r"t\.csv, line 3, column 'frame': empty value"):
-        read_table(str(path), role="truth")
-
-
 def test_negative_size_names_line_and_column(tmp_path):
     rows = [dict(r) for r in ROWS]
     rows[1]["height"] = -2.0
@@ -528,3 +521,31 @@ def test_columns_of_integer_text_read_exactly(items):
     ids, written = frame_ids(np.array(texts, dtype=object))
     assert ids.tolist() == [int(t) for t in texts]
     assert (written is None) == all(t == str(int(t)) for t in texts)
+
+
+def test_blank_lines_carry_no_row_and_later_lines_keep_their_numbers(tmp_path):
+    # Hand-worked file: header (line 1), a row (2), a blank line (3), spaces only (4), a row
+    # with an empty frame (5), a trailing blank line (6). Blank lines are skipped like in
+    # JSON Lines; the error names the physical line 5.
+    path = tmp_path / "t.csv"
+    path.write_text("frame,label,x_min,y_min,x_max,y_max\n7,buoy,0,0,1,1\n\n   \n,buoy,0,0,1,1\n\n")
+    with pytest.raises(InvalidTable) as err:
+        read_table(path, role="truth")
+    assert err.value.line == 5 and err.value.column == "frame"
+    path.write_text("frame,label,x_min,y_min,x_max,y_max\n7,buoy,0,0,1,1\n\n8,buoy,0,0,1,1\n\n")
+    t = read_table(path, role="truth")
+    assert t.frame.tolist() == [7, 8] and len(t) == 2
+
+
+def test_columns_spelled_in_other_case_are_named_in_the_error():
+    # names are matched exactly; the error says which column was probably meant
+    table = {"FRAME": [1], "label": ["buoy"], "x_min": [0], "y_min": [0], "x_max": [1],
+             "y_max": [1]}  # fmt: skip
+    with pytest.raises(InvalidTable, match="the table has 'FRAME'"):
+        read_table(table, role="truth")
+    boxes = {"frame": [1], "label": ["buoy"], "CX": [0.0], "CY": [0.0], "Width": [1.0],
+             "height": [1.0], "angle": [0.0]}  # fmt: skip
+    with pytest.raises(InvalidTable, match="missing column 'cx'.*the table has 'CX'"):
+        read_table(boxes, role="truth", shape="rotated")
+    with pytest.raises(InvalidTable, match="missing column 'cx'.*'CX', 'CY', 'Width'"):
+        read_table(boxes, role="truth")  # the layout guessed from the lower-case names
