@@ -79,6 +79,14 @@ def _degrees(error: _bd.OrientationError) -> dict:
     return out
 
 
+def _tp_json(error: Any) -> dict:
+    """Errors of true positives for JSON: the orientation error in degrees, named so."""
+    out = {k: v for k, v in error._asdict().items() if k not in ("label", "threshold")}
+    angle = out.pop("orientation_error")
+    out["orientation_error_deg"] = None if angle is None else math.degrees(angle)
+    return out
+
+
 def _json_edges(edges: Sequence[float]) -> list[float | None]:
     """Bucket edges for JSON, which has no infinity: an open end is ``None`` (null)."""
     return [float(e) if math.isfinite(e) else None for e in edges]
@@ -886,9 +894,10 @@ class Evaluation:
         dist = _tpe.centre_distance(r.det_centre[tp], r.truth_centre[ti])
         size = _tpe.size_error(r.det_aligned[tp], r.truth_aligned[ti], shape)
         orient = heading_ap = None
-        if shape not in ("axis", "axis3"):
-            period = 2 * np.pi if shape == "upright" else np.pi
-            orient = mean(_tpe.heading_error(r.det_angle[tp], r.truth_angle[ti], period))
+        if shape not in ("axis", "axis3"):  # the rule of orientation_error (near-squares)
+            orient = _bd.orientation_error(
+                r.det_angle[tp], r.truth_angle[ti], shape, r.det_aspect[tp], r.truth_aspect[ti]
+            ).mean
         value, counts = self._cells[(lab, t)]
         if shape == "upright":
             keep = (out == TP) | (out == FP)
@@ -989,14 +998,7 @@ class Evaluation:
             if self.records.shape not in ("axis", "axis3"):
                 d["orientation_error"] = _degrees(self.orientation_error())
             d["tp_errors"] = {
-                lab: {
-                    _key(t): {
-                        k: v
-                        for k, v in self.tp_error(lab, t)._asdict().items()
-                        if k not in ("label", "threshold")
-                    }
-                    for t in self._spec.of(lab)
-                }
+                lab: {_key(t): _tp_json(self.tp_error(lab, t)) for t in self._spec.of(lab)}
                 for lab in self.labels
             }
             for by, group in self.buckets.items():

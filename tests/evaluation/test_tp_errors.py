@@ -143,6 +143,9 @@ def test_table_json_and_summary_columns():
     assert len(ev.tp_errors(1.0)) == 1
     d = ev.to_dict()["tp_errors"]["car"]["0.5"]
     assert d["tp"] == 1 and d["heading_ap"] == 1.0 and d["size_error"] == 0.0
+    # the JSON names the unit of the orientation error: degrees, as the text shows
+    assert "orientation_error" not in d
+    assert d["orientation_error_deg"] == pytest.approx(np.degrees(df["orientation_error"][0]))
     assert "Errors of true positives" in ev.summary()
     # axis boxes: no orientation, no heading: n/a (None / NaN), not a number
     axis = {"frame": [0], "label": ["crate"], "x_min": [0.0], "y_min": [0.0],
