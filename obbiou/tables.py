@@ -850,6 +850,17 @@ def infer_layout(names: set[str], source: str) -> str:
     return layout
 
 
+def _frame_column(values: np.ndarray, where: _Where) -> tuple[np.ndarray, np.ndarray | None]:
+    """The ``frame`` column by the frame-id rule (:func:`frame_ids`); errors name the row."""
+    i = _first_empty(values)
+    if i is not None:
+        raise where.error(i, "frame", "empty value")
+    try:
+        return frame_ids(values)
+    except InvalidInput as exc:
+        raise where.error(exc.row, "frame", exc.reason) from None
+
+
 def _spelled_otherwise(wanted: Any, names: Any) -> str:
     """A hint when the table has ``wanted`` column(s) only in other letter case or with
     spaces (``FRAME``, ``" cx"``): names are matched exactly, so say which was meant."""
@@ -1002,13 +1013,7 @@ def read_table(
 
     for col in (*required, *bcols, *(["ignore"] if role == "truth" and "ignore" in names else [])):
         _one_value_per_cell(cols[col], col, where)
-    i = _first_empty(cols["frame"])
-    if i is not None:
-        raise where.error(i, "frame", "empty value")
-    try:
-        frame, written = frame_ids(cols["frame"])
-    except InvalidInput as exc:
-        raise where.error(exc.row, "frame", exc.reason) from None
+    frame, written = _frame_column(cols["frame"], where)
     label = _labels(cols["label"], where)
     score = _numeric(cols["score"], "score", where) if role == "detections" else None
     if role == "truth" and "ignore" in names:
@@ -1098,11 +1103,5 @@ def read_points(source: Any) -> Points:
     xyz = np.empty((n, len(names)))
     for j, col in enumerate(names):
         xyz[:, j] = _numeric(cols[col], col, where)
-    i = _first_empty(cols["frame"])
-    if i is not None:
-        raise where.error(i, "frame", "empty value")
-    try:
-        frame, _ = frame_ids(cols["frame"])
-    except InvalidInput as exc:
-        raise where.error(exc.row, "frame", exc.reason) from None
+    frame, _ = _frame_column(cols["frame"], where)
     return Points(frame, xyz, where.source)

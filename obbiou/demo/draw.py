@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 
 from obbiou.evaluation.palette import PALETTE
-from obbiou.evaluation.pictures import draw_matches
+from obbiou.evaluation.pictures import draw_matches, legend_below
 from obbiou.evaluation.pictures import outlines as _outlines
 
 __all__ = ["draw_scene"]
@@ -68,7 +68,6 @@ def draw_scene(
     """
     from matplotlib.figure import Figure
     from matplotlib.patches import Circle, Polygon
-    from matplotlib.transforms import offset_copy
 
     path = Path(path)
     shape = scenario.shape
@@ -143,17 +142,8 @@ def draw_scene(
                 va="center",
                 bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.7},
             )
-    ax.legend(
-        handles=handles,
-        loc="upper center",
-        bbox_to_anchor=(0.5, 0.0),
-        bbox_transform=offset_copy(ax.transAxes, fig=fig, y=-34, units="points"),
-        ncol=3,
-        fontsize=8.5,
-        frameon=False,
-        title=iou_text or f"matching at IoU ≥ {iou:g}",
-        title_fontsize=8.5,
-    )
+    title_text = iou_text or f"matching at IoU ≥ {iou:g}"
+    legend_below(ax, handles, title_text, columns=3, size=8.5, gap=34)
     if shape == "upright":
         ax.set_xlabel("x, ahead of the robot (m)")
         ax.set_ylabel("y, to the robot's left (m)")

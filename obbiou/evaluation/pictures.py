@@ -21,7 +21,7 @@ import numpy as np
 from obbiou.evaluation.matching import CAPPED, IGNORED, TP
 from obbiou.evaluation.palette import PALETTE
 
-__all__ = ["draw_frame", "draw_matches", "frame_statuses", "outlines"]
+__all__ = ["draw_frame", "draw_matches", "frame_statuses", "legend_below", "outlines"]
 
 #: Status names per truth and per detection.
 TRUTH_STATUSES = ("matched", "missed", "ignore")
@@ -160,6 +160,25 @@ def draw_matches(
     ]
 
 
+def legend_below(
+    ax: Any, handles: list[Any], title: str, *, columns: int, size: float, gap: float
+) -> Any:
+    """The status legend under the axes, ``gap`` points below them (clear of the x label)."""
+    from matplotlib.transforms import offset_copy
+
+    return ax.legend(
+        handles=handles,
+        loc="upper center",
+        bbox_to_anchor=(0.5, 0.0),
+        bbox_transform=offset_copy(ax.transAxes, fig=ax.figure, y=-gap, units="points"),
+        ncol=columns,
+        fontsize=size,
+        frameon=False,
+        title=title,
+        title_fontsize=size,
+    )
+
+
 def draw_frame(
     truth: Any,
     detections: Any,
@@ -213,7 +232,6 @@ def draw_frame(
     b'\\x89PNG'
     """
     from matplotlib.figure import Figure
-    from matplotlib.transforms import offset_copy
 
     from obbiou.errors import InvalidInput
     from obbiou.evaluation.protocol import evaluate
@@ -250,17 +268,7 @@ def draw_frame(
             )
     view = " (from above)" if layout in ("upright", "axis3") else ""
     ax.set_title(title or f"frame {want[0]}{view}", fontsize=11, loc="left")
-    ax.legend(
-        handles=handles,
-        loc="upper center",
-        bbox_to_anchor=(0.5, 0.0),
-        bbox_transform=offset_copy(ax.transAxes, fig=fig, y=-28, units="points"),
-        ncol=2,
-        fontsize=8,
-        frameon=False,
-        title=f"matching at IoU ≥ {ev.threshold(iou):g}",
-        title_fontsize=8,
-    )
+    legend_below(ax, handles, f"matching at {ev.rule(iou)}", columns=2, size=8, gap=28)
     ax.tick_params(labelsize=8)
     fig.tight_layout()
     path = Path(path)

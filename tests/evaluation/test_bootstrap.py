@@ -39,6 +39,19 @@ def scene(nframes, seed, *, noise=0.6, hit=0.75):
     return t, d
 
 
+def copied_frames(truth, dets, counts):
+    """The tables with frame f copied counts[f] times, each copy a frame of its own."""
+    t2 = {k: [] for k in truth}
+    d2 = {k: [] for k in dets}
+    for f, count in enumerate(counts):
+        for c in range(count):
+            for src, dst in ((truth, t2), (dets, d2)):
+                rows = [i for i, fr in enumerate(src["frame"]) if fr == f]
+                for k in src:
+                    dst[k] += [f"{f}-{c}" if k == "frame" else src[k][i] for i in rows]
+    return t2, d2
+
+
 def test_interval_contains_estimate_and_is_reproducible():
     ev = evaluate(*scene(120, 0), iou=[0.5, 0.7])
     lo, hi = ev.interval(resamples=300, seed=4)
@@ -70,14 +83,7 @@ def test_resample_equals_evaluation_of_copied_frames(kind):
     w = frame_weights(len(ev.frames), 3, seed=9)
     got = ev._resampled(w, None, None)
     for b in range(3):
-        t2 = {k: [] for k in truth}
-        d2 = {k: [] for k in dets}
-        for f, count in enumerate(w[b]):
-            for c in range(count):
-                for src, dst in ((truth, t2), (dets, d2)):
-                    rows = [i for i, fr in enumerate(src["frame"]) if fr == f]
-                    for k in src:
-                        dst[k] += [f"{f}-{c}" if k == "frame" else src[k][i] for i in rows]
+        t2, d2 = copied_frames(truth, dets, w[b])
         direct = evaluate(t2, d2, iou=[0.5, 0.75], ap=kind)
         assert got[b] == pytest.approx(direct.mean_ap(), abs=1e-12)
 
@@ -135,12 +141,5 @@ def test_per_label_resample_equals_evaluation_of_copied_frames():
     w = frame_weights(len(ev.frames), 2, seed=3)
     got = ev.resampled_ap(w, "ship")
     for b in range(2):
-        t2 = {k: [] for k in truth}
-        d2 = {k: [] for k in dets}
-        for f, count in enumerate(w[b]):
-            for c in range(count):
-                for src, dst in ((truth, t2), (dets, d2)):
-                    rows = [i for i, fr in enumerate(src["frame"]) if fr == f]
-                    for k in src:
-                        dst[k] += [f"{f}-{c}" if k == "frame" else src[k][i] for i in rows]
+        t2, d2 = copied_frames(truth, dets, w[b])
         assert got[b] == pytest.approx(evaluate(t2, d2, iou=[0.5, 0.75]).ap("ship"), abs=1e-12)

@@ -27,11 +27,8 @@ def upright_table(rows, frames, labels, *, scores=None, ignore=None):
     return t
 
 
-def test_hand_worked_nearest_and_tie():
-    # Hand-worked: truths T0 at x=0, T1 at x=3, T2 at x=10 (one frame, label car).
-    # D0 (score .9) at x=1.5: 1.5 m from T0 and from T1, a tie -> the earlier truth T0,
-    # within 2 and 4 m only. D1 (.8) at x=1.4: T0 taken, T1 at 1.6 m -> TP at 2 and 4 m.
-    # D2 (.7) at x=20: 10 m from T2 -> FP everywhere. T2 is missed at every distance.
+def three_cars():
+    """Truths T0, T1, T2 at x = 0, 3, 10; detections D0, D1, D2 at x = 1.5, 1.4, 20."""
     car = [0.0, 0.0, 1.0, 4.0, 2.0, 1.5, 0.0]
     truth = upright_table([[0, *car[1:]], [3, *car[1:]], [10, *car[1:]]], [0] * 3, ["car"] * 3)
     dets = upright_table(
@@ -40,6 +37,15 @@ def test_hand_worked_nearest_and_tie():
         ["car"] * 3,
         scores=[0.9, 0.8, 0.7],
     )
+    return truth, dets
+
+
+def test_hand_worked_nearest_and_tie():
+    # Hand-worked: truths T0 at x=0, T1 at x=3, T2 at x=10 (one frame, label car).
+    # D0 (score .9) at x=1.5: 1.5 m from T0 and from T1, a tie -> the earlier truth T0,
+    # within 2 and 4 m only. D1 (.8) at x=1.4: T0 taken, T1 at 1.6 m -> TP at 2 and 4 m.
+    # D2 (.7) at x=20: 10 m from T2 -> FP everywhere. T2 is missed at every distance.
+    truth, dets = three_cars()
     ev = evaluate(truth, dets, distance=[0.5, 1, 2, 4])
     r = ev.records
     assert r.criterion == "distance"
@@ -285,14 +291,7 @@ def test_per_row_tables_and_confusion_by_distance():
     # distance (4 m) by default, the per-row tables give distances, not IoUs: D0 took T0 at
     # 1.5 m, D1 took T1 at 1.6 m; D2 is a background FP at 4 m, with no truth within the
     # largest threshold (nearest <NA>: pairs are only looked for within it); T2 is missed
-    car = [0.0, 0.0, 1.0, 4.0, 2.0, 1.5, 0.0]
-    truth = upright_table([[0, *car[1:]], [3, *car[1:]], [10, *car[1:]]], [0] * 3, ["car"] * 3)
-    dets = upright_table(
-        [[1.5, *car[1:]], [1.4, *car[1:]], [20, *car[1:]]],
-        [0] * 3,
-        ["car"] * 3,
-        scores=[0.9, 0.8, 0.7],
-    )
+    truth, dets = three_cars()
     ev = evaluate(truth, dets, distance=[0.5, 1, 2, 4])
     d = ev.detections()
     assert "iou" not in d.columns and d["threshold"].tolist() == [4.0] * 3

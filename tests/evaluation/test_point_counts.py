@@ -71,15 +71,21 @@ def test_counts_against_scipy_and_shapely_on_random_frames():
         assert got2[i] == want2
 
 
-def test_few_points_make_ignore_truths():
-    # Hand-worked: two people, P0 with 6 returns, P1 with 2; min_points=5 sets P1 aside.
-    # A detection on P1 is then ignored (not an FP), P1 is not a miss: AP 1 for "person".
+def two_people():
+    """Hand-worked: people P0 at x = 0 with 6 returns and P1 at x = 5 with 2, both detected."""
     p = [0.0, 0.0, 0.9, 0.5, 0.5, 1.8, 0.0]
     q = [5.0, 0.0, 0.9, 0.5, 0.5, 1.8, 0.0]
     truth = upright([p, q], [0, 0], ["person"] * 2)
     dets = upright([p, q], [0, 0], ["person"] * 2, score=[0.9, 0.8])
     pts = {"frame": [0] * 8, "x": [0.0] * 6 + [5.0] * 2, "y": [0.0] * 8,
            "z": [0.1, 0.4, 0.7, 1.0, 1.3, 1.6, 0.5, 1.0]}  # fmt: skip
+    return truth, dets, pts
+
+
+def test_few_points_make_ignore_truths():
+    # Hand-worked: two people, P0 with 6 returns, P1 with 2; min_points=5 sets P1 aside.
+    # A detection on P1 is then ignored (not an FP), P1 is not a miss: AP 1 for "person".
+    truth, dets, pts = two_people()
     ev = evaluate(truth, dets, points=pts, min_points=5)
     assert ev.records.truth_points.tolist() == [6, 2]
     assert ev.records.truth_set_aside.tolist() == [False, True]
@@ -124,12 +130,7 @@ def test_per_truth_table_and_confusion_know_the_set_aside_truths():
     # the same hand-worked case: truths() shows each truth's points and whether it was set
     # aside (P1: 2 points < 5 -> ignore); confusion() treats P1 as an ignore truth too, so
     # the detection on it is absorbed (attrs["ignored"]), not counted on background
-    p = [0.0, 0.0, 0.9, 0.5, 0.5, 1.8, 0.0]
-    q = [5.0, 0.0, 0.9, 0.5, 0.5, 1.8, 0.0]
-    truth = upright([p, q], [0, 0], ["person"] * 2)
-    dets = upright([p, q], [0, 0], ["person"] * 2, score=[0.9, 0.8])
-    pts = {"frame": [0] * 8, "x": [0.0] * 6 + [5.0] * 2, "y": [0.0] * 8,
-           "z": [0.1, 0.4, 0.7, 1.0, 1.3, 1.6, 0.5, 1.0]}  # fmt: skip
+    truth, dets, pts = two_people()
     ev = evaluate(truth, dets, points=pts, min_points=5)
     rows = ev.truths()
     assert rows["points"].tolist() == [6, 2]
