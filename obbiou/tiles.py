@@ -34,7 +34,7 @@ from obbiou.errors import InvalidInput
 from obbiou.fusion import Fused
 from obbiou.fusion import fuse as _fuse
 from obbiou.measures import pair_values
-from obbiou.scene import suppress
+from obbiou.scene import overlapping_pairs, score_order
 from obbiou.shapes import Boxes, read_boxes, read_labels, read_scores
 
 __all__ = ["grid", "shift", "crop", "merge", "Crop", "Merged", "seam_rows"]
@@ -695,7 +695,7 @@ def merge(
         band = _default_border(t)
     else:
         band = _positive(border, "border", zero=True)
-    label_arr = None if labels is None else read_labels(labels, n)[0]
+    label_arr, codes = (None, None) if labels is None else read_labels(labels, n)
     if fuse and b.shape == "polygon":
         raise InvalidInput(
             "boxes", "fuse=True averages axis and rotated boxes; polygons cannot be fused"
@@ -724,14 +724,32 @@ def merge(
         members = rows[f.members]
         fused = type(f)(f.boxes, f.scores, f.labels, f.offsets, members)
         return Merged(f.boxes, f.scores, f.labels, members[f.offsets[:-1]], dropped, fused)
-    k = suppress(
-        kept_boxes, s[rows], shape=b.shape, max_iou=thr, labels=kept_labels, min_score=-np.inf
-    )
-    src = rows[k.indices]
+    k = _suppress_copies(kept_boxes, s[rows], b.shape, thr, None if codes is None else codes[rows])
+    src = rows[k]
     return Merged(
         image[src],
-        k.scores,
+        s[src],
         None if label_arr is None else label_arr[src],
         src,
         dropped,
     )
+
+
+def _suppress_copies(
+    boxes: np.ndarray, scores: np.ndarray, layout: str, thr: float, codes: np.ndarray | None
+) -> np.ndarray:
+    """The rows that ``obbiou.suppress(boxes, scores, max_iou=thr, labels=..., min_score=
+    -inf)`` keeps, best first, by another road: the pairs with IoU > ``thr`` first
+    (:func:`obbiou.overlapping_pairs`, on all cores), then the greedy walk over them. After
+    the seam rule most boxes have no copy and the rest one to three, so the pairs are few;
+    suppress's lazy walk would visit the boxes in score order, jumping across the whole
+    image (see ``python bench/tiles.py --diagnose``)."""
+    from obbiou._kernels import suppress as kernels
+
+    p = overlapping_pairs(boxes, shape=layout, min_iou=thr)
+    first, second, iou = p.first, p.second, p.iou
+    if codes is not None:  # copies are suppressed within a label only
+        same = codes[first] == codes[second]
+        first, second, iou = first[same], second[same], iou[same]
+    ptr, nbr, _ = kernels.neighbours(boxes.shape[0], first, second, iou)
+    return kernels.hard_over_pairs(score_order(scores), ptr, nbr)
