@@ -37,7 +37,7 @@ from obbiou.measures import pair_values
 from obbiou.scene import overlapping_pairs, score_order
 from obbiou.shapes import Boxes, read_boxes, read_labels, read_scores
 
-__all__ = ["grid", "shift", "crop", "merge", "Crop", "Merged", "seam_rows"]
+__all__ = ["grid", "shift", "crop", "merge", "Crop", "Merged", "seam_rows", "warmup"]
 
 
 # ---------------------------------------------------------------------------- grid
@@ -758,3 +758,18 @@ def _suppress_copies(
         first, second, iou = first[same], second[same], iou[same]
     ptr, nbr, _ = kernels.neighbours(boxes.shape[0], first, second, iou)
     return kernels.hard_over_pairs(score_order(scores), ptr, nbr)
+
+
+def warmup() -> None:
+    """Compile merge's own kernels once (cached on disk): the first pass, the seam rule's
+    lookup and the greedy walk over the pairs; one compile serves every layout. (The pairs
+    are the scene group's, fusion the fusion group's.)
+
+    Examples
+    --------
+    >>> warmup()
+    """
+    tiles = grid(200, 100, size=100, overlap=20)
+    # a box of tile 0 at its seam, held whole by tile 1; a copy of a box in tile 1
+    boxes = [[95.0, 50, 10, 4, 0.1], [15, 50, 10, 4, 0.1], [40, 20, 10, 4, 0], [40, 20, 10, 4, 0]]
+    merge(boxes, [0.9, 0.8, 0.7, 0.6], [0, 1, 1, 1], tiles)
