@@ -17,6 +17,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import obbiou
+import obbiou.tiles
 from obbiou.boxes import corners, envelope, fit_rotated
 from obbiou.errors import InvalidInput
 from obbiou.tiles import crop, grid, merge, seam_rows, shift
@@ -568,9 +569,16 @@ def clustered_detections(rng, tiles, k, shape):
     return boxes, scores, tile
 
 
+# merge finds the copies by the pairs above max_iou from this many boxes, else through
+# obbiou.suppress: 0 forces the pairs road on the small scenes of these tests
+ROADS = {"pairs": 0, "suppress": 10**12}
+
+
+@pytest.mark.parametrize("road", sorted(ROADS))
 @pytest.mark.parametrize("shape", ["rotated", "axis", "polygon"])
 @pytest.mark.parametrize("seed", [0, 1])
-def test_merge_equals_seam_rule_then_suppress(shape, seed):
+def test_merge_equals_seam_rule_then_suppress(shape, seed, road, monkeypatch):
+    monkeypatch.setattr(obbiou.tiles, "_PAIRS_FROM", ROADS[road])
     rng = np.random.default_rng(seed)
     tiles = grid(2600, 1900, size=640, overlap=120)
     boxes, scores, tile = clustered_detections(rng, tiles, 400, shape)
@@ -598,9 +606,11 @@ def test_merge_equals_seam_rule_then_suppress_adversarial(boxes, seed, max_iou):
     tile = rng.integers(0, len(tiles), len(boxes))
     local = shift(boxes, -tiles[tile, 0], -tiles[tile, 1], shape="rotated")
     scores = rng.choice([0.2, 0.5, 0.9], len(boxes))  # ties
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UserWarning)  # boxes far outside their tile
-        m = merge(local, scores, tile, tiles, shape="rotated", max_iou=max_iou)
     kept, dropped = seam_then_suppress(local, scores, tile, tiles, "rotated", None, max_iou)
-    assert m.at_seam.tolist() == dropped.tolist()
-    assert m.rows.tolist() == kept.tolist()
+    for road in ROADS.values():
+        with warnings.catch_warnings(), pytest.MonkeyPatch.context() as mp:
+            warnings.simplefilter("ignore", UserWarning)  # boxes far outside their tile
+            mp.setattr(obbiou.tiles, "_PAIRS_FROM", road)
+            m = merge(local, scores, tile, tiles, shape="rotated", max_iou=max_iou)
+        assert m.at_seam.tolist() == dropped.tolist()
+        assert m.rows.tolist() == kept.tolist()

@@ -919,7 +919,8 @@ def detect_in_tiles(
     :func:`harbour_survey` judges the mosaic's edge), so it is missed and misplaced more
     often; an object none of whose 49 points is inside goes unseen by that tile. Then
     :func:`simulate_detector`'s error model applies tile by tile, with false alarms scaled
-    to the tile's share of the frame's area. The boxes are in the coordinates of their tile
+    to the tile's share of the frame's area; a box that noise pushed wholly off its tile is
+    not reported. The boxes are in the coordinates of their tile
     (origin at its top-left corner); :func:`obbiou.tiles.merge` turns them into one set per
     frame. All of it is **invented**.
 
@@ -950,6 +951,8 @@ def detect_in_tiles(
     >>> sorted(d.tile.unique().tolist())  # 2 x 2 tiles of 1152 px on a 2048 px frame
     [0, 1, 2, 3]
     """
+    from obbiou.boxes import envelope
+
     if scenario.shape != "rotated":
         raise InvalidInput(
             "scenario", f"the tiled detector takes rotated boxes, got {scenario.shape!r}"
@@ -963,8 +966,15 @@ def detect_in_tiles(
     x0, y0, x1, y1 = scenario.extent
     share = float(size * size) / float((x1 - x0) * (y1 - y0))
     view = _tile_view(scenario, tiles)
+    cols = list(scenario.box_columns)
     scaled = dataclass_replace(model, false_alarms=model.false_alarms * share)
     det = simulate_detector(view, scaled, seed=seed)
+    # a detector reports nothing wholly outside its input: noise can push a small partial
+    # box off its tile
+    env = envelope(det[cols].to_numpy(np.float64), shape="rotated") if len(det) else None
+    if env is not None:
+        det = det[(env[:, 2] > 0) & (env[:, 0] < size) & (env[:, 3] > 0) & (env[:, 1] < size)]
+        det = det.reset_index(drop=True)
     where = view.layout["where"]
     frame_of = [where[f] for f in det["frame"]]
     det.insert(1, "tile", np.array([k for _, k in frame_of], dtype=np.int64))

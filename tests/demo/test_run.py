@@ -132,6 +132,7 @@ def test_demo_harbour_detector_runs_on_tiles_and_merges(demo):
     assert "4 tiles of 1152 x 1152 px overlapping by 256 px" in report
     assert "tile detections ->" in report and "harbour/tiles.png" in report
     assert "per frame" in proc.stdout and "at seams" in proc.stdout
+    assert "Warning" not in proc.stderr  # no tile detection lies wholly off its tile
 
 
 def test_demo_merged_harbour_has_no_cross_seam_duplicates(demo):
