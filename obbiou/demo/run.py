@@ -173,7 +173,7 @@ def _merge_tiles(scenario: Scenario, raw: Any, cfg: dict[str, Any], progress: bo
     return kept, counts
 
 
-def _tiling_text(cfg: dict[str, Any], tiling: dict[str, dict[str, int]], frames: int) -> str:
+def _tiling_text(cfg: dict[str, Any], tiling: dict[str, dict[str, int]]) -> str:
     """One line: the tiles and, per version, per-tile detections -> merged."""
     first = tiling[VERSIONS[0]]
     size, overlap = cfg["tiles"]["size"], cfg["tiles"]["overlap"]
@@ -187,21 +187,19 @@ def _tiling_text(cfg: dict[str, Any], tiling: dict[str, dict[str, int]], frames:
     )
 
 
-def _tiling_lines(cfg: dict[str, Any], tiling: dict[str, dict[str, int]], frames: int) -> list:
+def _tiling_lines(cfg: dict[str, Any], tiling: dict[str, dict[str, int]]) -> list[str]:
     """The report's lines on the tiled detector and the merge."""
     first = tiling[VERSIONS[0]]
     size, overlap = cfg["tiles"]["size"], cfg["tiles"]["overlap"]
-    lines = [
+    lines = textwrap.wrap(
         f"simulated detector on tiles: each frame cut into {first['tiles_per_frame']} tiles of "
         f"{size} x {size} px overlapping by {overlap} px (obbiou.tiles.grid), "
-        f"{first['tiles']} tiles in all;",
-        "objects cut by a tile edge come back as partial boxes, objects in an overlap once "
-        "from each tile.",
-        "merged into one set per frame (obbiou.tiles.merge: boxes into the frame, cut boxes "
-        "that another",
-        f"tile saw whole dropped at the seams, then suppression IoU > {cfg['max_iou']:g} per "
-        "label):",
-    ]
+        f"{first['tiles']} tiles in all; objects cut by a tile edge come back as partial "
+        "boxes, objects in an overlap once from each tile. Merged into one set per frame by "
+        "obbiou.tiles.merge: boxes into the frame, cut boxes that another tile saw whole "
+        f"dropped at the seams, then suppression at IoU > {cfg['max_iou']:g} per label:",
+        88,
+    )
     for v, c in tiling.items():
         suppressed = c["detections"] - c["dropped_at_seams"] - c["kept"]
         lines.append(
@@ -211,9 +209,7 @@ def _tiling_lines(cfg: dict[str, Any], tiling: dict[str, dict[str, int]], frames
     return lines
 
 
-def _tiling_doc(
-    cfg: dict[str, Any], tiling: dict[str, dict[str, int]], scenario: Scenario
-) -> dict[str, Any]:
+def _tiling_doc(cfg: dict[str, Any], tiling: dict[str, dict[str, int]]) -> dict[str, Any]:
     """The JSON report's entry on the tiled detector and the merge."""
     return {
         "tile_size": cfg["tiles"]["size"],
@@ -444,7 +440,7 @@ def run_demo(
                 + ", ".join(f"{v} {raw_n[v]} -> {kept_n[v]}" for v in VERSIONS)
             )
         else:
-            say("      " + _tiling_text(cfg, tiling, len(scenario.frames)))
+            say("      " + _tiling_text(cfg, tiling))
         say(
             f"      improved detector: mean AP {_fmt(ev.mean_ap())} [{ci_all[0]:.3f}, "
             f"{ci_all[1]:.3f}] over IoU {cfg['iou']}; at {head:g}: {_fmt(ev.mean_ap(head))} "
@@ -469,7 +465,7 @@ def run_demo(
             "raw_detections": raw_n,
             "kept_detections": kept_n,
             "suppression": {"max_iou": cfg["max_iou"], "per": "frame and label", "decay": None},
-            **({} if tiling is None else {"tiling": _tiling_doc(cfg, tiling, scenario)}),
+            **({} if tiling is None else {"tiling": _tiling_doc(cfg, tiling)}),
             "mean_ap": mean_ap[name],
             "interval": {
                 "level": 0.95,
@@ -572,7 +568,7 @@ def _section(
                 "  " + "; ".join(f"{v} {raw_n[v]} -> {kept_n[v]}" for v in VERSIONS),
             ]
             if tiling is None
-            else _tiling_lines(cfg, tiling, len(scenario.frames))
+            else _tiling_lines(cfg, tiling)
         ),
         "",
         "Evaluation of the improved detector:",
