@@ -871,8 +871,10 @@ def visible_box(boxes: np.ndarray, tile: Any) -> np.ndarray:
                 cross[..., 1 - axis] = other
                 points.append(cross)
                 valid.append((t >= 0) & (t <= 1) & (other >= lo) & (other <= hi))
-    pts = np.concatenate(points, axis=1)
     ok = np.concatenate(valid, axis=1)
+    # points that are not corners of the visible part (crossings of parallel lines are
+    # NaN) count as the centre: masked out below, but kept finite
+    pts = np.where(ok[..., None], np.concatenate(points, axis=1), b[:, None, :2])
     du = pts[..., 0] - b[:, 0:1]
     dv = pts[..., 1] - b[:, 1:2]
     u = np.clip(c * du + s * dv, -hw, hw)
