@@ -2,9 +2,9 @@
 
 Run: ``python bench/tiles.py`` (20 000 x 20 000 px image, 1024-px tiles overlapping by
 200 px: 625 tiles, about 200 000 detections) or ``python bench/tiles.py --quick``
-(8 000 x 8 000 px, about 38 000 detections). ``--diagnose`` times the hard suppression
-of the merge's boxes whole, in spatial blocks and with scores in spatial order: where
-obbiou's time goes.
+(8 000 x 8 000 px, about 38 000 detections). ``--diagnose`` shows where obbiou's time goes: the
+seam rule, ``obbiou.suppress`` of the boxes it leaves (whole, in spatial blocks, with
+scores in spatial order), and the pairs above ``max_iou`` that merge finds instead.
 
 The scene is invented (seeded): a harbour orthomosaic with rotated objects 8-60 px long.
 Each tile's simulated detector reports the objects that reach into the tile, each with a
@@ -183,16 +183,24 @@ def timed(fn, repeat: int):
 
 
 def diagnose(side, tiles, boxes, scores, tile, repeat) -> None:
-    """Hard suppression of the same boxes: whole, in k x k spatial blocks (summed; not the
-    same result at block edges), and with scores that follow a spatial order."""
+    """Where the merge's time goes: the merge whole, the seam rule alone, and the two roads
+    to the copies of the boxes it leaves: ``obbiou.suppress`` (whole, in k x k spatial
+    blocks — summed, not the same result at block edges — and with scores that follow a
+    spatial order), and the pairs above ``max_iou`` that merge finds first."""
+    from obbiou.tiles import seam_rows
+
+    _, cpu, m = timed(lambda: merge(boxes, scores, tile, tiles), repeat)
+    print(f"merge whole: CPU {cpu * 1e3:.0f} ms")
     image = shift(boxes, tiles[tile, 0], tiles[tile, 1])
-    m = merge(boxes, scores, tile, tiles)
+    env = envelope(image, shape="rotated")
+    _, cpu, _ = timed(lambda: seam_rows(env, tile, tiles, SIZE / 64), repeat)
+    print(f"seam rule alone (seam_rows, on extents given): CPU {cpu * 1e3:.0f} ms")
     keep = np.ones(len(image), bool)
     keep[m.at_seam] = False
     image, scores = image[keep], scores[keep]
 
     def run(b, s):
-        return obbiou.suppress(b, s, min_score=-np.inf)
+        return obbiou.suppress(b, s, max_iou=MAX_IOU, min_score=-np.inf)
 
     _, cpu, _ = timed(lambda: run(image, scores), repeat)
     print(f"suppress {len(image)} boxes whole: CPU {cpu * 1e3:.0f} ms")
@@ -207,6 +215,11 @@ def diagnose(side, tiles, boxes, scores, tile, repeat) -> None:
     spatial[order] = np.linspace(1.0, 0.01, len(order))
     _, cpu, _ = timed(lambda: run(image, spatial), repeat)
     print(f"suppress whole, scores decreasing in row-major spatial order: CPU {cpu * 1e3:.0f} ms")
+    wall, cpu, p = timed(lambda: obbiou.overlapping_pairs(image, min_iou=MAX_IOU), repeat)
+    print(
+        f"the pairs above {MAX_IOU} (merge's road: then a greedy walk over them): "
+        f"{len(p)} pairs, {wall * 1e3:.0f} ms (CPU {cpu * 1e3:.0f} ms)"
+    )
 
 
 def main() -> None:
@@ -216,8 +229,8 @@ def main() -> None:
     parser.add_argument(
         "--diagnose",
         action="store_true",
-        help="time obbiou.suppress on the merge's boxes whole, in spatial blocks, and with "
-        "scores in spatial order (where the merge's time goes)",
+        help="where the merge's time goes: the seam rule, obbiou.suppress of the boxes it "
+        "leaves (whole, in spatial blocks, scores in spatial order), the pairs above max_iou",
     )
     args = parser.parse_args()
     side, objects = (8_000.0, 20_000) if args.quick else (20_000.0, 105_000)

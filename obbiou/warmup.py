@@ -16,7 +16,7 @@ on a shared file system, or the same image for every worker) and warm it once, o
 Examples
 --------
 >>> [name for name, _ in GROUPS]
-['scene', 'overlap', 'points', 'box tools', 'evaluation', 'fusion']
+['scene', 'overlap', 'points', 'box tools', 'evaluation', 'fusion', 'tiles']
 """
 
 from __future__ import annotations
@@ -39,10 +39,15 @@ GROUPS: list[tuple[str, str]] = [
     ("box tools", "obbiou.boxes:warmup"),
     ("evaluation", "obbiou.evaluation.protocol:warmup"),
     ("fusion", "obbiou.fusion:warmup"),
+    ("tiles", "obbiou.tiles:warmup"),
 ]
 
 #: Groups that start only when these have finished (they call their kernels).
-AFTER: dict[str, tuple[str, ...]] = {"evaluation": ("overlap",), "fusion": ("scene",)}
+AFTER: dict[str, tuple[str, ...]] = {
+    "evaluation": ("overlap",),
+    "fusion": ("scene",),
+    "tiles": ("scene",),
+}
 
 #: What each group compiles, for progress lines.
 DESCRIPTIONS = {
@@ -50,6 +55,7 @@ DESCRIPTIONS = {
     "box tools": "box tools: fit_rotated",
     "points": "lidar points: count_in_boxes, points_in_boxes",
     "fusion": "box fusion: fuse",
+    "tiles": "large images: merge",
     "scene": "scene: overlapping_pairs, suppress (hard, linear, gaussian)",
     "evaluation": "evaluation: matching, AP, bootstrap",
 }

@@ -8,6 +8,7 @@ hand-worked cases written out beside each check.
 from __future__ import annotations
 
 import math
+import warnings
 
 import numpy as np
 import pytest
@@ -16,6 +17,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import obbiou
+import obbiou.tiles
 from obbiou.boxes import corners, envelope, fit_rotated
 from obbiou.errors import InvalidInput
 from obbiou.tiles import crop, grid, merge, seam_rows, shift
@@ -513,3 +515,102 @@ def test_merge_warns_when_boxes_are_in_image_coordinates():
     # a box of tile 1 given in image coordinates (x = 1500) instead of tile ones (x = 676)
     with pytest.warns(UserWarning, match=r"1 of 2 boxes lie wholly outside .*boxes\[1\]"):
         merge([[500.0, 500, 20, 8, 0], [1500.0, 500, 20, 8, 0]], [0.9, 0.8], [0, 1], tiles)
+
+
+# ------------------------------------------------------------------ merge = seam rule + suppress
+
+
+def seam_then_suppress(boxes, scores, tile, tiles, shape, labels=None, max_iou=0.5, border=None):
+    """The composition merge documents: the seam rule (:func:`seam_rows`, checked against
+    shapely above), then ``obbiou.suppress`` of the rest (checked against shapely in
+    tests/test_scene.py). merge finds the copies by another road (the pairs above max_iou,
+    then a greedy walk over them); the kept rows must be the same, in the same order."""
+    dx, dy = tiles[tile, 0], tiles[tile, 1]
+    image = shift(boxes, dx, dy, shape=shape)
+    env = envelope(image, shape=shape)
+    if border is None:
+        border = float(np.minimum(tiles[:, 2] - tiles[:, 0], tiles[:, 3] - tiles[:, 1]).min()) / 64
+    dropped = seam_rows(env, tile, tiles, border)
+    rest = np.setdiff1d(np.arange(len(scores)), dropped)
+    lab = None if labels is None else np.asarray(labels)[rest]
+    k = obbiou.suppress(
+        image[rest], scores[rest], shape=shape, max_iou=max_iou, labels=lab, min_score=-np.inf
+    )
+    return rest[k.indices], dropped
+
+
+def clustered_detections(rng, tiles, k, shape):
+    """Detections in clusters around k invented object centres: copies from the tiles that
+    hold the centre and duplicates within a tile, in tile coordinates; scores with ties."""
+    centre = rng.uniform(tiles[:, :2].min(axis=0), tiles[:, 2:].max(axis=0), (k, 2))
+    rows, tile = [], []
+    for c in centre:
+        home = np.flatnonzero(
+            (tiles[:, 0] <= c[0])
+            & (c[0] <= tiles[:, 2])
+            & (tiles[:, 1] <= c[1])
+            & (c[1] <= tiles[:, 3])
+        )
+        length = rng.uniform(6, 60)
+        for t in rng.choice(home, size=min(len(home), 1 + rng.integers(0, 4)), replace=False):
+            for _ in range(1 + rng.integers(0, 3)):
+                w = length * rng.uniform(0.9, 1.1)
+                rows.append(
+                    [*(c + rng.normal(0, 2, 2)), w, w * rng.uniform(0.2, 0.9), rng.normal(0.3, 0.2)]
+                )
+                tile.append(t)
+    rows, tile = np.array(rows), np.array(tile)
+    if shape == "axis":
+        rows = envelope(rows, shape="rotated")
+    elif shape == "polygon":
+        rows = corners(rows, shape="rotated")
+    boxes = shift(rows, -tiles[tile, 0], -tiles[tile, 1], shape=shape)
+    scores = np.round(rng.uniform(0.1, 1.0, len(tile)), 2)  # two decimals: many ties
+    return boxes, scores, tile
+
+
+# merge finds the copies by the pairs above max_iou from this many boxes, else through
+# obbiou.suppress: 0 forces the pairs road on the small scenes of these tests
+ROADS = {"pairs": 0, "suppress": 10**12}
+
+
+@pytest.mark.parametrize("road", sorted(ROADS))
+@pytest.mark.parametrize("shape", ["rotated", "axis", "polygon"])
+@pytest.mark.parametrize("seed", [0, 1])
+def test_merge_equals_seam_rule_then_suppress(shape, seed, road, monkeypatch):
+    monkeypatch.setattr(obbiou.tiles, "_PAIRS_FROM", ROADS[road])
+    rng = np.random.default_rng(seed)
+    tiles = grid(2600, 1900, size=640, overlap=120)
+    boxes, scores, tile = clustered_detections(rng, tiles, 400, shape)
+    labels = rng.choice(["vessel", "container", "crane"], len(tile))
+    for lab, max_iou, border in ((None, 0.5, None), (labels, 0.3, 0.0), (labels, 0.0, 25.0)):
+        m = merge(
+            boxes, scores, tile, tiles, shape=shape, labels=lab, max_iou=max_iou, border=border
+        )
+        kept, dropped = seam_then_suppress(boxes, scores, tile, tiles, shape, lab, max_iou, border)
+        assert m.at_seam.tolist() == dropped.tolist()
+        assert m.rows.tolist() == kept.tolist()
+        assert len(kept) < len(boxes) - len(dropped)  # suppression acted
+        np.testing.assert_array_equal(m.scores, scores[kept])
+        if lab is not None:
+            np.testing.assert_array_equal(m.labels, labels[kept])
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(rotated_boxes(min_n=0, max_n=30), st.integers(0, 2**32 - 1), st.floats(0, 1))
+def test_merge_equals_seam_rule_then_suppress_adversarial(boxes, seed, max_iou):
+    # boxes from the shared strategy (nested, identical, tiny, zero-size ...), each handed
+    # to a random tile of a 4 x 3 grid over the strategy's square, in that tile's frame
+    rng = np.random.default_rng(seed)
+    tiles = grid(100, 75, size=40, overlap=10)
+    tile = rng.integers(0, len(tiles), len(boxes))
+    local = shift(boxes, -tiles[tile, 0], -tiles[tile, 1], shape="rotated")
+    scores = rng.choice([0.2, 0.5, 0.9], len(boxes))  # ties
+    kept, dropped = seam_then_suppress(local, scores, tile, tiles, "rotated", None, max_iou)
+    for road in ROADS.values():
+        with warnings.catch_warnings(), pytest.MonkeyPatch.context() as mp:
+            warnings.simplefilter("ignore", UserWarning)  # boxes far outside their tile
+            mp.setattr(obbiou.tiles, "_PAIRS_FROM", road)
+            m = merge(local, scores, tile, tiles, shape="rotated", max_iou=max_iou)
+        assert m.at_seam.tolist() == dropped.tolist()
+        assert m.rows.tolist() == kept.tolist()

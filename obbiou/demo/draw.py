@@ -16,10 +16,13 @@ from obbiou.evaluation.palette import PALETTE
 from obbiou.evaluation.pictures import draw_matches, legend_below
 from obbiou.evaluation.pictures import outlines as _outlines
 
-__all__ = ["draw_scene"]
+__all__ = ["draw_scene", "draw_tiles"]
 
 #: The harbour's water behind the boxes (scene backdrop only, not part of the palette).
 _WATER = "#eef3f8"
+#: Detector tiles: their outlines and the overlaps of neighbours (backdrop, not the palette).
+_TILE_EDGE = "#4d4d4d"
+_OVERLAP = "#e4e4e4"
 
 
 def draw_scene(
@@ -178,8 +181,165 @@ def draw_scene(
     return path
 
 
+def draw_tiles(
+    path: Any,
+    scenario: Any,
+    frame: str,
+    tiles: np.ndarray,
+    detections: np.ndarray,
+    status: Any,
+    truth: Any,
+    *,
+    max_iou: float = 0.5,
+) -> Path:
+    """Draw one frame with the tiles its detector saw and what merging did to their boxes.
+
+    Tile outlines dark grey, the overlaps of neighbouring tiles shaded; truths thin navy;
+    tile detections (moved into the frame) amber when merging kept them, magenta dashed
+    when the seam rule dropped them (cut by their tile's edge, seen whole by another
+    tile), light grey when suppressed as a copy of a better-scored box.
+
+    Parameters
+    ----------
+    path : path-like
+        The PNG to write.
+    scenario : obbiou.demo.scenarios.Scenario
+        A 2D scenario (the harbour survey).
+    frame : str
+        The frame drawn.
+    tiles : numpy.ndarray
+        ``(T, 4)`` axis tiles in frame coordinates.
+    detections : numpy.ndarray
+        The frame's tile detections in frame coordinates, in ``scenario.shape``.
+    status : sequence of str
+        Per detection: ``"kept"``, ``"at seam"`` or ``"suppressed"``.
+    truth : pandas.DataFrame
+        The frame's truths.
+    max_iou : float
+        The merge's suppression threshold (for the legend).
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
+    from matplotlib.collections import LineCollection
+    from matplotlib.figure import Figure
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch, Polygon, Rectangle
+    from matplotlib.transforms import offset_copy
+
+    path = Path(path)
+    status = np.asarray(status, dtype=object)
+    d_out, _ = _outlines(np.asarray(detections, dtype=np.float64), scenario.shape)
+    t_out, _ = _outlines(truth[list(scenario.box_columns)].to_numpy(np.float64), scenario.shape)
+    x0, y0, x1, y1 = scenario.extent
+    fig = Figure(figsize=(9.6, 9.6 * 0.86 + 2.4), dpi=110)
+    ax = fig.subplots()
+    ax.set_xlim(x0, x1)
+    ax.set_ylim(y1, y0) if scenario.y_down else ax.set_ylim(y0, y1)
+    ax.set_aspect("equal")
+    if scenario.name == "harbour" and frame in scenario.layout.get("quay", {}):
+        _draw_quay(ax, scenario, frame, Polygon)
+    # overlaps: the cells between the tiles' edges that two tiles or more cover, shaded once
+    xs, ys = np.unique(tiles[:, [0, 2]]), np.unique(tiles[:, [1, 3]])
+    for a0, a1 in zip(xs[:-1], xs[1:], strict=True):
+        for b0, b1 in zip(ys[:-1], ys[1:], strict=True):
+            mx, my = (a0 + a1) / 2, (b0 + b1) / 2
+            over_x = (tiles[:, 0] <= mx) & (mx <= tiles[:, 2])
+            if (over_x & (tiles[:, 1] <= my) & (my <= tiles[:, 3])).sum() >= 2:
+                ax.add_patch(
+                    Rectangle((a0, b0), a1 - a0, b1 - b0, facecolor=_OVERLAP, alpha=0.6, lw=0)
+                )
+    for k, (tx0, ty0, tx1, ty1) in enumerate(tiles):
+        ax.add_patch(
+            Rectangle(
+                (tx0, ty0), tx1 - tx0, ty1 - ty0, fill=False, ec=_TILE_EDGE, lw=1.3, ls=(0, (6, 3))
+            )
+        )
+        ax.annotate(
+            f"tile {k}",
+            (tx0, ty0),
+            xytext=(4, -11 if scenario.y_down else 4),
+            textcoords="offset points",
+            fontsize=8,
+            color=_TILE_EDGE,
+            bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.8},
+        )
+    navy, amber, magenta, grey = (
+        PALETTE[k] for k in ("truth", "matched", "false_positive", "ignored")
+    )
+    if len(t_out):
+        ax.add_collection(LineCollection(list(t_out), colors=navy, linewidths=0.5, alpha=0.5))
+    styles = {
+        "suppressed": {"colors": grey, "linewidths": 0.6, "alpha": 0.8},
+        "kept": {"colors": amber, "linewidths": 0.9},
+        "at seam": {"colors": magenta, "linewidths": 1.3, "linestyles": (0, (3, 1.5))},
+    }
+    for key, kw in styles.items():
+        mask = status == key
+        if mask.any():
+            ax.add_collection(LineCollection(list(d_out[mask]), **kw))
+    n = {k: int((status == k).sum()) for k in styles}
+    handles = [
+        Line2D([], [], color=_TILE_EDGE, lw=1.3, ls=(0, (6, 3)), label=f"tile ({len(tiles)})"),
+        Patch(facecolor=_OVERLAP, label="overlap of tiles"),
+        Line2D([], [], color=navy, lw=0.8, alpha=0.6, label=f"truth ({len(t_out)})"),
+        Line2D([], [], color=amber, lw=1.4, label=f"tile detection, kept ({n['kept']})"),
+        Line2D(
+            [],
+            [],
+            color=magenta,
+            lw=1.4,
+            ls=(0, (3, 1.5)),
+            label=f"cut at a tile edge, dropped ({n['at seam']})",
+        ),
+        Line2D(
+            [],
+            [],
+            color=grey,
+            lw=1.2,
+            label=f"copy, suppressed at IoU > {max_iou:g} ({n['suppressed']})",
+        ),
+    ]
+    ax.legend(
+        handles=handles,
+        loc="upper center",
+        bbox_to_anchor=(0.5, 0.0),
+        bbox_transform=offset_copy(ax.transAxes, fig=fig, y=-34, units="points"),
+        ncol=3,
+        fontsize=8.5,
+        frameon=False,
+        title="merging the detector's tiles into one set (obbiou.tiles.merge)",
+        title_fontsize=8.5,
+    )
+    ax.set_xlabel("x (pixels, 0.15 m per pixel)")
+    ax.set_ylabel("y (pixels, pointing down)")
+    ax.set_title(
+        f"{scenario.units}\nINVENTED DATA from a seeded simulation, not a real scene or detector",
+        fontsize=8.5,
+        color="#555555",
+        loc="left",
+        pad=5,
+    )
+    ax.annotate(
+        f"{scenario.title}: {frame}, the detector's tiles",
+        (0, 1),
+        xycoords="axes fraction",
+        xytext=(0, 32),
+        textcoords="offset points",
+        fontsize=12.5,
+        va="bottom",
+    )
+    ax.tick_params(labelsize=8)
+    fig.tight_layout()
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fig.savefig(path, bbox_inches="tight", pad_inches=0.25)
+    return path
+
+
 def _draw_quay(ax: Any, scenario: Any, frame: str, polygon: Any) -> None:
-    """Shade the water side of the harbour tile's quay edge (pixel frame)."""
+    """Shade the water side of the harbour mosaic's quay edge (pixel frame)."""
     from obbiou.demo.scenarios import HARBOUR_METRES_PER_PIXEL, HARBOUR_TILE
 
     offset, theta = scenario.layout["quay"][frame]

@@ -2,7 +2,9 @@
 
 For each of the two invented scenarios (harbour survey, warehouse lidar) it generates the
 ground truth and the raw output of two versions of a simulated detector, suppresses
-duplicates (:func:`obbiou.suppress`, per frame and label), evaluates the improved version
+duplicates (:func:`obbiou.suppress`, per frame and label; the harbour's detector sees each
+mosaic in overlapping tiles, whose detections :func:`obbiou.tiles.merge` turns into one
+set per mosaic), evaluates the improved version
 with bootstrap intervals (:func:`obbiou.evaluation.evaluate`), compares it with the baseline
 (:func:`obbiou.evaluation.compare`), and writes:
 
@@ -20,6 +22,8 @@ with bootstrap intervals (:func:`obbiou.evaluation.evaluate`), compares it with 
   warehouse is also evaluated the way lidar teams do: matched by ground-plane centre
   distance (0.5, 1, 2, 4 m), truths with fewer than 5 returns set aside, and the errors of
   the true positives.
+* ``harbour/tiles.png`` — that mosaic with the detector's tiles and what merging did to
+  each tile detection (kept, dropped at a seam, suppressed as a copy).
 
 All data is invented. Detection metrics do not establish that a vehicle or robot is safe.
 """
@@ -36,8 +40,13 @@ from typing import Any
 import numpy as np
 
 from obbiou.demo.scenarios import (
+    HARBOUR_DETECTOR_TILE,
+    HARBOUR_OVERLAP,
+    HARBOUR_TILE,
     INVENTED,
     Scenario,
+    detect_in_tiles,
+    detector_tiles,
     harbour_survey,
     simulate_detector,
     warehouse_returns,
@@ -66,6 +75,9 @@ SETTINGS: dict[str, dict[str, Any]] = {
         # and cranes more; buckets are named by their edges
         "size_buckets": [0, 2000, 40000, float("inf")],
         "range_buckets": None,
+        # the detector sees each 2048-px frame in overlapping tiles; obbiou.tiles.merge
+        # makes one set per frame (the seam rule, then suppression at max_iou per label)
+        "tiles": {"size": HARBOUR_DETECTOR_TILE, "overlap": HARBOUR_OVERLAP},
     },
     "warehouse": {
         "make": _warehouse,
@@ -111,6 +123,141 @@ def _suppress(scenario: Scenario, raw: Any, max_iou: float, progress: bool) -> A
     return raw.iloc[idx].reset_index(drop=True)
 
 
+def _detect(scenario: Scenario, cfg: dict[str, Any], version: str, seed: int, progress: bool):
+    """One detector version's raw output and the detections kept of it, with the tiling's
+    counts (None without tiles): the detector on whole frames then suppression per frame
+    and label; or, with ``cfg["tiles"]``, on overlapping tiles of each frame
+    (:func:`detect_in_tiles`) merged into one set per frame (:func:`_merge_tiles`)."""
+    if not cfg.get("tiles"):
+        raw = simulate_detector(scenario, version, seed=seed)
+        return raw, _suppress(scenario, raw, cfg["max_iou"], progress), None
+    raw = detect_in_tiles(scenario, version, seed=seed, **cfg["tiles"])
+    kept, counts = _merge_tiles(scenario, raw, cfg, progress)
+    return raw, kept, counts
+
+
+def _merge_frame(scenario: Scenario, raw: Any, rows: np.ndarray, tiles: np.ndarray, max_iou: float):
+    """:func:`obbiou.tiles.merge` of one frame's per-tile detections (``raw`` rows)."""
+    from obbiou.tiles import merge
+
+    cols = list(scenario.box_columns)
+    return merge(
+        raw[cols].to_numpy(np.float64)[rows],
+        raw["score"].to_numpy(np.float64)[rows],
+        raw["tile"].to_numpy(np.int64)[rows],
+        tiles,
+        labels=raw["label"].to_numpy(object)[rows],
+        max_iou=max_iou,
+    )
+
+
+def _merge_tiles(scenario: Scenario, raw: Any, cfg: dict[str, Any], progress: bool):
+    """Per-tile detections (tile coordinates) -> one set per frame in frame coordinates,
+    by :func:`obbiou.tiles.merge` frame by frame. Returns the kept rows (a DataFrame without
+    the ``tile`` column, in input order) and the counts: tiles, detections, dropped at
+    seams, kept."""
+    tiles = detector_tiles(scenario, **cfg["tiles"])
+    cols = list(scenario.box_columns)
+    frames = raw["frame"].to_numpy(object)
+    source, boxes, dropped = [], [], 0
+    groups = [np.flatnonzero(frames == f) for f in scenario.frames]
+    if progress:
+        from obbiou.progress import bar
+
+        groups = bar(groups, desc=f"{scenario.name}: merge tiles", unit="frame")
+    for rows in groups:
+        if len(rows) == 0:
+            continue
+        m = _merge_frame(scenario, raw, rows, tiles, cfg["max_iou"])
+        order = np.argsort(m.rows, kind="stable")  # back to input order
+        source.append(rows[m.rows[order]])
+        boxes.append(m.boxes[order])
+        dropped += len(m.at_seam)
+    idx = np.concatenate(source) if source else np.zeros(0, np.int64)
+    kept = raw.iloc[idx].drop(columns=["tile"]).reset_index(drop=True)
+    if len(idx):
+        kept[cols] = np.concatenate(boxes)
+    counts = {
+        "tiles_per_frame": len(tiles),
+        "tiles": len(tiles) * len(scenario.frames),
+        "detections": len(raw),
+        "dropped_at_seams": dropped,
+        "kept": len(kept),
+    }
+    return kept, counts
+
+
+def _tiling_text(cfg: dict[str, Any], tiling: dict[str, dict[str, int]]) -> str:
+    """One line: the tiles and, per version, per-tile detections -> merged."""
+    first = tiling[VERSIONS[0]]
+    size, overlap = cfg["tiles"]["size"], cfg["tiles"]["overlap"]
+    return (
+        f"detector on {first['tiles']} tiles ({first['tiles_per_frame']} per frame, {size} px, "
+        f"overlap {overlap} px); merged (tile detections -> kept, cut boxes dropped at seams): "
+        + ", ".join(
+            f"{v} {c['detections']} -> {c['kept']} ({c['dropped_at_seams']} at seams)"
+            for v, c in tiling.items()
+        )
+    )
+
+
+def _tiling_lines(cfg: dict[str, Any], tiling: dict[str, dict[str, int]]) -> list[str]:
+    """The report's lines on the tiled detector and the merge."""
+    first = tiling[VERSIONS[0]]
+    size, overlap = cfg["tiles"]["size"], cfg["tiles"]["overlap"]
+    lines = textwrap.wrap(
+        f"simulated detector on tiles: each frame cut into {first['tiles_per_frame']} tiles of "
+        f"{size} x {size} px overlapping by {overlap} px (obbiou.tiles.grid), "
+        f"{first['tiles']} tiles in all; objects cut by a tile edge come back as partial "
+        "boxes, objects in an overlap once from each tile. Merged into one set per frame by "
+        "obbiou.tiles.merge: boxes into the frame, cut boxes that another tile saw whole "
+        f"dropped at the seams, then suppression at IoU > {cfg['max_iou']:g} per label:",
+        88,
+    )
+    for v, c in tiling.items():
+        suppressed = c["detections"] - c["dropped_at_seams"] - c["kept"]
+        lines.append(
+            f"  {v}: {c['detections']} tile detections -> {c['kept']} kept "
+            f"({c['dropped_at_seams']} dropped at seams, {suppressed} suppressed)"
+        )
+    return lines
+
+
+def _tiling_doc(cfg: dict[str, Any], tiling: dict[str, dict[str, int]]) -> dict[str, Any]:
+    """The JSON report's entry on the tiled detector and the merge."""
+    return {
+        "tile_size": cfg["tiles"]["size"],
+        "overlap": cfg["tiles"]["overlap"],
+        "tiles_per_frame": tiling[VERSIONS[0]]["tiles_per_frame"],
+        "tiles": tiling[VERSIONS[0]]["tiles"],
+        "merge": {"max_iou": cfg["max_iou"], "per": "frame and label", "border": "default"},
+        "versions": {
+            v: {k: c[k] for k in ("detections", "dropped_at_seams", "kept")}
+            for v, c in tiling.items()
+        },
+    }
+
+
+def _tiles_picture(
+    path: Path, scenario: Scenario, cfg: dict[str, Any], frame: str, raw: Any, truth: Any
+) -> Path:
+    """The frame with its detector tiles and what merging did to each tile detection."""
+    from obbiou.demo.draw import draw_tiles
+    from obbiou.tiles import shift
+
+    tiles = detector_tiles(scenario, **cfg["tiles"])
+    rows = np.flatnonzero(raw["frame"].to_numpy(object) == frame)
+    m = _merge_frame(scenario, raw, rows, tiles, cfg["max_iou"])
+    status = np.full(len(rows), "suppressed", dtype=object)
+    status[m.at_seam] = "at seam"
+    status[m.rows] = "kept"
+    cols = list(scenario.box_columns)
+    local = raw[cols].to_numpy(np.float64)[rows]
+    tile = raw["tile"].to_numpy(np.int64)[rows]
+    image = shift(local, tiles[tile, 0], tiles[tile, 1])
+    return draw_tiles(path, scenario, frame, tiles, image, status, truth, max_iou=cfg["max_iou"])
+
+
 def _pick_frame(scenario: Scenario) -> str:
     """The frame drawn: the one with the most labels present, then the most non-ignore truths."""
     t = scenario.truth[~scenario.truth["ignore"]]
@@ -123,7 +270,7 @@ def _pick_frame(scenario: Scenario) -> str:
 
 
 def _window(scenario: Scenario, frame: str) -> tuple[float, float, float, float] | None:
-    """What the scene picture shows: a harbour tile whole; around the robot what it saw."""
+    """What the scene picture shows: a harbour mosaic whole; around the robot what it saw."""
     if scenario.name != "warehouse":
         return None
     t = scenario.truth[scenario.truth["frame"] == frame]
@@ -156,7 +303,7 @@ def run_demo(
         Seed of the invented data and the simulated detectors; the bootstrap uses it too.
         The same seed gives the same numbers.
     frames : int, optional
-        Frames per scenario (default: 12 harbour tiles, 40 warehouse sweeps). Small values
+        Frames per scenario (default: 12 harbour mosaics, 40 warehouse sweeps). Small values
         make a quick run.
     progress : bool
         Show progress bars (on stderr).
@@ -190,8 +337,10 @@ def run_demo(
             f"\n[{number}/2] {scenario.title}: {len(scenario.frames)} frames, "
             f"{len(scenario.truth)} truths ({int(scenario.truth['ignore'].sum())} ignore)"
         )
-        raw = {v: simulate_detector(scenario, v, seed=seed) for v in VERSIONS}
-        kept = {v: _suppress(scenario, raw[v], cfg["max_iou"], progress) for v in VERSIONS}
+        made = {v: _detect(scenario, cfg, v, seed, progress) for v in VERSIONS}
+        raw = {v: made[v][0] for v in VERSIONS}
+        kept = {v: made[v][1] for v in VERSIONS}
+        tiling = {v: made[v][2] for v in VERSIONS} if cfg.get("tiles") else None
         paths = scenario.write(folder, {**{f"raw_{v}": raw[v] for v in VERSIONS}, **kept})
         files.update({f"{name}/{k}": p for k, p in paths.items()})
 
@@ -223,8 +372,7 @@ def run_demo(
         )
         # Control: the improved detector against a rerun of itself (same error model, fresh
         # noise). Its interval should straddle zero: no real difference to find.
-        rerun = simulate_detector(scenario, "improved", seed=seed + _RERUN)
-        rerun = _suppress(scenario, rerun, cfg["max_iou"], False)
+        rerun = _detect(scenario, cfg, "improved", seed + _RERUN, False)[1]
         control = compare(
             scenario.truth, kept["improved"], rerun, resamples=resamples, seed=seed, **opts
         )
@@ -264,6 +412,10 @@ def run_demo(
             iou_text=f"matching at {what} ≥ {head:g} (improved detector, after suppression)",
             window=_window(scenario, frame),
         )
+        if tiling is not None:
+            files[f"{name}/tiles.png"] = _tiles_picture(
+                folder / "tiles.png", scenario, cfg, frame, raw["improved"], t
+            )
 
         raw_n = {v: len(raw[v]) for v in VERSIONS}
         kept_n = {v: len(kept[v]) for v in VERSIONS}
@@ -282,6 +434,7 @@ def run_demo(
             control=control,
             resamples=resamples,
             frame=frame,
+            tiling=tiling,
         )
         lines += section
         from obbiou.demo.results import results_section
@@ -293,10 +446,13 @@ def run_demo(
             lines += _lidar_section(lidar, len(returns))
         aps = ", ".join(f"{lab} {_fmt(ev.ap(lab, head))}" for lab in ev.labels)
         lo, hi = cmp.interval
-        say(
-            "      suppression (raw -> kept): "
-            + ", ".join(f"{v} {raw_n[v]} -> {kept_n[v]}" for v in VERSIONS)
-        )
+        if tiling is None:
+            say(
+                "      suppression (raw -> kept): "
+                + ", ".join(f"{v} {raw_n[v]} -> {kept_n[v]}" for v in VERSIONS)
+            )
+        else:
+            say("      " + _tiling_text(cfg, tiling))
         say(
             f"      improved detector: mean AP {_fmt(ev.mean_ap())} [{ci_all[0]:.3f}, "
             f"{ci_all[1]:.3f}] over IoU {cfg['iou']}; at {head:g}: {_fmt(ev.mean_ap(head))} "
@@ -327,6 +483,7 @@ def run_demo(
             "raw_detections": raw_n,
             "kept_detections": kept_n,
             "suppression": {"max_iou": cfg["max_iou"], "per": "frame and label", "decay": None},
+            **({} if tiling is None else {"tiling": _tiling_doc(cfg, tiling)}),
             "mean_ap": mean_ap[name],
             "interval": {
                 "level": 0.95,
@@ -412,6 +569,7 @@ def _section(
     control: Any,
     resamples: int,
     frame: str,
+    tiling: dict[str, dict[str, int]] | None = None,
 ) -> list[str]:
     """The report's text for one scenario."""
     from obbiou.evaluation import details_text
@@ -425,9 +583,15 @@ def _section(
         "-" * 88,
         f"frames: {len(scenario.frames)}; coordinates: {scenario.units}",
         f"truths: {counts} ({int(t.ignore.sum())} marked ignore)",
-        "simulated detector, raw -> after suppression "
-        f"(IoU > {cfg['max_iou']:g}, per frame and label):",
-        "  " + "; ".join(f"{v} {raw_n[v]} -> {kept_n[v]}" for v in VERSIONS),
+        *(
+            [
+                "simulated detector, raw -> after suppression "
+                f"(IoU > {cfg['max_iou']:g}, per frame and label):",
+                "  " + "; ".join(f"{v} {raw_n[v]} -> {kept_n[v]}" for v in VERSIONS),
+            ]
+            if tiling is None
+            else _tiling_lines(cfg, tiling)
+        ),
         "",
         "Evaluation of the improved detector:",
         ev.summary(),
@@ -457,7 +621,8 @@ def _section(
         "  (same error model: expect an interval across zero and a large p; with few frames or",
         "  rare labels the bootstrap over frames is rough and may say otherwise)",
         "",
-        f"Scene picture: {scenario.name}/scene.png shows frame {frame}.",
+        f"Scene picture: {scenario.name}/scene.png shows frame {frame}."
+        + ("" if tiling is None else f" {scenario.name}/tiles.png shows its detector tiles."),
     ]
     return lines
 
@@ -484,7 +649,9 @@ def _footer(out: Path, files: dict[str, Path]) -> list[str]:
         "--iou 0.5:0.95:0.05 --interval",
         f"  obbiou compare {out}/warehouse/truth.csv {out}/warehouse/baseline.csv "
         f"{out}/warehouse/improved.csv --iou 0.5",
-        f"  obbiou suppress {out}/harbour/raw_improved.csv --max-iou 0.5 --out kept.csv",
+        f"  obbiou suppress {out}/warehouse/raw_improved.csv --max-iou 0.3 --out kept.csv",
+        f"  obbiou stitch {out}/harbour/raw_improved.csv --image {HARBOUR_TILE} {HARBOUR_TILE} "
+        f"--size {HARBOUR_DETECTOR_TILE} --overlap {HARBOUR_OVERLAP} --out merged.csv",
         f"  obbiou evaluate {out}/warehouse/truth.csv {out}/warehouse/improved.csv "
         f"--distance 0.5,1,2,4 --points {out}/warehouse/returns.csv --min-points 5",
         "",

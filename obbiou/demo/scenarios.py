@@ -5,7 +5,7 @@ the way such scenes usually are (containers in rows along a quay, pallets in rac
 plausible object sizes, but they are not measurements of any real place, and the simulated
 detector is not any real model.
 
-* :func:`harbour_survey` — drone orthomosaic tiles of a port, in the tile's **pixel frame**
+* :func:`harbour_survey` — drone orthomosaics of a port, in the mosaic's **pixel frame**
   (x to the right, **y down**, 0.15 m per pixel). Labels ``vessel``, ``container`` and
   ``crane`` as ``rotated`` boxes ``cx, cy, width, height, angle``: vessels moored along the
   quay, containers in stacked rows in the yard, ship-to-shore cranes on the quay edge.
@@ -23,7 +23,7 @@ Angles are in radians, counter-clockwise from +x towards +y (in the harbour's y-
 frame the same number turns a box clockwise on screen). Truth tables have the columns
 ``frame, label, <box columns>, ignore``; detection tables ``frame, label, score,
 <box columns>`` (docs/design.md §6). A truth is marked ``ignore`` when it cannot be judged fairly:
-cut by the tile edge (harbour) or too far from the sensor for a reliable annotation
+cut by the mosaic's edge (harbour) or too far from the sensor for a reliable annotation
 (warehouse).
 
 Examples
@@ -47,6 +47,7 @@ True
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from dataclasses import replace as dataclass_replace
 from pathlib import Path
 from typing import Any
 
@@ -65,16 +66,24 @@ __all__ = [
     "warehouse_lidar",
     "warehouse_returns",
     "simulate_detector",
+    "detect_in_tiles",
+    "visible_box",
     "scenarios",
 ]
 
 #: The note every output of the demo carries.
 INVENTED = "invented data: generated from a seed, not a measurement of any real scene or detector"
 
-#: Ground sampling distance of the invented harbour tiles (metres per pixel).
+#: Ground sampling distance of the invented harbour mosaics (metres per pixel).
 HARBOUR_METRES_PER_PIXEL = 0.15
-#: Side of one harbour tile in pixels (2048 px = 307 m).
+#: Side of one harbour frame, an orthomosaic, in pixels (2048 px = 307 m).
 HARBOUR_TILE = 2048
+#: The simulated detector's input on a harbour mosaic (larger than it): square tiles
+#: of this side in pixels, overlapping by :data:`HARBOUR_OVERLAP`, from
+#: :func:`obbiou.tiles.grid`: 2 x 2 per 2048-pixel frame, larger than the longest vessel
+#: (150 m = 1000 px). Invented settings.
+HARBOUR_DETECTOR_TILE = 1152
+HARBOUR_OVERLAP = 256
 #: Beyond this range (metres) a warehouse object is marked ``ignore`` (too few lidar returns).
 WAREHOUSE_IGNORE_RANGE = 24.0
 #: Beyond this range (metres) a warehouse object is not in the sweep at all.
@@ -113,7 +122,7 @@ class Scenario:
     extent: tuple[float, float, float, float]
     y_down: bool
     labels: tuple[str, ...]
-    #: Scenario-specific extras for drawing (e.g. the quay line of each harbour tile).
+    #: Scenario-specific extras for drawing (e.g. the quay line of each harbour mosaic).
     layout: dict[str, Any] = field(default_factory=dict, compare=False, repr=False)
 
     @property
@@ -183,9 +192,9 @@ def _visible_fraction(boxes: np.ndarray, extent: tuple[float, float, float, floa
 
 
 def _harbour_tile(rng: np.random.Generator) -> tuple[list[tuple[str, list[float]]], dict]:
-    """One invented tile: objects in metres about the tile centre, and the quay line."""
+    """One invented mosaic: objects in metres about its centre, and the quay line."""
     m = HARBOUR_METRES_PER_PIXEL
-    half = HARBOUR_TILE * m / 2  # half the tile side in metres
+    half = HARBOUR_TILE * m / 2  # half the mosaic's side in metres
     theta = rng.uniform(-np.pi / 2, np.pi / 2)  # direction of the quay edge
     along = np.array([np.cos(theta), np.sin(theta)])
     across = np.array([-np.sin(theta), np.cos(theta)])  # points from the quay to the water
@@ -253,13 +262,14 @@ def _harbour_tile(rng: np.random.Generator) -> tuple[list[tuple[str, list[float]
 def harbour_survey(frames: int = 6, *, seed: int = 0) -> Scenario:
     """Invented drone survey of a port: vessels, containers and cranes as rotated boxes.
 
-    Each frame is one orthomosaic tile of 2048 × 2048 pixels at 0.15 m per pixel, in the
-    tile's pixel frame (x right, y down, origin at the top-left corner). The quay edge crosses
-    each tile at a random angle; vessels (tugs 24–34 m, barges 40–70 m, feeders 90–150 m)
+    Each frame is one orthomosaic of 2048 × 2048 pixels at 0.15 m per pixel, in its pixel
+    frame (x right, y down, origin at the top-left corner). The quay edge crosses each
+    mosaic at a random angle; vessels (tugs 24–34 m, barges 40–70 m, feeders 90–150 m)
     lie moored along it, a few under way further out; ship-to-shore cranes (55–75 m reach
     × 24–30 m gauge) stand on the quay edge across it; containers (6.06 or 12.19 m ×
-    2.44 m) stand in stacked rows in the yard behind the apron. Objects cut by the tile
+    2.44 m) stand in stacked rows in the yard behind the apron. Objects cut by the mosaic's
     edge (under 60 % visible) are marked ``ignore``; those under 25 % visible are left out.
+    The demo's detector sees each mosaic in overlapping tiles (:func:`detect_in_tiles`).
     All of it is **invented**.
 
     Parameters
@@ -279,7 +289,7 @@ def harbour_survey(frames: int = 6, *, seed: int = 0) -> Scenario:
     --------
     >>> s = harbour_survey(frames=1, seed=3)
     >>> s.frames
-    ['tile-000']
+    ['mosaic-000']
     >>> bool((s.truth.width >= s.truth.height).all())  # own x axis along the long side
     True
     """
@@ -290,7 +300,7 @@ def harbour_survey(frames: int = 6, *, seed: int = 0) -> Scenario:
     extent = (0.0, 0.0, float(HARBOUR_TILE), float(HARBOUR_TILE))
     rows: list[dict] = []
     quays = {}
-    names = [f"tile-{i:03d}" for i in range(frames)]
+    names = [f"mosaic-{i:03d}" for i in range(frames)]
     for name in names:
         objects, info = _harbour_tile(rng)
         quays[name] = info["quay"]
@@ -298,7 +308,7 @@ def harbour_survey(frames: int = 6, *, seed: int = 0) -> Scenario:
             continue
         labels = [o[0] for o in objects]
         b = np.array([o[1] for o in objects], dtype=np.float64)
-        # metres about the tile centre -> pixels from the top-left corner, y down. The angle is
+        # metres about the mosaic's centre -> pixels from the top-left corner, y down. The angle is
         # taken to be in the pixel frame as is (the scene is invented; no mirror to undo).
         b[:, 0] = b[:, 0] / m + HARBOUR_TILE / 2
         b[:, 1] = b[:, 1] / m + HARBOUR_TILE / 2
@@ -321,7 +331,7 @@ def harbour_survey(frames: int = 6, *, seed: int = 0) -> Scenario:
         name="harbour",
         title="Harbour survey (invented)",
         shape="rotated",
-        units="pixels (tile frame, x right, y down; 0.15 m per pixel)",
+        units="pixels (mosaic frame, x right, y down; 0.15 m per pixel)",
         truth=truth,
         extent=extent,
         y_down=True,
@@ -870,6 +880,239 @@ def simulate_detector(
         }
     )
     return _table(table.to_dict("records"), scenario.shape, truth=False)
+
+
+# --------------------------------------------------------------------------------------------
+# The harbour detector on overlapping tiles of each frame
+# --------------------------------------------------------------------------------------------
+
+
+def visible_box(boxes: np.ndarray, tile: Any) -> np.ndarray:
+    """The part of each rotated box inside an axis tile, boxed along the box's own axes.
+
+    What a detector that sees only the tile reports for an object cut by the tile's edge:
+    a rectangle at the object's angle around the visible part. The visible part's corners
+    are the box corners inside the tile, the tile corners inside the box and the crossings
+    of the box's edges with the tile's edges; the result is their extent in the box's own
+    frame. A box wholly inside comes back unchanged (up to rounding); a box outside the tile
+    gives a zero-size box at its centre.
+
+    Parameters
+    ----------
+    boxes : numpy.ndarray
+        ``(N, 5)`` rotated ``cx, cy, width, height, angle`` (radians).
+    tile : array_like
+        ``x_min, y_min, x_max, y_max``, in the boxes' coordinates.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(N, 5)`` rotated boxes.
+
+    Examples
+    --------
+    A 40 x 10 box across the right edge of the tile [0, 0, 100, 100]: 20 px are inside.
+
+    >>> visible_box(np.array([[100.0, 50, 40, 10, 0]]), [0, 0, 100, 100]).tolist()
+    [[90.0, 50.0, 20.0, 10.0, 0.0]]
+    >>> visible_box(np.zeros((0, 5)), [0, 0, 1, 1]).shape
+    (0, 5)
+    """
+    from obbiou.boxes import corners
+
+    b = np.asarray(boxes, dtype=np.float64).reshape(-1, 5)
+    n = len(b)
+    if n == 0:
+        return b.copy()
+    x0, y0, x1, y1 = (float(v) for v in tile)
+    p = corners(b, shape="rotated")  # (N, 4, 2)
+    q = np.roll(p, -1, axis=1)  # each edge runs p -> q
+    points = [p]
+    valid = [(p[..., 0] >= x0) & (p[..., 0] <= x1) & (p[..., 1] >= y0) & (p[..., 1] <= y1)]
+    c, s = np.cos(b[:, 4])[:, None], np.sin(b[:, 4])[:, None]
+    hw, hh = b[:, 2:3] / 2, b[:, 3:4] / 2
+    tc = np.array([[x0, y0], [x1, y0], [x1, y1], [x0, y1]])
+    du = tc[None, :, 0] - b[:, 0:1]
+    dv = tc[None, :, 1] - b[:, 1:2]
+    u, v = c * du + s * dv, -s * du + c * dv
+    points.append(np.broadcast_to(tc, (n, 4, 2)))
+    valid.append((np.abs(u) <= hw) & (np.abs(v) <= hh))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for axis, lo, hi in ((0, y0, y1), (1, x0, x1)):  # edges x = const, then y = const
+            for line in (x0, x1) if axis == 0 else (y0, y1):
+                t = (line - p[..., axis]) / (q[..., axis] - p[..., axis])
+                other = p[..., 1 - axis] + t * (q[..., 1 - axis] - p[..., 1 - axis])
+                cross = np.empty_like(p)
+                cross[..., axis] = line
+                cross[..., 1 - axis] = other
+                points.append(cross)
+                valid.append((t >= 0) & (t <= 1) & (other >= lo) & (other <= hi))
+    ok = np.concatenate(valid, axis=1)
+    # points that are not corners of the visible part (crossings of parallel lines are
+    # NaN) count as the centre: masked out below, but kept finite
+    pts = np.where(ok[..., None], np.concatenate(points, axis=1), b[:, None, :2])
+    du = pts[..., 0] - b[:, 0:1]
+    dv = pts[..., 1] - b[:, 1:2]
+    u = np.clip(c * du + s * dv, -hw, hw)
+    v = np.clip(-s * du + c * dv, -hh, hh)
+    u0 = np.where(ok, u, np.inf).min(axis=1)
+    u1 = np.where(ok, u, -np.inf).max(axis=1)
+    v0 = np.where(ok, v, np.inf).min(axis=1)
+    v1 = np.where(ok, v, -np.inf).max(axis=1)
+    seen = ok.any(axis=1)
+    u0, u1 = np.where(seen, u0, 0.0), np.where(seen, u1, 0.0)
+    v0, v1 = np.where(seen, v0, 0.0), np.where(seen, v1, 0.0)
+    um, vm = (u0 + u1) / 2, (v0 + v1) / 2
+    c, s = c[:, 0], s[:, 0]
+    return np.column_stack(
+        [b[:, 0] + c * um - s * vm, b[:, 1] + s * um + c * vm, u1 - u0, v1 - v0, b[:, 4]]
+    )
+
+
+def detector_tiles(scenario: Scenario, size: float, overlap: float) -> np.ndarray:
+    """The tiles the detector sees of each frame: :func:`obbiou.tiles.grid` over the
+    frame's extent, in frame coordinates ``(T, 4)``."""
+    from obbiou.tiles import grid
+
+    x0, y0, x1, y1 = scenario.extent
+    tiles = grid(x1 - x0, y1 - y0, size=size, overlap=overlap)
+    return tiles + np.array([x0, y0, x0, y0])
+
+
+def detect_in_tiles(
+    scenario: Scenario,
+    version: str | DetectorModel = "baseline",
+    *,
+    size: float = HARBOUR_DETECTOR_TILE,
+    overlap: float = HARBOUR_OVERLAP,
+    seed: int = 0,
+) -> pd.DataFrame:
+    """Raw detections of the simulated detector run on overlapping tiles of each frame.
+
+    Each frame is cut into the tiles of :func:`detector_tiles`; the detector sees each tile
+    on its own. An object in the overlap of two or four tiles is detected (or missed) in
+    each of them independently; an object cut by a tile's edge is seen as its visible part
+    (:func:`visible_box`), marked hard (as an ``ignore`` truth of the tile) when less than
+    60 % of it is inside (the share of a 7 x 7 grid of points on the box, as
+    :func:`harbour_survey` judges the mosaic's edge), so it is missed and misplaced more
+    often; an object none of whose 49 points is inside goes unseen by that tile. Then
+    :func:`simulate_detector`'s error model applies tile by tile, with false alarms scaled
+    to the tile's share of the frame's area; a box that noise pushed wholly off its tile is
+    not reported. The boxes are in the coordinates of their tile
+    (origin at its top-left corner); :func:`obbiou.tiles.merge` turns them into one set per
+    frame. All of it is **invented**.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        A scenario of 2D ``rotated`` boxes (the harbour survey).
+    version : str or DetectorModel
+        As in :func:`simulate_detector`.
+    size, overlap : float
+        Tile side and least overlap of neighbouring tiles (:func:`obbiou.tiles.grid`).
+    seed : int
+        Seed of the random generator.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``frame, tile, label, score, cx, cy, width, height, angle``: ``frame`` the frame
+        (the large image), ``tile`` the index into :func:`detector_tiles`, boxes in tile
+        coordinates; sorted by frame and tile.
+
+    Examples
+    --------
+    >>> s = harbour_survey(frames=1, seed=2)
+    >>> d = detect_in_tiles(s, "improved", seed=2)
+    >>> list(d.columns)
+    ['frame', 'tile', 'label', 'score', 'cx', 'cy', 'width', 'height', 'angle']
+    >>> sorted(d.tile.unique().tolist())  # 2 x 2 tiles of 1152 px on a 2048 px frame
+    [0, 1, 2, 3]
+    """
+    from obbiou.boxes import envelope
+
+    if scenario.shape != "rotated":
+        raise InvalidInput(
+            "scenario", f"the tiled detector takes rotated boxes, got {scenario.shape!r}"
+        )
+    model = DETECTORS[version] if isinstance(version, str) and version in DETECTORS else version
+    if isinstance(model, str):
+        raise InvalidInput(
+            "version", f"unknown detector {model!r}; expected 'baseline' or 'improved'"
+        )
+    tiles = detector_tiles(scenario, size, overlap)
+    x0, y0, x1, y1 = scenario.extent
+    share = float(size * size) / float((x1 - x0) * (y1 - y0))
+    view = _tile_view(scenario, tiles)
+    cols = list(scenario.box_columns)
+    scaled = dataclass_replace(model, false_alarms=model.false_alarms * share)
+    det = simulate_detector(view, scaled, seed=seed)
+    # a detector reports nothing wholly outside its input: noise can push a small partial
+    # box off its tile
+    env = envelope(det[cols].to_numpy(np.float64), shape="rotated") if len(det) else None
+    if env is not None:
+        det = det[(env[:, 2] > 0) & (env[:, 0] < size) & (env[:, 3] > 0) & (env[:, 1] < size)]
+        det = det.reset_index(drop=True)
+    where = view.layout["where"]
+    frame_of = [where[f] for f in det["frame"]]
+    det.insert(1, "tile", np.array([k for _, k in frame_of], dtype=np.int64))
+    det["frame"] = np.array([f for f, _ in frame_of], dtype=object)
+    return det
+
+
+def _tile_view(scenario: Scenario, tiles: np.ndarray) -> Scenario:
+    """The scenario as the detector sees it: one frame per tile (``"<frame>/<tile>"``), the
+    visible part of each truth reaching into the tile in tile coordinates, ``ignore`` for
+    truths ignored already or less than 60 % inside the tile (:func:`_visible_fraction`)."""
+    from obbiou.boxes import envelope
+
+    cols = list(scenario.box_columns)
+    truth = scenario.truth
+    boxes = truth[cols].to_numpy(np.float64) if len(truth) else np.zeros((0, 5))
+    frames = truth["frame"].to_numpy(object)
+    ignore = truth["ignore"].to_numpy(bool)
+    env = envelope(boxes, shape="rotated") if len(boxes) else np.zeros((0, 4))
+    names, where = [], {}
+    rows, parts, hard, tile_frame = [], [], [], []
+    for frame in scenario.frames:
+        mine = np.flatnonzero(frames == frame)
+        for k, rect in enumerate(tiles):
+            name = f"{frame}/{k}"
+            names.append(name)
+            where[name] = (frame, k)
+            x0, y0, x1, y1 = rect
+            e = env[mine]
+            near = mine[(e[:, 0] < x1) & (e[:, 2] > x0) & (e[:, 1] < y1) & (e[:, 3] > y0)]
+            seen = _visible_fraction(boxes[near], (x0, y0, x1, y1))
+            near, seen = near[seen > 0], seen[seen > 0]
+            part = visible_box(boxes[near], rect)
+            part[:, :2] -= rect[:2]
+            rows.append(near)
+            parts.append(part)
+            hard.append(ignore[near] | (seen < 0.6))
+            tile_frame.append(np.full(len(near), name, dtype=object))
+    rows = np.concatenate(rows) if rows else np.zeros(0, np.int64)
+    part = np.concatenate(parts) if parts else np.zeros((0, 5))
+    table = pd.DataFrame(
+        {
+            "frame": np.concatenate(tile_frame) if tile_frame else np.zeros(0, object),
+            "label": truth["label"].to_numpy(object)[rows],
+            **{c: part[:, j] for j, c in enumerate(cols)},
+            "ignore": np.concatenate(hard) if hard else np.zeros(0, bool),
+        }
+    )
+    size = float(tiles[0, 2] - tiles[0, 0]) if len(tiles) else 0.0
+    return Scenario(
+        name=scenario.name,
+        title=scenario.title,
+        shape=scenario.shape,
+        units="pixels (detector tile frame)",
+        truth=_table(table, scenario.shape, truth=True),
+        extent=(0.0, 0.0, size, size),
+        y_down=scenario.y_down,
+        labels=scenario.labels,
+        layout={"frames": names, "where": where},
+    )
 
 
 def scenarios(*, frames: int | None = None, seed: int = 0) -> list[Scenario]:

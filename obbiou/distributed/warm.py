@@ -46,7 +46,7 @@ def warm_workers(
     --------
     >>> times = warm_workers()  # an in-process cluster for the call
     >>> sorted(next(iter(times.values())))
-    ['box tools', 'evaluation', 'fusion', 'overlap', 'points', 'scene']
+    ['box tools', 'evaluation', 'fusion', 'overlap', 'points', 'scene', 'tiles']
     """
     out: dict[str, dict[str, float]] = {}
     with connect(client=client, scheduler=scheduler, workers=workers) as cl:

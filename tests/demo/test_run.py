@@ -14,6 +14,7 @@ from tests.cli.test_commands import run
 
 PNGS = (
     "harbour/scene.png",
+    "harbour/tiles.png",
     "harbour/pr_curves.png",
     "warehouse/scene.png",
     "warehouse/pr_curves.png",
@@ -131,3 +132,88 @@ def test_demo_lidar_evaluation(demo):
     ).to_dict()
     assert lidar["mean_ap"] == pytest.approx(want["mean_ap"], abs=1e-12)
     assert lidar["points"] == want["points"]
+
+
+def test_demo_harbour_detector_runs_on_tiles_and_merges(demo):
+    from obbiou.demo.run import SETTINGS
+
+    out, proc = demo
+    doc = json.loads((out / "report.json").read_text())["scenarios"]["harbour"]
+    tiling = doc["tiling"]
+    size, overlap = SETTINGS["harbour"]["tiles"]["size"], SETTINGS["harbour"]["tiles"]["overlap"]
+    assert (tiling["tile_size"], tiling["overlap"]) == (size, overlap)
+    # hand-worked: 2048 px in tiles of 1152 every 896 px: 2 x 2 tiles per mosaic, 2 mosaics
+    assert tiling["tiles_per_frame"] == 4 and tiling["tiles"] == 8
+    raw = pd.read_csv(out / "harbour" / "raw_improved.csv")
+    kept = pd.read_csv(out / "harbour" / "improved.csv")
+    assert "tile" in raw.columns and "tile" not in kept.columns
+    assert set(raw.tile) == {0, 1, 2, 3}
+    for version, counts in tiling["versions"].items():
+        assert counts["detections"] == len(pd.read_csv(out / "harbour" / f"raw_{version}.csv"))
+        assert counts["kept"] == doc["kept_detections"][version]
+        assert counts["dropped_at_seams"] > 0
+        assert counts["detections"] - counts["dropped_at_seams"] > counts["kept"]  # suppressed
+    report = " ".join((out / "report.txt").read_text().split())  # lines wrapped at 88
+    assert "4 tiles of 1152 x 1152 px overlapping by 256 px" in report
+    assert "tile detections ->" in report and "harbour/tiles.png" in report
+    assert "per frame" in proc.stdout and "at seams" in proc.stdout
+    assert "Warning" not in proc.stderr  # no tile detection lies wholly off its tile
+
+
+def test_demo_merged_harbour_has_no_cross_seam_duplicates(demo):
+    # Every pair of kept same-label boxes of a mosaic overlaps with IoU <= max_iou (shapely
+    # areas, outside reference), while the tile detections had pairs above it.
+    import shapely
+
+    from obbiou.boxes import corners
+    from obbiou.demo.run import SETTINGS
+    from obbiou.demo.scenarios import detector_tiles, harbour_survey
+
+    out, _ = demo
+    max_iou = SETTINGS["harbour"]["max_iou"]
+    cols = ["cx", "cy", "width", "height", "angle"]
+
+    def worst(table):
+        top = 0.0
+        for _, group in table.groupby(["frame", "label"]):
+            g = shapely.polygons(corners(group[cols].to_numpy(), shape="rotated"))
+            i, j = shapely.STRtree(g).query(g, predicate="intersects")
+            i, j = i[i < j], j[i < j]
+            inter = shapely.area(shapely.intersection(g[i], g[j]))
+            iou = inter / (shapely.area(g[i]) + shapely.area(g[j]) - inter)
+            top = max(top, float(iou.max(initial=0.0)))
+        return top
+
+    assert worst(pd.read_csv(out / "harbour" / "improved.csv")) <= max_iou
+    raw = pd.read_csv(out / "harbour" / "raw_improved.csv")
+    tiles = detector_tiles(harbour_survey(frames=0), **SETTINGS["harbour"]["tiles"])
+    raw[["cx", "cy"]] += tiles[raw.tile.to_numpy(), :2]  # into the mosaic
+    assert worst(raw) > max_iou  # the copies of objects in the overlaps were there
+
+
+def test_demo_merge_agrees_with_the_stitch_command(demo, tmp_path):
+    # The report's suggested command line gives the same kept detections.
+    out, _ = demo
+    target = tmp_path / "merged.csv"
+    proc = run(
+        "stitch",
+        str(out / "harbour" / "raw_improved.csv"),
+        "--image",
+        "2048",
+        "2048",
+        "--size",
+        "1152",
+        "--overlap",
+        "256",
+        "--out",
+        str(target),
+        "-q",
+    )
+    assert proc.returncode == 0, proc.stderr
+    assert "obbiou stitch" in (out / "report.txt").read_text()
+    merged = pd.read_csv(target).sort_values("source_row").reset_index(drop=True)
+    kept = pd.read_csv(out / "harbour" / "improved.csv")
+    assert len(merged) == len(kept)
+    cols = ["cx", "cy", "width", "height", "angle", "score"]
+    np.testing.assert_allclose(merged[cols].to_numpy(), kept[cols].to_numpy(), rtol=1e-12)
+    assert (merged.label == kept.label).all() and (merged.frame == kept.frame).all()

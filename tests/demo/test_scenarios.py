@@ -16,11 +16,16 @@ import shapely
 from obbiou.boxes import corners, footprint
 from obbiou.demo.scenarios import (
     DETECTORS,
+    HARBOUR_DETECTOR_TILE,
     HARBOUR_METRES_PER_PIXEL,
+    HARBOUR_OVERLAP,
     WAREHOUSE_IGNORE_RANGE,
     WAREHOUSE_MAX_RANGE,
+    detect_in_tiles,
+    detector_tiles,
     harbour_survey,
     simulate_detector,
+    visible_box,
     warehouse_lidar,
 )
 from obbiou.shapes import check
@@ -223,3 +228,119 @@ def test_warehouse_returns_fall_on_the_objects():
         near += c[r < 8].tolist()
         far += c[r > 20].tolist()
     assert np.median(near) >= 20 and np.median(far) <= 10
+
+
+# ------------------------------------------------------------------ the detector on tiles
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_visible_box_against_shapely(seed):
+    # shapely: the part of each box inside the tile (intersection), turned into the box's
+    # own frame, has the extent of the visible box; a box inside comes back as it was.
+    import shapely.affinity
+
+    rng = np.random.default_rng(seed)
+    n = 200
+    boxes = np.column_stack(
+        [
+            rng.uniform(-50, 350, (n, 2)),
+            rng.uniform(5, 120, n),
+            rng.uniform(5, 60, n),
+            rng.uniform(-np.pi, np.pi, n),
+        ]
+    )
+    tile = (0.0, 0.0, 300.0, 300.0)
+    part = visible_box(boxes, tile)
+    polys = shapely.polygons(corners(boxes, shape="rotated"))
+    clipped = shapely.intersection(polys, shapely.box(*tile))
+    for b, p, clip in zip(boxes, part, clipped, strict=True):
+        if clip.area == 0:
+            continue
+        np.testing.assert_allclose(p[4], b[4])  # the object's angle
+        turned = shapely.affinity.rotate(clip, -b[4], origin=(b[0], b[1]), use_radians=True)
+        x0, y0, x1, y1 = turned.bounds
+        c, s = np.cos(b[4]), np.sin(b[4])
+        u = c * (p[0] - b[0]) + s * (p[1] - b[1])
+        v = -s * (p[0] - b[0]) + c * (p[1] - b[1])
+        np.testing.assert_allclose(
+            [u - p[2] / 2, v - p[3] / 2, u + p[2] / 2, v + p[3] / 2],
+            [x0 - b[0], y0 - b[1], x1 - b[0], y1 - b[1]],
+            atol=1e-7,
+        )
+    inside = shapely.within(polys, shapely.box(*tile))
+    assert inside.sum() > 50 and (~inside).sum() > 50
+    np.testing.assert_allclose(part[inside], boxes[inside], atol=1e-9)
+
+
+def test_detect_in_tiles_partial_boxes_and_copies():
+    # A perfect detector on 2 x 2 tiles of each mosaic: every truth comes back once from
+    # each tile that sees some of it, whole (shapely IoU 1 with the truth moved into the
+    # tile) where the tile holds it whole, as its visible part where the tile cuts it.
+    s = harbour_survey(frames=2, seed=4)
+    perfect = dataclasses.replace(
+        DETECTORS["improved"],
+        name="perfect",
+        miss=0,
+        position=0,
+        size=0,
+        angle=0,
+        flip=0,
+        duplicate=0,
+        false_alarms=0,
+        confusion=0,
+    )
+    tiles = detector_tiles(s, HARBOUR_DETECTOR_TILE, HARBOUR_OVERLAP)
+    assert tiles.tolist() == [
+        [0, 0, 1152, 1152],
+        [896, 0, 2048, 1152],
+        [0, 896, 1152, 2048],
+        [896, 896, 2048, 2048],
+    ]  # hand-worked: 1152 - 256 = 896, and 896 + 1152 = 2048
+    d = detect_in_tiles(s, perfect, seed=0)
+    assert list(d.columns) == ["frame", "tile", "label", "score", *s.box_columns]
+    check(d[list(s.box_columns)].to_numpy(), "rotated")
+    # back in the mosaic, each detection's shapely IoU with its nearest truth of the frame
+    image = d[list(s.box_columns)].to_numpy().copy()
+    image[:, :2] += tiles[d.tile.to_numpy(), :2]
+    whole = cut = 0
+    owner, tiles_of = [], []
+    for frame in s.frames:
+        mine = (d.frame == frame).to_numpy()
+        t = s.truth[s.truth.frame == frame]
+        tp = _polygons(t, "rotated")
+        dp = shapely.polygons(corners(image[mine], shape="rotated"))
+        for k, poly in zip(np.flatnonzero(mine), dp, strict=True):
+            inter = shapely.area(shapely.intersection(poly, tp))
+            j = int(np.argmax(inter))
+            owner.append(t.index[j])
+            tiles_of.append((t.index[j], int(d.tile.iloc[k])))
+            rect = shapely.box(*tiles[d.tile.iloc[k]])
+            seen = shapely.intersection(tp[j], rect).area / tp[j].area
+            iou = inter[j] / (poly.area + tp[j].area - inter[j])
+            if seen > 1 - 1e-9:
+                assert iou > 1 - 1e-9
+                whole += 1
+            else:  # boxes the visible part, lies within the truth, and is smaller
+                part = shapely.intersection(tp[j], rect)
+                assert part.difference(poly).area < 1e-6 * part.area
+                assert poly.difference(tp[j]).area < 1e-6 * poly.area
+                assert poly.area <= tp[j].area * (1 + 1e-9)  # a cut corner may leave it whole
+                cut += 1
+    assert whole > 100 and cut > 10
+    # objects in the overlaps come back from two or four tiles, once from each
+    copies = np.bincount(owner)
+    assert copies.max() == 4 and (copies >= 2).sum() > 20 and (copies == 0).sum() == 0
+    assert sorted(tiles_of) == sorted(set(tiles_of))
+
+
+def test_detect_in_tiles_is_seeded_and_in_tile_coordinates():
+    s = harbour_survey(frames=2, seed=5)
+    a = detect_in_tiles(s, "baseline", seed=1)
+    assert a.equals(detect_in_tiles(s, "baseline", seed=1))
+    assert not a.equals(detect_in_tiles(s, "baseline", seed=2))
+    assert set(a.frame) <= set(s.frames) and set(a.tile) <= {0, 1, 2, 3}
+    # centres lie near their tile (noise may push a box a little past its edge)
+    assert a.cx.between(-100, HARBOUR_DETECTOR_TILE + 100).all()
+    assert a.cy.between(-100, HARBOUR_DETECTOR_TILE + 100).all()
+    with pytest.raises(ValueError, match="rotated"):
+        detect_in_tiles(warehouse_lidar(frames=1), "baseline")
