@@ -120,7 +120,7 @@ def configure(p: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     from obbiou.evaluation import evaluate
     from obbiou.evaluation.details import details_paths, write_details
-    from obbiou.evaluation.text import details_text, interval_text
+    from obbiou.evaluation.text import causes_text, interval_text
 
     rows_path = args.details
     if rows_path is not None:
@@ -152,7 +152,7 @@ def run(args: argparse.Namespace) -> int:
         print(interval_text(result, **interval))
     if args.causes:
         print()
-        print(details_text(result))
+        print(causes_text(result))
     operating = None
     if args.at_score is not None:
         from obbiou.evaluation.operating import as_dict, operating_text

@@ -572,7 +572,7 @@ def _section(
     tiling: dict[str, dict[str, int]] | None = None,
 ) -> list[str]:
     """The report's text for one scenario."""
-    from obbiou.evaluation import details_text
+    from obbiou.evaluation import causes_text
 
     head = cfg["headline"]
     t = scenario.truth
@@ -602,7 +602,7 @@ def _section(
     ]
     for lab, (lo, hi) in ci_labels.items():
         lines.append(f"    AP {lab} at {head:g}: {_fmt(ev.ap(lab, head))} [{lo:.4f}, {hi:.4f}]")
-    lines += ["", details_text(ev, head)]
+    lines += ["", causes_text(ev, head)]
     for by, group in ev.buckets.items():
         lines.append(f"AP at IoU {head:g} by {by}:")
         for bucket, sub in group.items():

@@ -23,7 +23,7 @@ from obbiou.evaluation.matching import MatchRecords, Thresholds, match_frames, p
 from obbiou.evaluation.pictures import draw_frame
 from obbiou.evaluation.protocol import evaluate
 from obbiou.evaluation.result import Counts, Evaluation, reduce_records
-from obbiou.evaluation.text import details_text
+from obbiou.evaluation.text import causes_text
 from obbiou.tables import Table, read_table
 
 __all__ = [
@@ -34,7 +34,7 @@ __all__ = [
     "Table",
     "Thresholds",
     "compare",
-    "details_text",
+    "causes_text",
     "draw_frame",
     "evaluate",
     "match_frames",

@@ -15,7 +15,7 @@ __all__ = [
     "rule_text",
     "summary_text",
     "tp_errors_text",
-    "details_text",
+    "causes_text",
     "interval_text",
     "buckets_text",
     "comparison_text",
@@ -154,7 +154,7 @@ def tp_errors_text(evaluation: Any) -> str:
     return "\n".join(lines)
 
 
-def details_text(evaluation: Any, iou: float | None = None) -> str:
+def causes_text(evaluation: Any, iou: float | None = None) -> str:
     """Causes of false positives and misses per label, and the orientation error, as text.
 
     Each label is reported at ``iou`` or, by default, at its own lowest threshold (labels
