@@ -67,6 +67,7 @@ __all__ = [
     "frame_groups",
     "Points",
     "read_points",
+    "points_columns_differ",
 ]
 
 #: File suffixes of tables and the format each names; every reader and writer uses this list.
@@ -1043,8 +1044,9 @@ def read_points(source: Any) -> Points:
     Parameters
     ----------
     source : str, os.PathLike, pandas.DataFrame, mapping or Points
-        As for :func:`read_table` (CSV, Parquet, JSON Lines); a :class:`Points` is returned
-        as it is. Other columns are allowed and left out.
+        As for :func:`read_table` (CSV, Parquet, JSON Lines, or a folder of such files read
+        in the order of :func:`table_files`, all with ``z`` or all without); a
+        :class:`Points` is returned as it is. Other columns are allowed and left out.
 
     Returns
     -------
@@ -1070,6 +1072,8 @@ def read_points(source: Any) -> Points:
     """
     if isinstance(source, Points):
         return source
+    if isinstance(source, (str, os.PathLike)) and os.path.isdir(source):
+        return _read_points_folder(os.fspath(source))
     cols, where, n = _load(source)
     for col in ("frame", "x", "y"):
         if col not in cols:
@@ -1086,3 +1090,34 @@ def read_points(source: Any) -> Points:
     except InvalidInput as exc:
         raise where.error(exc.row, "frame", exc.reason) from None
     return Points(frame, xyz, where.source)
+
+
+def _read_points_folder(folder: str) -> Points:
+    """The points of a folder's files (:func:`table_files` order) as one table."""
+    files = table_files(folder)
+    if not files:
+        reason = "folder holds no table files (.csv, .parquet, .pq, .jsonl, .ndjson)"
+        raise InvalidTable(folder, reason)
+    parts = [read_points(path) for path in files]
+    first = parts[0]
+    for path, part in zip(files, parts, strict=True):
+        if part.xyz.shape[1] != first.xyz.shape[1]:
+            raise InvalidTable(str(path), points_columns_differ(part, first))
+    frames = comparable_frame_ids([p.frame for p in parts])
+    return Points(np.concatenate(frames), np.concatenate([p.xyz for p in parts]), folder)
+
+
+def points_columns_differ(part: Points, first: Points) -> str:
+    """Why two pieces of one points table cannot be joined: one has ``z``, the other not.
+
+    Examples
+    --------
+    >>> a = Points(np.zeros(1, np.int64), np.zeros((1, 3)), "a.csv")
+    >>> points_columns_differ(Points(np.zeros(0, np.int64), np.zeros((0, 2)), "b.csv"), a)
+    'columns frame, x, y while a.csv has frame, x, y, z; every file of a folder needs the same'
+    """
+    names = {2: "frame, x, y", 3: "frame, x, y, z"}
+    return (
+        f"columns {names[part.xyz.shape[1]]} while {first.source} has "
+        f"{names[first.xyz.shape[1]]}; every file of a folder needs the same"
+    )

@@ -28,7 +28,7 @@ import numpy as np
 from obbiou.errors import InvalidInput, LikelyMistake
 from obbiou.tables import Table, comparable_frame_ids, read_points
 
-__all__ = ["count_truth_points", "set_aside"]
+__all__ = ["check_min_points", "count_truth_points", "no_common_frame", "set_aside"]
 
 
 def count_truth_points(truth: Table, points: Any) -> np.ndarray:
@@ -85,13 +85,7 @@ def count_truth_points(truth: Table, points: Any) -> np.ndarray:
     nframes = int(codes.max()) + 1
     common = np.intersect1d(tcode, pcode)
     if not len(common):
-        warnings.warn(
-            LikelyMistake(
-                f"the points ({pts.source}) share no frame id with the truth: every truth "
-                "holds 0 points"
-            ),
-            stacklevel=3,
-        )
+        warnings.warn(no_common_frame(pts.source), stacklevel=3)
         return out
     porder = np.argsort(pcode, kind="stable")
     pptr = np.r_[0, np.cumsum(np.bincount(pcode, minlength=nframes))]
@@ -105,6 +99,43 @@ def count_truth_points(truth: Table, points: Any) -> np.ndarray:
         counts[t0:t1] = count_in_boxes(xyz[p0:p1], boxes[t0:t1], shape=shape)
     out[torder] = counts
     return out
+
+
+def no_common_frame(source: str) -> LikelyMistake:
+    """The warning for points that share no frame id with the truth (every truth then holds
+    0 points): one wording in process and on a cluster.
+
+    Examples
+    --------
+    >>> str(no_common_frame("sweeps.parquet"))
+    'the points (sweeps.parquet) share no frame id with the truth: every truth holds 0 points'
+    """
+    return LikelyMistake(
+        f"the points ({source}) share no frame id with the truth: every truth holds 0 points"
+    )
+
+
+def check_min_points(min_points: Any) -> int:
+    """``min_points`` as an int, checked: a whole number >= 1.
+
+    Examples
+    --------
+    >>> check_min_points(5), check_min_points(3.0)
+    (5, 3)
+    >>> check_min_points(0)
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: min_points: expected a whole number >= 1, got 0
+    """
+    try:
+        k = int(min_points)
+    except (TypeError, ValueError):
+        raise InvalidInput(
+            "min_points", f"expected a whole number >= 1, got {min_points!r}"
+        ) from None
+    if k != min_points or k < 1:
+        raise InvalidInput("min_points", f"expected a whole number >= 1, got {min_points!r}")
+    return k
 
 
 def set_aside(truth: Table, counts: np.ndarray, min_points: Any) -> tuple[Table, np.ndarray]:
@@ -121,14 +152,7 @@ def set_aside(truth: Table, counts: np.ndarray, min_points: Any) -> tuple[Table,
     >>> t2.ignore.tolist(), aside.tolist()
     ([True, False, True], [True, False, False])
     """
-    try:
-        k = int(min_points)
-    except (TypeError, ValueError):
-        raise InvalidInput(
-            "min_points", f"expected a whole number >= 1, got {min_points!r}"
-        ) from None
-    if k != min_points or k < 1:
-        raise InvalidInput("min_points", f"expected a whole number >= 1, got {min_points!r}")
+    k = check_min_points(min_points)
     few = np.asarray(counts) < k
     aside = few & ~truth.ignore
     return dataclasses.replace(truth, ignore=truth.ignore | few), aside
