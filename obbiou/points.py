@@ -516,54 +516,61 @@ def _grids(
     """
     starts = bfirst[:-1]
     nb = np.diff(bfirst)
-    x0 = np.minimum.reduceat(ext[:, 0], starts)
-    y0 = np.minimum.reduceat(ext[:, 1], starts)
-    x1 = np.maximum.reduceat(ext[:, 2], starts)
-    y1 = np.maximum.reduceat(ext[:, 3], starts)
-    zlo = np.minimum.reduceat(z0, starts)
-    zhi = np.maximum.reduceat(z1, starts)
-    frame = np.repeat(np.arange(len(nb)), nb)
+    nf = len(nb)
+    grid_f = np.empty((nf, 8))
+    for col, (values, reduce) in enumerate(
+        [
+            (ext[:, 0], np.minimum),
+            (ext[:, 1], np.minimum),
+            (ext[:, 2], np.maximum),
+            (ext[:, 3], np.maximum),
+            (z0, np.minimum),
+            (z1, np.maximum),
+        ]
+    ):
+        grid_f[:, col] = reduce.reduceat(values, starts)
+    x0, y0, x1, y1 = grid_f[:, 0], grid_f[:, 1], grid_f[:, 2], grid_f[:, 3]
+    frame = np.repeat(np.arange(nf), nb)
     sizes = np.maximum(ext[:, 2] - ext[:, 0], ext[:, 3] - ext[:, 1])
-    ranked = sizes[np.lexsort((sizes, frame))]
+    by_size = np.argsort(sizes)  # then by frame, stably: the sizes of each frame in order
+    ranked = sizes[by_size[np.argsort(frame[by_size], kind="stable")]]
     mid = starts + nb // 2
-    median = np.where(nb % 2 == 1, ranked[mid], (ranked[mid - (nb % 2 == 0)] + ranked[mid]) / 2)
+    even = nb % 2 == 0
+    median = (ranked[mid - even] + ranked[mid]) / 2  # the middle one twice for odd counts
     span = np.maximum(x1 - x0, y1 - y0)
     cap = np.maximum(1, np.minimum(_MAX_CELLS, 2 * np.asarray(n_points, np.int64)))
     # No more cells than cap along the larger side, and a cell side whose inverse is finite
     # (boxes of zero or subnormal size).
     side = np.maximum(np.maximum(_CELL_FACTOR * median, span / np.sqrt(cap)), 1e-300)
-    side = np.where((span == 0.0) & (side == 1e-300), 1.0, side)
+    side[(span == 0.0) & (side == 1e-300)] = 1.0
     # Widen the cells of the frames with too many by 1.5 until they fit; boxes spread wider
-    # than float64 spans (~1.8e308) keep one cell.
-    nx, ny = np.ones(len(nb), np.int64), np.ones(len(nb), np.int64)
-    invx, invy = np.zeros(len(nb)), np.zeros(len(nb))
-    todo = np.ones(len(nb), bool)
+    # than float64 spans (~1.8e308) keep one cell (inverse sizes 0).
+    grid_i = np.ones((nf, 2), np.int64)
+    grid_f[:, 6:] = 0.0
+    k = np.arange(nf)
     with np.errstate(over="ignore"):
-        while True:
-            todo &= np.isfinite(side * cap)
-            k = np.flatnonzero(todo)
-            if not len(k):
-                break
-            iy = 1.0 / side[k]
-            ix = _CELL_ASPECT / side[k]
-            cx = np.minimum((x1[k] - x0[k]) * ix, 2.0**40).astype(np.int64) + 1
-            cy = np.minimum((y1[k] - y0[k]) * iy, 2.0**40).astype(np.int64) + 1
-            fits = cx.astype(np.float64) * cy <= cap[k]
-            done = k[fits]
-            nx[done], ny[done], invx[done], invy[done] = cx[fits], cy[fits], ix[fits], iy[fits]
-            todo[done] = False
-            side[k[~fits]] *= 1.5
-    grid_f = np.column_stack([x0, y0, x1, y1, zlo, zhi, invx, invy])
-    grid_i = np.column_stack([nx, ny])
-    with np.errstate(all="ignore"):  # inf * 0 on a one-cell grid: NaN, taken as cell 0
-        tx = np.nan_to_num((ext[:, 0] - x0[frame]) * invx[frame])
-        ty = np.nan_to_num((ext[:, 1] - y0[frame]) * invy[frame])
-    ix = np.clip(tx, 0, nx[frame] - 1).astype(np.int64)
-    iy = np.clip(ty, 0, ny[frame] - 1).astype(np.int64)
-    # one integer key per box, increasing with the frame: a stable integer sort (radix)
-    base = np.r_[0, np.cumsum(nx * ny)[:-1]]
-    order = np.argsort(base[frame] + iy * nx[frame] + ix, kind="stable")
-    return grid_f, grid_i, order
+        while len(k):
+            k = k[np.isfinite(side[k] * cap[k])]
+            inv = np.empty((len(k), 2))
+            inv[:, 1] = 1.0 / side[k]
+            inv[:, 0] = _CELL_ASPECT / side[k]
+            cells = np.minimum((grid_f[k, 2:4] - grid_f[k, 0:2]) * inv, 2.0**40).astype(np.int64)
+            cells += 1
+            fits = cells[:, 0].astype(np.float64) * cells[:, 1] <= cap[k]
+            grid_i[k[fits]] = cells[fits]
+            grid_f[k[fits], 6:] = inv[fits]
+            k = k[~fits]
+            side[k] *= 1.5
+    # the boxes of each frame by the grid cell of their lower-left corner, as the kernels
+    # find cells (floor, clamped to the grid; NaN from inf * 0 on a one-cell grid: cell 0)
+    with np.errstate(all="ignore"):
+        t = (ext[:, :2] - grid_f[frame, :2]) * grid_f[frame, 6:]
+    t[~(t > 0.0)] = 0.0
+    cell = np.minimum(t, grid_i[frame] - 1).astype(np.int64)
+    per_frame = grid_i[:, 0] * grid_i[:, 1]
+    base = np.cumsum(per_frame) - per_frame  # one key per box, increasing with the frame
+    key = base[frame] + cell[:, 1] * grid_i[frame, 0] + cell[:, 0]
+    return grid_f, grid_i, np.argsort(key, kind="stable")
 
 
 def _threads(n: int) -> int:

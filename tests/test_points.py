@@ -690,3 +690,29 @@ def test_frames_edge_cases_and_bad_input():
     mixed = np.array([1, "1", 2], dtype=object)
     with pytest.raises(InvalidInput, match="do not compare"):
         count_in_boxes(pts, [box], point_frames=mixed, box_frames=np.array([1], dtype=object))
+
+
+def test_each_frame_gets_the_grid_of_a_call_of_its_own():
+    # the grid rule vectorised over frames: frame f's grid and box order are those of a
+    # one-frame call on its boxes alone (frames of 1-40 boxes, a frame of zero-size boxes,
+    # a frame spread over +-1e100, a frame without points); at most 2 cells per point
+    from obbiou.shapes import read_boxes
+
+    rng = np.random.default_rng(9)
+    nb = np.array([1, 2, 40, 7, 3, 1])
+    boxes = np.column_stack([rng.uniform(0, 50, (nb.sum(), 2)), rng.uniform(0, 4, (nb.sum(), 2)),
+                             rng.uniform(-3, 3, nb.sum())])  # fmt: skip
+    boxes[nb[:3].sum() : nb[:4].sum(), 2:4] = 0.0  # frame 3: boxes of zero size
+    boxes[nb[:4].sum(), :2] = -1e100  # frame 4 spans about 2e100
+    boxes[nb[:4].sum() + 1, :2] = 1e100
+    kinds, params, verts, ext, z0, z1 = P._prepare(read_boxes(boxes, None, name="boxes"))
+    bfirst = np.r_[0, np.cumsum(nb)]
+    npts = np.array([10, 0, 5000, 3, 100, 10**7])
+    grid_f, grid_i, order = P._grids(ext, z0, z1, bfirst, npts)
+    assert (grid_i.prod(axis=1) <= np.maximum(1, 2 * npts)).all() and grid_i[2].prod() > 100
+    for f in range(len(nb)):
+        sel = slice(bfirst[f], bfirst[f + 1])
+        gf, gi, o = P._grids(ext[sel], z0[sel], z1[sel], np.array([0, nb[f]]), npts[f : f + 1])
+        np.testing.assert_array_equal(grid_f[f], gf[0])
+        np.testing.assert_array_equal(grid_i[f], gi[0])
+        np.testing.assert_array_equal(order[sel], o + bfirst[f])
