@@ -67,7 +67,6 @@ __all__ = [
     "frame_groups",
     "Points",
     "read_points",
-    "points_columns_differ",
 ]
 
 #: File suffixes of tables and the format each names; every reader and writer uses this list.
@@ -1102,22 +1101,11 @@ def _read_points_folder(folder: str) -> Points:
     first = parts[0]
     for path, part in zip(files, parts, strict=True):
         if part.xyz.shape[1] != first.xyz.shape[1]:
-            raise InvalidTable(str(path), points_columns_differ(part, first))
+            names = {2: "frame, x, y", 3: "frame, x, y, z"}
+            reason = (
+                f"columns {names[part.xyz.shape[1]]} while {first.source} has "
+                f"{names[first.xyz.shape[1]]}; every file of a folder needs the same"
+            )
+            raise InvalidTable(str(path), reason)
     frames = comparable_frame_ids([p.frame for p in parts])
     return Points(np.concatenate(frames), np.concatenate([p.xyz for p in parts]), folder)
-
-
-def points_columns_differ(part: Points, first: Points) -> str:
-    """Why two pieces of one points table cannot be joined: one has ``z``, the other not.
-
-    Examples
-    --------
-    >>> a = Points(np.zeros(1, np.int64), np.zeros((1, 3)), "a.csv")
-    >>> points_columns_differ(Points(np.zeros(0, np.int64), np.zeros((0, 2)), "b.csv"), a)
-    'columns frame, x, y while a.csv has frame, x, y, z; every file of a folder needs the same'
-    """
-    names = {2: "frame, x, y", 3: "frame, x, y, z"}
-    return (
-        f"columns {names[part.xyz.shape[1]]} while {first.source} has "
-        f"{names[first.xyz.shape[1]]}; every file of a folder needs the same"
-    )
