@@ -209,12 +209,19 @@ def count_in_boxes(
         counts = _scan(pts, b, fill=False)[0]
     else:
         pcode, bcode = _frame_codes(point_frames, box_frames, len(pts), len(b), b.single)
-        counts = _count_by_frame(pts, b, pcode, bcode)
+        counts = _scan_by_frame(pts, b, pcode, bcode, fill=False)[0]
     return counts[0] if b.single else counts
 
 
-def points_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> Inside:
-    """Which points lie inside which boxes.
+def points_in_boxes(
+    points: Any,
+    boxes: Any,
+    *,
+    shape: str | None = None,
+    point_frames: Any = None,
+    box_frames: Any = None,
+) -> Inside:
+    """Which points lie inside which boxes (of each box's own frame, when frames are given).
 
     Parameters
     ----------
@@ -227,6 +234,9 @@ def points_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> Ins
         ``length`` along the heading and ``cz`` the centre.
     shape : str, optional
         The box layout; inferred from the trailing dimensions when ``None``.
+    point_frames, box_frames : array_like, optional
+        Given together: the frame id of each point and of each box, as for
+        :func:`count_in_boxes`; a box then holds only points of its own frame.
 
     Returns
     -------
@@ -260,10 +270,20 @@ def points_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> Ins
     1
     >>> len(points_in_boxes(np.zeros((0, 2)), shelves))
     0
+
+    The same shelves in two scans of the floor: the point on the shared line belongs to
+    scan 1, where only the first shelf is.
+
+    >>> hits = points_in_boxes([[1.0, 0.0], [2.5, 0.5], [7.0, 0.0]], shelves,
+    ...                        point_frames=[1, 2, 2], box_frames=[1, 2])
+    >>> hits.point, hits.box
+    (array([0, 1]), array([0, 1]))
     """
     pts, b = _read(points, boxes, shape)
-    _, inside = _scan(pts, b, fill=True)
-    return inside
+    if point_frames is None and box_frames is None:
+        return _scan(pts, b, fill=True)[1]
+    pcode, bcode = _frame_codes(point_frames, box_frames, len(pts), len(b), b.single)
+    return _scan_by_frame(pts, b, pcode, bcode, fill=True)[1]
 
 
 def warmup() -> None:
@@ -275,7 +295,7 @@ def warmup() -> None:
     >>> warmup()
     """
     points_in_boxes([[0.5, 0.5, 0.5]], [[0.0, 0.0, 0.0, 1.0, 1.0, 1.0, 0.3]])
-    count_in_boxes([[0.5, 0.5]], [[0.0, 0.0, 1.0, 1.0]], point_frames=[0], box_frames=[0])
+    points_in_boxes([[0.5, 0.5]], [[0.0, 0.0, 1.0, 1.0]], point_frames=[0], box_frames=[0])
 
 
 # ------------------------------------------------------------------------------ input
@@ -388,23 +408,28 @@ def _frame_codes(
     return codes[:n], codes[n:]
 
 
-def _count_by_frame(pts: np.ndarray, b: Boxes, pcode: np.ndarray, bcode: np.ndarray) -> np.ndarray:
-    """Counts of each box over the points of its own frame: one kernel call over the frames
-    that hold both points and boxes, each with a grid of its own (:func:`_grids`)."""
+def _scan_by_frame(
+    pts: np.ndarray, b: Boxes, pcode: np.ndarray, bcode: np.ndarray, *, fill: bool
+) -> tuple[np.ndarray, Inside | None]:
+    """Counts of each box over the points of its own frame, and with ``fill`` the (point,
+    box) pairs: one kernel call over the frames that hold both points and boxes (two with
+    ``fill``: count, then fill), each frame with a grid of its own (:func:`_grids`)."""
     from obbiou._kernels import points as K
     from obbiou._kernels import threads as T
 
     n, m = pts.shape[0], len(b)
     out = np.zeros(m, np.int64)
+    empty = np.zeros(0, np.int64)
+    none = Inside(empty, empty, n, m)
     if n == 0 or m == 0:
-        return out
+        return out, none
     frames = int(max(pcode.max(), bcode.max())) + 1
     pcount = np.bincount(pcode, minlength=frames)
     bcount = np.bincount(bcode, minlength=frames)
     pfirst = np.r_[0, np.cumsum(pcount)]
     live = (pcount > 0) & (bcount > 0)
     if not live.any():
-        return out
+        return out, none
     # the boxes of frames with points, by frame (stable), and each frame's rows among them
     rows = np.flatnonzero(live[bcode])
     rows = rows[np.argsort(bcode[rows], kind="stable")]
@@ -416,9 +441,9 @@ def _count_by_frame(pts: np.ndarray, b: Boxes, pcode: np.ndarray, bcode: np.ndar
     grid_f, grid_i, box_order = _grids(ext, z0[rows], z1[rows], bfirst, pcount[live])
     f = np.flatnonzero(live)
     spans = np.column_stack([pfirst[f], pfirst[f + 1], bfirst[:-1], bfirst[1:]])
-    counts = np.zeros(len(rows), np.int64)
-    args = (
-        np.ascontiguousarray(pts[np.argsort(pcode, kind="stable")]),
+    porder = np.argsort(pcode, kind="stable")
+    index = (
+        np.ascontiguousarray(pts[porder]),
         spans,
         box_order,
         kinds[rows],
@@ -427,11 +452,24 @@ def _count_by_frame(pts: np.ndarray, b: Boxes, pcode: np.ndarray, bcode: np.ndar
         ext,
         grid_f,
         grid_i,
-        counts,
     )
-    T.run(K.count_frames_range, args, len(f), serial=_threads(n) == 1)
+    serial = _threads(n) == 1
+    counts = np.zeros(len(rows), np.int64)
+    T.run(K.scan_frames_range, (*index, empty, empty, counts), len(f), serial=serial)
     out[rows] = counts
-    return out
+    if not fill:
+        return out, None
+    offsets = np.r_[0, np.cumsum(counts)]
+    local = np.empty(int(offsets[-1]), np.int64)
+    if len(local):
+        again = np.zeros(len(rows), np.int64)
+        T.run(K.scan_frames_range, (*index, offsets, local, again), len(f), serial=serial)
+    # rows within each frame's span -> input rows; then by (box, point): the points of a box
+    # ascend within its frame's span, and so in the input (a stable sort by frame)
+    start = np.repeat(np.repeat(spans[:, 0], np.diff(bfirst)), counts)
+    box = np.repeat(rows, counts)
+    by_box = np.argsort(box, kind="stable")
+    return out, Inside(porder[local + start][by_box], box[by_box], n, m)
 
 
 # ------------------------------------------------------------------------- preparation

@@ -539,6 +539,34 @@ def per_frame(pts, boxes, pf, bf, shape=None):
     return out
 
 
+def pairs_per_frame(pts, boxes, pf, bf, shape=None):
+    """The same for the (point, box) pairs: one plain call per frame, rows mapped back to the
+    whole input, sorted by (box, point)."""
+    point, box = [], []
+    for f in np.unique(bf):
+        prow, brow = np.flatnonzero(pf == f), np.flatnonzero(bf == f)
+        hits = points_in_boxes(pts[prow], boxes[brow], shape=shape)
+        point.append(prow[hits.point])
+        box.append(brow[hits.box])
+    point, box = np.concatenate(point), np.concatenate(box)
+    order = np.lexsort((point, box))
+    return point[order], box[order]
+
+
+def check_frames(pts, boxes, pf, bf, shape=None):
+    """Counts and pairs by frame equal one call per frame, exactly; returns the counts."""
+    want = per_frame(pts, boxes, pf, bf, shape=shape)
+    got = count_in_boxes(pts, boxes, shape=shape, point_frames=pf, box_frames=bf)
+    np.testing.assert_array_equal(got, want)
+    hits = points_in_boxes(pts, boxes, shape=shape, point_frames=pf, box_frames=bf)
+    point, box = pairs_per_frame(pts, boxes, pf, bf, shape=shape)
+    np.testing.assert_array_equal(hits.point, point)
+    np.testing.assert_array_equal(hits.box, box)
+    np.testing.assert_array_equal(hits.counts(), want)
+    assert (hits.n_points, hits.n_boxes) == (len(pts), len(boxes))
+    return want
+
+
 def face_scene(shape, seed, frames=6):
     """Boxes of one layout in a few frames, and points on their faces, edges and corners
     (hand-worked lattices for bounds and quarter turns, the corners of turned boxes, one
@@ -593,10 +621,8 @@ def face_scene(shape, seed, frames=6):
 @pytest.mark.parametrize("seed", [0, 1])
 def test_frames_equal_one_call_per_frame_on_faces_edges_corners(shape, seed):
     pts, boxes, pf, bf = face_scene(shape, seed)
-    want = per_frame(pts, boxes, pf, bf, shape=shape)
+    want = check_frames(pts, boxes, pf, bf, shape=shape)  # exactly, points on faces included
     assert want.sum() > 50  # points of the boxes' own frames on and in them
-    got = count_in_boxes(pts, boxes, shape=shape, point_frames=pf, box_frames=bf)
-    np.testing.assert_array_equal(got, want)  # exactly, points on faces included
     # the frames as text, in another order: the same counts
     names = np.array([f"sweep-{f:02d}" for f in range(6)], dtype=object)
     again = count_in_boxes(
@@ -620,6 +646,10 @@ def test_frames_against_brute_force(seed):
     member[hits.point, hits.box] = True
     assert not ((member != inside) & decided).any()
     np.testing.assert_array_equal(got, (member & same).sum(axis=0))
+    framed = points_in_boxes(pts, boxes, point_frames=pf, box_frames=bf)
+    pairs = np.zeros(inside.shape, bool)
+    pairs[framed.point, framed.box] = True
+    np.testing.assert_array_equal(pairs, member & same)
     assert ((inside & same).sum(axis=0)[decided.all(axis=0)] == got[decided.all(axis=0)]).all()
 
 
@@ -627,11 +657,10 @@ def test_frames_parallel_and_serial_paths_agree(monkeypatch):
     pts, boxes = scene(60_000, 600, 8, spread=60.0)
     rng = np.random.default_rng(8)
     pf, bf = rng.integers(0, 40, len(pts)), rng.integers(0, 40, len(boxes))
-    want = per_frame(pts, boxes, pf, bf)
     monkeypatch.setattr(P, "_SERIAL_BELOW", 10_000)
-    np.testing.assert_array_equal(count_in_boxes(pts, boxes, point_frames=pf, box_frames=bf), want)
+    check_frames(pts, boxes, pf, bf)
     monkeypatch.setattr(P, "_SERIAL_BELOW", 10**9)
-    np.testing.assert_array_equal(count_in_boxes(pts, boxes, point_frames=pf, box_frames=bf), want)
+    check_frames(pts, boxes, pf, bf)
 
 
 @SETTINGS
@@ -653,8 +682,7 @@ def test_property_frames_equal_one_call_per_frame(boxes, seed, frames):
         ]
     )
     pf, bf = rng.integers(0, frames, len(pts)), rng.integers(0, frames, len(boxes))
-    got = count_in_boxes(pts, boxes, point_frames=pf, box_frames=bf)
-    np.testing.assert_array_equal(got, per_frame(pts, boxes, pf, bf))
+    check_frames(pts, boxes, pf, bf)
 
 
 def test_frames_edge_cases_and_bad_input():
@@ -667,6 +695,13 @@ def test_frames_edge_cases_and_bad_input():
     assert count_in_boxes(np.zeros((0, 2)), [box], point_frames=[], box_frames=[4]).tolist() == [0]
     none = count_in_boxes(pts, np.zeros((0, 4)), point_frames=[1, 1, 2], box_frames=[])
     assert none.shape == (0,)
+    hits = points_in_boxes(pts, [box, box], point_frames=[1, 1, 2], box_frames=[3, 1])
+    assert (hits.point.tolist(), hits.box.tolist()) == ([0, 1], [1, 1])
+    assert hits.counts().tolist() == [0, 2] and hits.point.dtype == np.int64
+    hits = points_in_boxes(pts, [box], point_frames=[1, 1, 2], box_frames=[5])  # no frame met
+    assert len(hits) == 0 and (hits.n_points, hits.n_boxes) == (3, 1)
+    with pytest.raises(InvalidInput, match="go together"):
+        points_in_boxes(pts, [box], box_frames=[1])
     # ids far apart (not dense), and unsigned ids beyond int64
     far = count_in_boxes(pts, [box, box], point_frames=[10**15, 0, 0], box_frames=[10**15, 0])
     assert far.tolist() == [1, 1]

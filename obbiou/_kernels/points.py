@@ -18,7 +18,7 @@ extents alike. Each step is monotone in ``x``, so a point whose x lies in a box'
 a point that the inside test accepts.
 
 Many frames in one call (lidar sweeps: each box counts the points of its own frame only):
-:func:`count_frames_range` runs the same sort and scan frame by frame, each frame with a
+:func:`scan_frames_range` runs the same sort and scan frame by frame, each frame with a
 grid of its own over its own rows, inside one kernel call; nothing is shifted, so the counts
 are those of one call per frame, exactly.
 
@@ -382,23 +382,25 @@ def scan_range(
 
 
 @njit(cache=True, nogil=True)
-def count_frames_range(
-    pts, spans, boxes, kinds, params, verts, ext, grid_f, grid_i, counts, lo, hi
+def scan_frames_range(
+    pts, spans, boxes, kinds, params, verts, ext, grid_f, grid_i, offsets, out, counts, lo, hi
 ):
     """Kernel body over frames lo..hi-1 (run on spans by :func:`obbiou._kernels.threads.run`;
     spans write disjoint outputs): the points of frame f, rows ``spans[f, 0]:spans[f, 1]``
-    of ``pts``, counted into the boxes ``boxes[spans[f, 2]:spans[f, 3]]`` (rows of the box
-    arrays, in the frame's grid order), with the frame's grid ``grid_f[f]``, ``grid_i[f]``.
+    of ``pts``, against the boxes ``boxes[spans[f, 2]:spans[f, 3]]`` (rows of the box
+    arrays, in the frame's grid order), with the frame's grid ``grid_f[f]``, ``grid_i[f]``:
+    counts into ``counts`` and, when ``out`` is not empty, each box's points (rows within
+    its frame's span, ascending) into ``out[offsets[b]:]``, as :func:`scan_range` does.
 
     Each frame gets the point sort and the scan of a call of its own (the same compiled
-    :func:`sort_points` and :func:`scan_range`), so the counts are exactly those of one call
-    per frame, without a Python call per frame and with no coordinate shifted.
+    :func:`sort_points` and :func:`scan_range`), so the results are exactly those of one
+    call per frame, without a Python call per frame and with no coordinate shifted.
     """
-    empty = np.zeros(0, np.int64)
+    fill = out.shape[0] > 0
     for f in range(lo, hi):
         gf = grid_f[f]
         gi = grid_i[f]
-        first, order, sp = sort_points(pts[spans[f, 0] : spans[f, 1]], gf, gi, np.bool_(False))
+        first, order, sp = sort_points(pts[spans[f, 0] : spans[f, 1]], gf, gi, fill)
         scan_range(
             boxes,
             kinds,
@@ -410,8 +412,8 @@ def count_frames_range(
             first,
             order,
             sp,
-            empty,
-            empty,
+            offsets,
+            out,
             counts,
             spans[f, 2],
             spans[f, 3],
