@@ -103,8 +103,15 @@ class Inside:
         return np.bincount(self.box, minlength=self.n_boxes).astype(np.int64)
 
 
-def count_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> np.ndarray:
-    """Count the points inside each box.
+def count_in_boxes(
+    points: Any,
+    boxes: Any,
+    *,
+    shape: str | None = None,
+    point_frames: Any = None,
+    box_frames: Any = None,
+) -> np.ndarray:
+    """Count the points inside each box (of each box's own frame, when frames are given).
 
     Parameters
     ----------
@@ -117,6 +124,11 @@ def count_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> np.n
         ``length`` along the heading and ``cz`` the centre.
     shape : str, optional
         The box layout; inferred from the trailing dimensions when ``None``.
+    point_frames, box_frames : array_like, optional
+        Given together: the frame id of each point ``(N,)`` and of each box ``(M,)`` (or
+        one id for a single box), integers or text. Each box then counts only the points of
+        its own frame, as one call per frame would, in one call: many sweeps of a lidar
+        run at once. Ids are equal when their values are (``7`` is not ``"7"``).
 
     Returns
     -------
@@ -128,14 +140,17 @@ def count_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> np.n
     ------
     InvalidInput
         For points that are not finite or not ``(N, 2)`` / ``(N, 3)`` (naming the first bad
-        row), or whose dimension does not fit the box layout.
+        row), or whose dimension does not fit the box layout; for frame ids that are not
+        one per point / per box, not given together, or of kinds that do not compare.
     ValueError
         For invalid boxes (see :func:`obbiou.boxes.check`).
 
     Notes
     -----
     The exactness rule (faces of axis-aligned and quarter-turned boxes are exact; other
-    angles to rounding) is in the module docstring of :mod:`obbiou.points`.
+    angles to rounding) is in the module docstring of :mod:`obbiou.points`. With frames,
+    each frame is counted with an index of its own in one kernel call (no coordinate is
+    shifted), so the counts equal those of a call per frame to the last point on a face.
 
     Examples
     --------
@@ -174,14 +189,39 @@ def count_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> np.n
     Traceback (most recent call last):
     ...
     obbiou.errors.InvalidInput: points: (N, 3) points go with 3D boxes (upright, axis3), ...
+
+    Frames: the same two pallets seen in sweeps 7 and 8, the same returns, all in sweep 7
+    but the last two. Only the first pallet holds returns of its own sweep; a pallet of a
+    sweep without returns (9) holds none, and no frame in common gives zeros.
+
+    >>> count_in_boxes(returns, pallets + pallets[:1], point_frames=[7, 7, 7, 7, 8, 8],
+    ...                box_frames=[7, 8, 9])
+    array([2, 0, 0])
+    >>> count_in_boxes(returns, pallets, point_frames=["a"] * 6, box_frames=["b", "c"])
+    array([0, 0])
+    >>> count_in_boxes(returns, pallets, point_frames=[7] * 6)  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    obbiou.errors.InvalidInput: box_frames: point_frames and box_frames go together: ...
     """
     pts, b = _read(points, boxes, shape)
-    counts = _scan(pts, b, fill=False)[0]
+    if point_frames is None and box_frames is None:
+        counts = _scan(pts, b, fill=False)[0]
+    else:
+        pcode, bcode = _frame_codes(point_frames, box_frames, len(pts), len(b), b.single)
+        counts = _scan_by_frame(pts, b, pcode, bcode, fill=False)[0]
     return counts[0] if b.single else counts
 
 
-def points_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> Inside:
-    """Which points lie inside which boxes.
+def points_in_boxes(
+    points: Any,
+    boxes: Any,
+    *,
+    shape: str | None = None,
+    point_frames: Any = None,
+    box_frames: Any = None,
+) -> Inside:
+    """Which points lie inside which boxes (of each box's own frame, when frames are given).
 
     Parameters
     ----------
@@ -194,6 +234,9 @@ def points_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> Ins
         ``length`` along the heading and ``cz`` the centre.
     shape : str, optional
         The box layout; inferred from the trailing dimensions when ``None``.
+    point_frames, box_frames : array_like, optional
+        Given together: the frame id of each point and of each box, as for
+        :func:`count_in_boxes`; a box then holds only points of its own frame.
 
     Returns
     -------
@@ -227,21 +270,32 @@ def points_in_boxes(points: Any, boxes: Any, *, shape: str | None = None) -> Ins
     1
     >>> len(points_in_boxes(np.zeros((0, 2)), shelves))
     0
+
+    The same shelves in two scans of the floor: the point on the shared line belongs to
+    scan 1, where only the first shelf is.
+
+    >>> hits = points_in_boxes([[1.0, 0.0], [2.5, 0.5], [7.0, 0.0]], shelves,
+    ...                        point_frames=[1, 2, 2], box_frames=[1, 2])
+    >>> hits.point, hits.box
+    (array([0, 1]), array([0, 1]))
     """
     pts, b = _read(points, boxes, shape)
-    _, inside = _scan(pts, b, fill=True)
-    return inside
+    if point_frames is None and box_frames is None:
+        return _scan(pts, b, fill=True)[1]
+    pcode, bcode = _frame_codes(point_frames, box_frames, len(pts), len(b), b.single)
+    return _scan_by_frame(pts, b, pcode, bcode, fill=True)[1]
 
 
 def warmup() -> None:
     """Compile the points kernels once (they are cached on disk): one set serves every
-    layout, small and large inputs, counts and pairs.
+    layout, small and large inputs, counts and pairs, one call or one per frame.
 
     Examples
     --------
     >>> warmup()
     """
     points_in_boxes([[0.5, 0.5, 0.5]], [[0.0, 0.0, 0.0, 1.0, 1.0, 1.0, 0.3]])
+    points_in_boxes([[0.5, 0.5]], [[0.0, 0.0, 1.0, 1.0]], point_frames=[0], box_frames=[0])
 
 
 # ------------------------------------------------------------------------------ input
@@ -298,6 +352,124 @@ def _read_points(points: Any, default_dim: int) -> np.ndarray:
             )
             raise InvalidInput("points", f"{'xyz'[col]} is {what}", row=row, column=col)
     return arr
+
+
+_INCOMPARABLE = (
+    "frame ids of points and boxes do not compare: use one kind (all integers or all text)"
+)
+
+
+def _frame_codes(
+    point_frames: Any, box_frames: Any, n: int, m: int, single: bool
+) -> tuple[np.ndarray, np.ndarray]:
+    """The frame of each point and each box as int64 codes (equal ids, equal codes)."""
+    if point_frames is None or box_frames is None:
+        missing = "point_frames" if point_frames is None else "box_frames"
+        raise InvalidInput(missing, "point_frames and box_frames go together: give both or neither")
+    ids = []
+    for name, values, rows in (("point_frames", point_frames, n), ("box_frames", box_frames, m)):
+        arr = np.asarray(values)
+        if single and name == "box_frames" and arr.ndim == 0:
+            arr = arr.reshape(1)
+        if arr.shape != (rows,):
+            what = "point" if name == "point_frames" else "box"
+            raise InvalidInput(
+                name, f"expected one frame id per {what} ({rows}), got shape {arr.shape}"
+            )
+        if arr.dtype.kind == "f":
+            bad = ~np.isfinite(arr)
+            if bad.any():
+                row = int(np.argmax(bad))
+                raise InvalidInput(name, f"frame id {arr[row]!r} is not a frame id", row=row)
+        if arr.dtype.kind not in "iufUSO":
+            raise InvalidInput(name, f"expected integer or text frame ids, got {arr.dtype}")
+        ids.append(arr)
+    kinds = {
+        "number" if a.dtype.kind in "iuf" else "text" if a.dtype.kind in "US" else "object"
+        for a in ids
+        if a.size
+    }
+    if kinds == {"number", "text"}:
+        raise InvalidInput("box_frames", _INCOMPARABLE)
+    if all(a.dtype.kind in "iu" for a in ids):  # int64 and uint64 would meet as floats
+        wide = any(a.dtype.kind == "u" and a.size and int(a.max()) >= 2**63 for a in ids)
+        ids = [a.astype(object if wide else np.int64) for a in ids]
+    both = np.concatenate(ids)
+    if both.dtype.kind in "iu" and both.size:
+        lo, hi = int(both.min()), int(both.max())
+        if hi - lo <= 4 * both.size:  # dense ids (0, 1, 2, ...): codes without a sort
+            codes = (both - lo).astype(np.int64)
+            return codes[:n], codes[n:]
+    try:
+        _, codes = np.unique(both, return_inverse=True)
+    except TypeError:
+        raise InvalidInput("box_frames", _INCOMPARABLE) from None
+    codes = codes.reshape(-1).astype(np.int64)
+    return codes[:n], codes[n:]
+
+
+def _scan_by_frame(
+    pts: np.ndarray, b: Boxes, pcode: np.ndarray, bcode: np.ndarray, *, fill: bool
+) -> tuple[np.ndarray, Inside | None]:
+    """Counts of each box over the points of its own frame, and with ``fill`` the (point,
+    box) pairs: one kernel call over the frames that hold both points and boxes (two with
+    ``fill``: count, then fill), each frame with a grid of its own (:func:`_grids`)."""
+    from obbiou._kernels import points as K
+    from obbiou._kernels import threads as T
+
+    n, m = pts.shape[0], len(b)
+    out = np.zeros(m, np.int64)
+    empty = np.zeros(0, np.int64)
+    none = Inside(empty, empty, n, m)
+    if n == 0 or m == 0:
+        return out, none
+    frames = int(max(pcode.max(), bcode.max())) + 1
+    pcount = np.bincount(pcode, minlength=frames)
+    bcount = np.bincount(bcode, minlength=frames)
+    pfirst = np.r_[0, np.cumsum(pcount)]
+    live = (pcount > 0) & (bcount > 0)
+    if not live.any():
+        return out, none
+    # the boxes of frames with points, by frame (stable), and each frame's rows among them
+    rows = np.flatnonzero(live[bcode])
+    rows = rows[np.argsort(bcode[rows], kind="stable")]
+    bfirst = np.r_[0, np.cumsum(bcount[live])]
+    kinds, params, verts, ext, z0, z1 = _prepare(b)
+    if b.shape == "polygon":
+        verts = np.ascontiguousarray(verts[rows])
+    ext = ext[rows]
+    grid_f, grid_i, box_order = _grids(ext, z0[rows], z1[rows], bfirst, pcount[live])
+    f = np.flatnonzero(live)
+    spans = np.column_stack([pfirst[f], pfirst[f + 1], bfirst[:-1], bfirst[1:]])
+    porder = np.argsort(pcode, kind="stable")
+    index = (
+        np.ascontiguousarray(pts[porder]),
+        spans,
+        box_order,
+        kinds[rows],
+        params[rows],
+        verts,
+        ext,
+        grid_f,
+        grid_i,
+    )
+    serial = _threads(n) == 1
+    counts = np.zeros(len(rows), np.int64)
+    T.run(K.scan_frames_range, (*index, empty, empty, counts), len(f), serial=serial)
+    out[rows] = counts
+    if not fill:
+        return out, None
+    offsets = np.r_[0, np.cumsum(counts)]
+    local = np.empty(int(offsets[-1]), np.int64)
+    if len(local):
+        again = np.zeros(len(rows), np.int64)
+        T.run(K.scan_frames_range, (*index, offsets, local, again), len(f), serial=serial)
+    # rows within each frame's span -> input rows; then by (box, point): the points of a box
+    # ascend within its frame's span, and so in the input (a stable sort by frame)
+    start = np.repeat(np.repeat(spans[:, 0], np.diff(bfirst)), counts)
+    box = np.repeat(rows, counts)
+    by_box = np.argsort(box, kind="stable")
+    return out, Inside(porder[local + start][by_box], box[by_box], n, m)
 
 
 # ------------------------------------------------------------------------- preparation
@@ -362,49 +534,81 @@ def _prepare(b: Boxes):
         ext = np.column_stack([cx - ex - padx, cy - ey - pady, cx + ex + padx, cy + ey + pady])
         with np.errstate(invalid="ignore"):  # cz - inf for rotated boxes is -inf, fine
             z0, z1 = cz - hz, cz + hz
-    return kinds, np.ascontiguousarray(params), np.ascontiguousarray(verts), ext, z0, z1
+    c = np.ascontiguousarray
+    return kinds, c(params), c(verts), c(ext), c(z0, dtype=np.float64), c(z1, dtype=np.float64)
 
 
-def _grid(ext: np.ndarray, z0: np.ndarray, z1: np.ndarray, n_points: int):
-    """The grid over the union of the box extents: float and int parameters for the kernels.
+def _grids(
+    ext: np.ndarray, z0: np.ndarray, z1: np.ndarray, bfirst: np.ndarray, n_points: np.ndarray
+):
+    """The grid of each frame over the union of its box extents, and the boxes in grid order.
 
-    Cells are squares of about the median box extent (a box then scans 1-4 cells and the
-    points of an area a few times its own), at most 2 per point and :data:`_MAX_CELLS`.
+    Frame f holds the boxes ``bfirst[f]:bfirst[f + 1]`` (at least one) and ``n_points[f]``
+    points. Cells are squares of about the median box extent of the frame (a box then scans
+    1-4 cells and the points of an area a few times its own), at most 2 per point and
+    :data:`_MAX_CELLS`. Returns ``grid_f`` (F, 8: x0, y0, x1, y1, z_lo, z_hi, inverse cell
+    width and height), ``grid_i`` (F, 2: nx, ny) and the box rows of each frame ordered by
+    the grid cell of their lower-left corner, row by row (the scan then reads the sorted
+    points in nearly increasing order). The grid narrows the candidates only: any grid
+    gives the same counts (:mod:`obbiou._kernels.points`).
     """
-    x0, y0 = float(ext[:, 0].min()), float(ext[:, 1].min())
-    x1, y1 = float(ext[:, 2].max()), float(ext[:, 3].max())
-    span = max(x1 - x0, y1 - y0)
-    side = _CELL_FACTOR * float(np.median(np.maximum(ext[:, 2] - ext[:, 0], ext[:, 3] - ext[:, 1])))
-    cap = max(1, min(_MAX_CELLS, 2 * n_points))
+    starts = bfirst[:-1]
+    nb = np.diff(bfirst)
+    nf = len(nb)
+    grid_f = np.empty((nf, 8))
+    for col, (values, reduce) in enumerate(
+        [
+            (ext[:, 0], np.minimum),
+            (ext[:, 1], np.minimum),
+            (ext[:, 2], np.maximum),
+            (ext[:, 3], np.maximum),
+            (z0, np.minimum),
+            (z1, np.maximum),
+        ]
+    ):
+        grid_f[:, col] = reduce.reduceat(values, starts)
+    x0, y0, x1, y1 = grid_f[:, 0], grid_f[:, 1], grid_f[:, 2], grid_f[:, 3]
+    frame = np.repeat(np.arange(nf), nb)
+    sizes = np.maximum(ext[:, 2] - ext[:, 0], ext[:, 3] - ext[:, 1])
+    by_size = np.argsort(sizes)  # then by frame, stably: the sizes of each frame in order
+    ranked = sizes[by_size[np.argsort(frame[by_size], kind="stable")]]
+    mid = starts + nb // 2
+    even = nb % 2 == 0
+    median = (ranked[mid - even] + ranked[mid]) / 2  # the middle one twice for odd counts
+    span = np.maximum(x1 - x0, y1 - y0)
+    cap = np.maximum(1, np.minimum(_MAX_CELLS, 2 * np.asarray(n_points, np.int64)))
     # No more cells than cap along the larger side, and a cell side whose inverse is finite
     # (boxes of zero or subnormal size).
-    side = max(side, span / np.sqrt(cap), 1e-300)
-    if span == 0.0 and side == 1e-300:
-        side = 1.0
-    while np.isfinite(side * cap):
-        invy = 1.0 / side
-        invx = _CELL_ASPECT / side
-        nx = int(min((x1 - x0) * invx, 2.0**40)) + 1
-        ny = int(min((y1 - y0) * invy, 2.0**40)) + 1
-        if nx * ny <= cap:
-            break
-        side *= 1.5
-    else:  # boxes spread wider than float64 spans (~1.8e308): one cell
-        nx, ny, invx, invy = 1, 1, 0.0, 0.0
-    grid_f = np.array([x0, y0, x1, y1, float(z0.min()), float(z1.max()), invx, invy])
-    return grid_f, np.array([nx, ny], np.int64)
-
-
-def _grid_order(ext: np.ndarray, grid_f: np.ndarray, grid_i: np.ndarray) -> np.ndarray:
-    """The boxes by the grid cell of their lower-left corner (row by row): the scan then
-    reads the sorted points in nearly increasing order."""
-    nx, ny = int(grid_i[0]), int(grid_i[1])
-    with np.errstate(all="ignore"):  # inf * 0 on a one-cell grid: NaN, taken as cell 0
-        tx = np.nan_to_num((ext[:, 0] - grid_f[0]) * grid_f[6])
-        ty = np.nan_to_num((ext[:, 1] - grid_f[1]) * grid_f[7])
-    ix = np.clip(tx, 0, nx - 1).astype(np.int64)
-    iy = np.clip(ty, 0, ny - 1).astype(np.int64)
-    return np.argsort(iy * nx + ix, kind="stable")
+    side = np.maximum(np.maximum(_CELL_FACTOR * median, span / np.sqrt(cap)), 1e-300)
+    side[(span == 0.0) & (side == 1e-300)] = 1.0
+    # Widen the cells of the frames with too many by 1.5 until they fit; boxes spread wider
+    # than float64 spans (~1.8e308) keep one cell (inverse sizes 0).
+    grid_i = np.ones((nf, 2), np.int64)
+    grid_f[:, 6:] = 0.0
+    k = np.arange(nf)
+    with np.errstate(over="ignore"):
+        while len(k):
+            k = k[np.isfinite(side[k] * cap[k])]
+            inv = np.empty((len(k), 2))
+            inv[:, 1] = 1.0 / side[k]
+            inv[:, 0] = _CELL_ASPECT / side[k]
+            cells = np.minimum((grid_f[k, 2:4] - grid_f[k, 0:2]) * inv, 2.0**40).astype(np.int64)
+            cells += 1
+            fits = cells[:, 0].astype(np.float64) * cells[:, 1] <= cap[k]
+            grid_i[k[fits]] = cells[fits]
+            grid_f[k[fits], 6:] = inv[fits]
+            k = k[~fits]
+            side[k] *= 1.5
+    # the boxes of each frame by the grid cell of their lower-left corner, as the kernels
+    # find cells (floor, clamped to the grid; NaN from inf * 0 on a one-cell grid: cell 0)
+    with np.errstate(all="ignore"):
+        t = (ext[:, :2] - grid_f[frame, :2]) * grid_f[frame, 6:]
+    t[~(t > 0.0)] = 0.0
+    cell = np.minimum(t, grid_i[frame] - 1).astype(np.int64)
+    per_frame = grid_i[:, 0] * grid_i[:, 1]
+    base = np.cumsum(per_frame) - per_frame  # one key per box, increasing with the frame
+    key = base[frame] + cell[:, 1] * grid_i[frame, 0] + cell[:, 0]
+    return grid_f, grid_i, np.argsort(key, kind="stable")
 
 
 def _threads(n: int) -> int:
@@ -422,10 +626,11 @@ def _scan(pts: np.ndarray, b: Boxes, *, fill: bool) -> tuple[np.ndarray, Inside 
     if n == 0 or m == 0:
         return np.zeros(m, np.int64), Inside(empty, empty, n, m)
     kinds, params, verts, ext, z0, z1 = _prepare(b)
-    grid_f, grid_i = _grid(ext, z0, z1, n)
+    grid_f, grid_i, box_order = _grids(ext, z0, z1, np.array([0, m]), np.array([n]))
+    grid_f, grid_i = grid_f[0], grid_i[0]
     first, order, sp = K.sort_points(pts, grid_f, grid_i, fill)
     index = (
-        _grid_order(ext, grid_f, grid_i),
+        box_order,
         kinds,
         params,
         verts,

@@ -1068,8 +1068,9 @@ def read_points(source: Any) -> Points:
     Parameters
     ----------
     source : str, os.PathLike, pandas.DataFrame, mapping or Points
-        As for :func:`read_table` (CSV, Parquet, JSON Lines); a :class:`Points` is returned
-        as it is. Other columns are allowed and left out.
+        As for :func:`read_table` (CSV, Parquet, JSON Lines, or a folder of such files read
+        in the order of :func:`table_files`, all with ``z`` or all without); a
+        :class:`Points` is returned as it is. Other columns are allowed and left out.
 
     Returns
     -------
@@ -1095,6 +1096,8 @@ def read_points(source: Any) -> Points:
     """
     if isinstance(source, Points):
         return source
+    if isinstance(source, (str, os.PathLike)) and os.path.isdir(source):
+        return _read_points_folder(os.fspath(source))
     cols, where, n = _load(source)
     for col in ("frame", "x", "y"):
         if col not in cols:
@@ -1105,3 +1108,23 @@ def read_points(source: Any) -> Points:
         xyz[:, j] = _numeric(cols[col], col, where)
     frame, _ = _frame_column(cols["frame"], where)
     return Points(frame, xyz, where.source)
+
+
+def _read_points_folder(folder: str) -> Points:
+    """The points of a folder's files (:func:`table_files` order) as one table."""
+    files = table_files(folder)
+    if not files:
+        reason = "folder holds no table files (.csv, .parquet, .pq, .jsonl, .ndjson)"
+        raise InvalidTable(folder, reason)
+    parts = [read_points(path) for path in files]
+    first = parts[0]
+    for path, part in zip(files, parts, strict=True):
+        if part.xyz.shape[1] != first.xyz.shape[1]:
+            names = {2: "frame, x, y", 3: "frame, x, y, z"}
+            reason = (
+                f"columns {names[part.xyz.shape[1]]} while {first.source} has "
+                f"{names[first.xyz.shape[1]]}; every file of a folder needs the same"
+            )
+            raise InvalidTable(str(path), reason)
+    frames = comparable_frame_ids([p.frame for p in parts])
+    return Points(np.concatenate(frames), np.concatenate([p.xyz for p in parts]), folder)

@@ -524,3 +524,230 @@ def test_bad_boxes_go_through_the_input_gate():
         points_in_boxes([[0.0, 0.0]], [[0, 0, 1]])
     with pytest.raises(ValueError, match="not convex"):
         points_in_boxes([[0.0, 0.0]], [[[0, 0], [2, 0], [1, 1], [2, 2], [0, 2]]])
+
+
+# ------------------------------------------------------------------- counting by frame
+
+
+def per_frame(pts, boxes, pf, bf, shape=None):
+    """The reference for counting by frame: one plain call per frame (each box against the
+    points of its own frame only)."""
+    out = np.zeros(len(boxes), np.int64)
+    for f in np.unique(bf):
+        sel = bf == f
+        out[sel] = count_in_boxes(pts[pf == f], boxes[sel], shape=shape)
+    return out
+
+
+def pairs_per_frame(pts, boxes, pf, bf, shape=None):
+    """The same for the (point, box) pairs: one plain call per frame, rows mapped back to the
+    whole input, sorted by (box, point)."""
+    point, box = [], []
+    for f in np.unique(bf):
+        prow, brow = np.flatnonzero(pf == f), np.flatnonzero(bf == f)
+        hits = points_in_boxes(pts[prow], boxes[brow], shape=shape)
+        point.append(prow[hits.point])
+        box.append(brow[hits.box])
+    point, box = np.concatenate(point), np.concatenate(box)
+    order = np.lexsort((point, box))
+    return point[order], box[order]
+
+
+def check_frames(pts, boxes, pf, bf, shape=None):
+    """Counts and pairs by frame equal one call per frame, exactly; returns the counts."""
+    want = per_frame(pts, boxes, pf, bf, shape=shape)
+    got = count_in_boxes(pts, boxes, shape=shape, point_frames=pf, box_frames=bf)
+    np.testing.assert_array_equal(got, want)
+    hits = points_in_boxes(pts, boxes, shape=shape, point_frames=pf, box_frames=bf)
+    point, box = pairs_per_frame(pts, boxes, pf, bf, shape=shape)
+    np.testing.assert_array_equal(hits.point, point)
+    np.testing.assert_array_equal(hits.box, box)
+    np.testing.assert_array_equal(hits.counts(), want)
+    assert (hits.n_points, hits.n_boxes) == (len(pts), len(boxes))
+    return want
+
+
+def face_scene(shape, seed, frames=6):
+    """Boxes of one layout in a few frames, and points on their faces, edges and corners
+    (hand-worked lattices for bounds and quarter turns, the corners of turned boxes, one
+    ulp outside each bound), plus random points; every point in a random frame, so each box
+    also meets the face points of boxes of other frames at the same place."""
+    rng = np.random.default_rng(seed)
+    m = 30
+    centre = rng.uniform(0, 20, (m, 3))
+    size = rng.uniform(0.5, 4, (m, 3))
+    size[::7, 0] = 0.0  # zero-size boxes hold only the points on them
+    pts = []
+    if shape in ("axis", "axis3"):
+        d = 3 if shape == "axis3" else 2
+        lo, hi = centre[:, :d] - size[:, :d] / 2, centre[:, :d] + size[:, :d] / 2
+        boxes = np.column_stack([lo, hi])
+        for a, b in zip(lo, hi, strict=True):
+            lat = lattice_points(a, b)
+            pts += [lat, nudged_out(lat, a, b)]
+    elif shape in ("upright", "rotated"):
+        quarter = rng.integers(-4, 5, m)
+        angle = np.where(np.arange(m) % 2 == 0, quarter * (np.pi / 2), rng.uniform(-4, 4, m))
+        if shape == "upright":
+            boxes = np.column_stack([centre, size, angle])
+        else:
+            boxes = np.column_stack([centre[:, :2], size[:, :2], angle])
+        d = 3 if shape == "upright" else 2
+        for k in range(0, m, 2):  # quarter turns: the faces are axis-parallel
+            ext = size[k, :d] / 2
+            if quarter[k] % 2:
+                ext[[0, 1]] = ext[[1, 0]]
+            a, b = centre[k, :d] - ext, centre[k, :d] + ext
+            lat = lattice_points(a, b)
+            pts += [lat, nudged_out(lat, a, b)]
+        pts.append(corners(boxes, shape=shape).reshape(-1, d))  # on faces to rounding
+    else:  # convex quadrilaterals: the corners of rotated boxes, either winding
+        boxes = corners(
+            np.column_stack([centre[:, :2], size[:, :2] + 0.5, rng.uniform(-4, 4, m)]),
+            shape="rotated",
+        )
+        boxes[::2] = boxes[::2, ::-1]
+        pts.append(boxes.reshape(-1, 2))
+        pts.append((boxes + boxes[:, [1, 2, 3, 0]]).reshape(-1, 2) / 2)  # edge midpoints
+        d = 2
+    pts.append(rng.uniform(-3, 23, (3000, d)))
+    pts = np.concatenate(pts)
+    pf = rng.integers(0, frames, len(pts))
+    bf = rng.integers(0, frames, m)
+    return pts, boxes, pf, bf
+
+
+@pytest.mark.parametrize("shape", ["upright", "axis3", "rotated", "axis", "polygon"])
+@pytest.mark.parametrize("seed", [0, 1])
+def test_frames_equal_one_call_per_frame_on_faces_edges_corners(shape, seed):
+    pts, boxes, pf, bf = face_scene(shape, seed)
+    want = check_frames(pts, boxes, pf, bf, shape=shape)  # exactly, points on faces included
+    assert want.sum() > 50  # points of the boxes' own frames on and in them
+    # the frames as text, in another order: the same counts
+    names = np.array([f"sweep-{f:02d}" for f in range(6)], dtype=object)
+    again = count_in_boxes(
+        pts[::-1], boxes, shape=shape, point_frames=names[pf[::-1]], box_frames=names[bf]
+    )
+    np.testing.assert_array_equal(again, want)
+
+
+@pytest.mark.parametrize("seed", [3, 4])
+def test_frames_against_brute_force(seed):
+    # Reference: numpy, every point moved into every box frame; a pair counts only when the
+    # point and the box share a frame.
+    pts, boxes = scene(4000, 150, seed)
+    rng = np.random.default_rng(seed)
+    pf, bf = rng.integers(0, 5, len(pts)), rng.integers(0, 5, len(boxes))
+    inside, decided = clear_membership(pts, boxes, 1e-9)
+    same = pf[:, None] == bf[None, :]
+    got = count_in_boxes(pts, boxes, point_frames=pf, box_frames=bf)
+    hits = points_in_boxes(pts, boxes)  # checked against the reference above
+    member = np.zeros(inside.shape, bool)
+    member[hits.point, hits.box] = True
+    assert not ((member != inside) & decided).any()
+    np.testing.assert_array_equal(got, (member & same).sum(axis=0))
+    framed = points_in_boxes(pts, boxes, point_frames=pf, box_frames=bf)
+    pairs = np.zeros(inside.shape, bool)
+    pairs[framed.point, framed.box] = True
+    np.testing.assert_array_equal(pairs, member & same)
+    assert ((inside & same).sum(axis=0)[decided.all(axis=0)] == got[decided.all(axis=0)]).all()
+
+
+def test_frames_parallel_and_serial_paths_agree(monkeypatch):
+    pts, boxes = scene(60_000, 600, 8, spread=60.0)
+    rng = np.random.default_rng(8)
+    pf, bf = rng.integers(0, 40, len(pts)), rng.integers(0, 40, len(boxes))
+    monkeypatch.setattr(P, "_SERIAL_BELOW", 10_000)
+    check_frames(pts, boxes, pf, bf)
+    monkeypatch.setattr(P, "_SERIAL_BELOW", 10**9)
+    check_frames(pts, boxes, pf, bf)
+
+
+@SETTINGS
+@given(
+    upright_boxes(min_n=1, max_n=8, zero_size=True),
+    st.integers(0, 2**32 - 1),
+    st.integers(1, 4),
+)
+def test_property_frames_equal_one_call_per_frame(boxes, seed, frames):
+    # adversarial boxes of tests/strategies.py, their corners (on faces to rounding) and
+    # points around them, in random frames: grouped counts = one call per frame, exactly
+    rng = np.random.default_rng(seed)
+    scale = np.abs(boxes[:, :3]).max() + boxes[:, 3:6].max() + 1.0
+    pts = np.concatenate(
+        [
+            corners(boxes, shape="upright").reshape(-1, 3),
+            boxes[:, :3],
+            boxes[rng.integers(0, len(boxes), 60), :3] + rng.normal(0, 0.3, (60, 3)) * scale,
+        ]
+    )
+    pf, bf = rng.integers(0, frames, len(pts)), rng.integers(0, frames, len(boxes))
+    check_frames(pts, boxes, pf, bf)
+
+
+def test_frames_edge_cases_and_bad_input():
+    box = [0.0, 0.0, 1.0, 1.0]
+    pts = [[0.5, 0.5], [1.0, 1.0], [2.0, 2.0]]
+    # a single box with one frame id: a 0-d count; no point of its frame: 0
+    assert int(count_in_boxes(pts, box, point_frames=[1, 1, 2], box_frames=1)) == 2
+    assert int(count_in_boxes(pts, box, point_frames=[1, 1, 2], box_frames=3)) == 0
+    # empty points or boxes
+    assert count_in_boxes(np.zeros((0, 2)), [box], point_frames=[], box_frames=[4]).tolist() == [0]
+    none = count_in_boxes(pts, np.zeros((0, 4)), point_frames=[1, 1, 2], box_frames=[])
+    assert none.shape == (0,)
+    hits = points_in_boxes(pts, [box, box], point_frames=[1, 1, 2], box_frames=[3, 1])
+    assert (hits.point.tolist(), hits.box.tolist()) == ([0, 1], [1, 1])
+    assert hits.counts().tolist() == [0, 2] and hits.point.dtype == np.int64
+    hits = points_in_boxes(pts, [box], point_frames=[1, 1, 2], box_frames=[5])  # no frame met
+    assert len(hits) == 0 and (hits.n_points, hits.n_boxes) == (3, 1)
+    with pytest.raises(InvalidInput, match="go together"):
+        points_in_boxes(pts, [box], box_frames=[1])
+    # ids far apart (not dense), and unsigned ids beyond int64
+    far = count_in_boxes(pts, [box, box], point_frames=[10**15, 0, 0], box_frames=[10**15, 0])
+    assert far.tolist() == [1, 1]
+    big = np.array([2**64 - 1, 5, 5], np.uint64)
+    got = count_in_boxes(pts, [box, box], point_frames=big, box_frames=big[:2])
+    assert got.tolist() == [1, 1]
+    cases = [
+        (dict(point_frames=[1, 1, 2]), "box_frames", "go together"),
+        (dict(box_frames=[1]), "point_frames", "go together"),
+        (dict(point_frames=[1, 1], box_frames=[1]), "point_frames", "one frame id per point (3)"),
+        (dict(point_frames=[1, 1, 1], box_frames=[1, 2]), "box_frames", "per box (1)"),
+        (dict(point_frames=[1, 1, 1], box_frames=["1"]), "box_frames", "do not compare"),
+        (dict(point_frames=[1.0, np.nan, 1.0], box_frames=[1]), "point_frames", "nan"),
+        (dict(point_frames=[True] * 3, box_frames=[True]), "point_frames", "integer or text"),
+    ]
+    for kw, argument, text in cases:
+        with pytest.raises(InvalidInput) as err:
+            count_in_boxes(pts, [box], **kw)
+        assert err.value.argument == argument, kw
+        assert text in str(err.value), (kw, str(err.value))
+    mixed = np.array([1, "1", 2], dtype=object)
+    with pytest.raises(InvalidInput, match="do not compare"):
+        count_in_boxes(pts, [box], point_frames=mixed, box_frames=np.array([1], dtype=object))
+
+
+def test_each_frame_gets_the_grid_of_a_call_of_its_own():
+    # the grid rule vectorised over frames: frame f's grid and box order are those of a
+    # one-frame call on its boxes alone (frames of 1-40 boxes, a frame of zero-size boxes,
+    # a frame spread over +-1e100, a frame without points); at most 2 cells per point
+    from obbiou.shapes import read_boxes
+
+    rng = np.random.default_rng(9)
+    nb = np.array([1, 2, 40, 7, 3, 1])
+    boxes = np.column_stack([rng.uniform(0, 50, (nb.sum(), 2)), rng.uniform(0, 4, (nb.sum(), 2)),
+                             rng.uniform(-3, 3, nb.sum())])  # fmt: skip
+    boxes[nb[:3].sum() : nb[:4].sum(), 2:4] = 0.0  # frame 3: boxes of zero size
+    boxes[nb[:4].sum(), :2] = -1e100  # frame 4 spans about 2e100
+    boxes[nb[:4].sum() + 1, :2] = 1e100
+    kinds, params, verts, ext, z0, z1 = P._prepare(read_boxes(boxes, None, name="boxes"))
+    bfirst = np.r_[0, np.cumsum(nb)]
+    npts = np.array([10, 0, 5000, 3, 100, 10**7])
+    grid_f, grid_i, order = P._grids(ext, z0, z1, bfirst, npts)
+    assert (grid_i.prod(axis=1) <= np.maximum(1, 2 * npts)).all() and grid_i[2].prod() > 100
+    for f in range(len(nb)):
+        sel = slice(bfirst[f], bfirst[f + 1])
+        gf, gi, o = P._grids(ext[sel], z0[sel], z1[sel], np.array([0, nb[f]]), npts[f : f + 1])
+        np.testing.assert_array_equal(grid_f[f], gf[0])
+        np.testing.assert_array_equal(grid_i[f], gi[0])
+        np.testing.assert_array_equal(order[sel], o + bfirst[f])

@@ -8,7 +8,6 @@ import sys
 from obbiou.cli.options import (
     add_common,
     add_matching,
-    bad_option,
     bucket_edges,
     finite_float,
     matching_options,
@@ -135,8 +134,6 @@ def run(args: argparse.Namespace) -> int:
     if args.workers is not None or args.scheduler is not None:
         from obbiou.distributed import evaluate_distributed
 
-        if args.points is not None:
-            raise bad_option("--points", "--points is not taken with --workers/--scheduler yet")
         # warm=True: the workers compile (or load from the cache) first, with its own bar
         cluster = {"workers": args.workers, "scheduler": args.scheduler, "warm": True}
         result = evaluate_distributed(

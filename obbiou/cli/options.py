@@ -244,7 +244,8 @@ def add_matching(p: argparse.ArgumentParser) -> None:
         "--points",
         metavar="PATH",
         default=None,
-        help="lidar points (columns frame, x, y[, z]): count the points inside each truth",
+        help="lidar points, a table or a folder of tables (columns frame, x, y[, z]): count "
+        "the points inside each truth (on the workers with --workers/--scheduler)",
     )
     p.add_argument(
         "--min-points",

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import warnings
 from collections.abc import Sequence
 from dataclasses import replace
 from pathlib import Path
@@ -10,11 +11,19 @@ from typing import Any
 
 import numpy as np
 
-from obbiou.distributed.cluster import connect, item, release, thread_count, wait_for
-from obbiou.distributed.sources import partitions_of, submit_parts
+from obbiou.distributed.cluster import (
+    connect,
+    item,
+    release,
+    require_dask,
+    thread_count,
+    wait_for,
+)
+from obbiou.distributed.sources import Source, partitions_of, submit_parts
 from obbiou.distributed.warm import warm_workers
 from obbiou.distributed.wire import pack_records, unpack_records
 from obbiou.errors import InvalidInput
+from obbiou.evaluation.point_counts import check_min_points, no_common_frame
 
 __all__ = ["evaluate_distributed"]
 
@@ -34,6 +43,83 @@ def _read_here(table: Any, role: str, shape: str | None, degrees: bool) -> Any:
     if is_file or isinstance(table, (pd.DataFrame, dict, Table)):
         return read_table(table, role=role, shape=shape, degrees=degrees)
     return table
+
+
+def _points_here(points: Any) -> Any:
+    """Read a points file or an in-memory table of points here, as in-process evaluation
+    reads it (errors name the file, line and column alike); a folder or a Dask DataFrame is
+    left to the workers, one partition per file or per Dask partition."""
+    import dask.dataframe as dd
+
+    from obbiou.tables import read_points
+
+    if isinstance(points, (str, os.PathLike)) and Path(points).is_dir():
+        return points
+    if isinstance(points, dd.DataFrame):
+        return points
+    return read_points(points)
+
+
+def _point_sources(points: Any, chunks: int) -> tuple[Source, str]:
+    """The partitions of a table of points, and its name for messages. Points read here are
+    cut into ``chunks`` row ranges."""
+    from obbiou.tables import Points
+
+    if not isinstance(points, Points):
+        name = str(points) if isinstance(points, (str, os.PathLike)) else "<Dask DataFrame>"
+        return partitions_of(points, what="points"), name
+    n = len(points)
+    bounds = np.linspace(0, n, max(1, min(int(chunks), n)) + 1).astype(np.int64)
+    spans = list(zip(bounds[:-1].tolist(), bounds[1:].tolist(), strict=True))
+    parts = [Points(points.frame[lo:hi], points.xyz[lo:hi], points.source) for lo, hi in spans]
+    names = [
+        f"points rows {lo}..{hi - 1} ({points.source})" if hi > lo else f"points ({points.source})"
+        for lo, hi in spans
+    ]
+    return Source(parts, names), points.source
+
+
+def _split_points(part: Any, n_buckets: int) -> tuple[Any, ...]:
+    """On a worker: read and validate one partition of points, cut it into per-bucket
+    pieces by the frame buckets the truths and detections go to (:func:`_frame_buckets`)."""
+    from obbiou.tables import Points, read_points
+
+    pts = read_points(part)
+    buckets = _frame_buckets(pts.frame, n_buckets)
+    order = np.argsort(buckets, kind="stable")
+    cuts = np.searchsorted(buckets[order], np.arange(n_buckets + 1))
+    rows = [order[cuts[k] : cuts[k + 1]] for k in range(n_buckets)]
+    return tuple(Points(pts.frame[r], pts.xyz[r], pts.source) for r in rows)
+
+
+def _point_shape(split: Sequence[Any]) -> tuple[int, int]:
+    """On a worker: the number of points of one partition and their dimension (2 or 3)."""
+    return sum(len(p) for p in split), int(split[0].xyz.shape[1])
+
+
+def _check_point_dims(shapes: Sequence[tuple[int, int]], names: Sequence[str]) -> None:
+    """All partitions of the points with ``z`` or all without (as for a folder in process)."""
+    first = shapes[0][1]
+    for (_, dim), name in zip(shapes, names, strict=True):
+        if dim != first:
+            have = {2: "frame, x, y", 3: "frame, x, y, z"}
+            raise InvalidInput(
+                "points",
+                f"{name}: columns {have[dim]} while {names[0]} has {have[first]}; every "
+                "partition needs the same",
+            )
+
+
+def _join_points(pieces: Sequence[Any], truth: Any) -> Any:
+    """One table of the points of a bucket, keeping only those of frames that hold truths
+    (the others are in no truth): the counts are those of the whole table."""
+    from obbiou.tables import Points, comparable_frame_ids
+
+    *frames, tframe = comparable_frame_ids([p.frame for p in pieces] + [truth.frame])
+    frame = np.concatenate(frames)
+    xyz = np.concatenate([p.xyz for p in pieces])
+    keep = np.isin(frame, tframe)
+    return Points(frame[keep], xyz[keep], pieces[0].source)
 
 
 def _mix(values: np.ndarray) -> np.ndarray:
@@ -138,12 +224,17 @@ def _match_bucket(
     shape: str | None,
     match_options: dict[str, Any],
     offsets: dict[str, Sequence[int]],
-) -> Any:
-    """On a worker: match all frames of one bucket; return their compact match records."""
+    point_pieces: Sequence[Any] | None = None,
+) -> tuple[Any, bool]:
+    """On a worker: match all frames of one bucket; return their compact match records and
+    whether any point shares a frame with a truth of the bucket.
+
+    With points, each truth's count is taken here, next to the truths of its frame."""
     from obbiou.evaluation.matching import match_frames
 
     truth, truth_rows = _join_tables(truth_pieces, offsets["truth"])
     detections, det_rows = _join_tables(detection_pieces, offsets["detections"])
+    points = None if point_pieces is None else _join_points(point_pieces, truth)
     records = match_frames(
         truth,
         detections,
@@ -151,9 +242,10 @@ def _match_bucket(
         shape=shape,
         truth_rows=truth_rows,
         detection_rows=det_rows,
+        points=points,
         **match_options,
     )
-    return pack_records(records)
+    return pack_records(records), points is not None and len(points) > 0
 
 
 def evaluate_distributed(
@@ -164,6 +256,8 @@ def evaluate_distributed(
     iou: Any = None,
     distance: Any = None,
     bev: bool = False,
+    points: Any = None,
+    min_points: int | None = None,
     ap: str = "all-points",
     recall_points: int | None = None,
     max_detections: int | None = None,
@@ -198,6 +292,12 @@ def evaluate_distributed(
     of the box rows themselves (upright boxes, two thresholds). So each box crosses the
     network at most once (to its bucket's worker), and only records come back to the client.
 
+    Lidar points (``points=``) go the same way: each partition of the points table (a file
+    of a folder, a Dask partition, or a row range of a table read here) is read on a worker
+    and cut by the same hash of the frame id, so the points of a frame reach the worker that
+    matches that frame's truths, where they are counted; only the counts come back, in the
+    records.
+
     Parameters
     ----------
     truth, detections : Dask DataFrame, str or path, or pandas DataFrame
@@ -209,9 +309,15 @@ def evaluate_distributed(
         table is cut into pieces here.
     shape, iou, distance, bev, ap, recall_points, max_detections : optional
         As for :func:`obbiou.evaluation.evaluate` (the protocol is written out there).
+    points : str or path, folder, Dask DataFrame, pandas DataFrame, mapping or Points, optional
+        Lidar points, columns ``frame, x, y`` and optionally ``z``, as for
+        :func:`obbiou.evaluation.evaluate`. A folder gives one partition per file (all with
+        ``z`` or all without), read on the workers (every worker must see the path); a
+        single file or an in-memory table is read and validated here, then cut into pieces.
+    min_points : int, optional
+        With ``points``: truths holding fewer points become ignore truths.
     size_buckets, range_buckets : optional
-        As for :func:`obbiou.evaluation.evaluate`. (Lidar points, ``points=``, are not
-        taken here yet: count them in process with :func:`obbiou.evaluation.evaluate`.)
+        As for :func:`obbiou.evaluation.evaluate`.
     degrees, localisation_floor : optional
         As for :func:`obbiou.evaluation.evaluate` (the protocol is written out there).
     progress : bool
@@ -259,6 +365,15 @@ def evaluate_distributed(
     ((1, 1, 0, 1), 0.5)
     >>> ev.to_dict() == evaluate(truth, dets, iou=0.5).to_dict()
     True
+
+    With lidar returns (invented, 2D: ``x, y``): the vessel of frame 2 holds one return,
+    fewer than 2, so it is set aside as an ignore truth and no longer a miss.
+
+    >>> returns = {"frame": [1, 1, 1, 2], "x": [10.0, 12.0, 9.0, 40.0],
+    ...            "y": [5.0, 5.5, 4.0, 8.0]}
+    >>> ev = evaluate_distributed(truth, dets, iou=0.5, points=returns, min_points=2)
+    >>> ev.records.truth_points.tolist(), ev.counts("vessel", 0.5)[:4], ev.ap("vessel", 0.5)
+    ([3, 1], (1, 1, 0, 0), 1.0)
     """
     from obbiou.evaluation import reduce_records
     from obbiou.evaluation.protocol import matching_criterion
@@ -266,7 +381,18 @@ def evaluate_distributed(
 
     # bad options fail here, before any work is sent
     criterion, thresholds = matching_criterion(iou, distance, bev)
-    match_options = {"max_detections": max_detections, "criterion": criterion}
+    if min_points is not None:
+        if points is None:
+            raise InvalidInput("min_points", "min_points needs a table of points (points=...)")
+        min_points = check_min_points(min_points)
+    match_options = {
+        "max_detections": max_detections,
+        "criterion": criterion,
+        "min_points": min_points,
+    }
+    if points is not None:
+        require_dask()
+        points = _points_here(points)
     with connect(client=client, scheduler=scheduler, workers=workers) as cl:
         if warm:
             warm_workers(cl, progress=progress, timeout=timeout)
@@ -287,6 +413,13 @@ def evaluate_distributed(
             ]
             for k in sources
         }
+        if points is not None:
+            point_source, points_name = _point_sources(points, threads)
+            sources["points"] = point_source
+            parts["points"] = submit_parts(cl, point_source)
+            splits["points"] = [
+                cl.submit(_split_points, p, n_buckets, pure=False) for p in parts["points"]
+            ]
         held = [f for fs in parts.values() for f in fs] + [f for fs in splits.values() for f in fs]
         try:
             wait_for(
@@ -298,13 +431,19 @@ def evaluate_distributed(
                 timeout=timeout,
                 collect=False,
             )
+            counted = {
+                k: cl.gather([cl.submit(_row_count, s) for s in splits[k]])
+                for k in ("truth", "detections")
+            }
             # first input row of each partition: records name rows of the whole input
             offsets = {
-                k: np.r_[0, np.cumsum(cl.gather([cl.submit(_row_count, s) for s in fs]))]
-                .astype(np.int64)[:-1]
-                .tolist()
-                for k, fs in splits.items()
+                k: np.r_[0, np.cumsum(c)].astype(np.int64)[:-1].tolist() for k, c in counted.items()
             }
+            n_points = 0
+            if points is not None:
+                shapes = cl.gather([cl.submit(_point_shape, s) for s in splits["points"]])
+                _check_point_dims(shapes, sources["points"].names)
+                n_points = sum(n for n, _ in shapes)
             pieces = {
                 k: [[cl.submit(item, s, b, pure=False) for b in range(n_buckets)] for s in fs]
                 for k, fs in splits.items()
@@ -318,11 +457,12 @@ def evaluate_distributed(
                     shape,
                     match_options,
                     offsets,
+                    None if points is None else [pp[b] for pp in pieces["points"]],
                     pure=False,
                 )
                 for b in range(n_buckets)
             ]
-            records = wait_for(
+            results = wait_for(
                 cl,
                 matched,
                 [f"frame bucket {b} of {n_buckets}" for b in range(n_buckets)],
@@ -332,6 +472,9 @@ def evaluate_distributed(
             )
         finally:
             release(held)
+    records = [r for r, _ in results]
+    if n_points and sum(counted["truth"]) and not any(met for _, met in results):
+        warnings.warn(no_common_frame(points_name), stacklevel=2)
     # The same reduce call as obbiou.evaluation.evaluate makes, on the same records; the
     # tables read here (a file, an in-memory table) are kept as evaluate keeps them.
     read = tuple(roles[k] for k in ("truth", "detections"))
@@ -343,6 +486,6 @@ def evaluate_distributed(
         size_buckets=size_buckets,
         range_buckets=range_buckets,
         localisation_floor=localisation_floor,
-        options={"max_detections": max_detections, "degrees": degrees},
+        options={"max_detections": max_detections, "degrees": degrees, "min_points": min_points},
         inputs=read if all(isinstance(t, Table) for t in read) else None,
     )

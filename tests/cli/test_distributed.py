@@ -59,3 +59,26 @@ def test_workers_and_scheduler_exclude_each_other(tmp_path):
     proc = run("evaluate", "t.csv", "d.csv", "--workers", "2", "--scheduler", "tcp://127.0.0.1:1")
     assert proc.returncode == 2
     assert "not allowed with argument" in one_line_error(proc)
+
+
+def test_points_on_the_cluster_give_the_in_process_json(client, tmp_path):
+    # --points/--min-points with --scheduler: counted on the workers, the same JSON as the
+    # in-process command (invented warehouse sweeps; points from tests/cli/test_lidar.py's
+    # hand-worked scene, whose second pallet holds no point and is set aside)
+    from tests.cli.test_lidar import write_scene
+
+    paths, *_ = write_scene(tmp_path)
+    common = ("--distance", "0.5,1,2,4", "--points", str(paths["points"]), "--min-points", "3")
+    common += ("-q",)
+    files = (str(paths["truth"]), str(paths["dets"]))
+    local = run("evaluate", *files, *common, "--json", str(tmp_path / "local.json"))
+    assert local.returncode == 0, local.stderr
+    spread = run(
+        "evaluate", *files, *common, "--scheduler", client.scheduler.address,
+        "--json", str(tmp_path / "dask.json"),
+    )  # fmt: skip
+    assert spread.returncode == 0, spread.stderr
+    a = json.loads((tmp_path / "local.json").read_text())
+    b = json.loads((tmp_path / "dask.json").read_text())
+    assert a["points"]["labels"]["pallet"]["set_aside"] == 1
+    assert a == b

@@ -243,3 +243,126 @@ def test_distance_matching_gives_the_same_numbers(client, tables):
     )
     assert got.criterion == "distance"
     assert_same(got, want)
+
+
+def synthetic_points(truth: pd.DataFrame, seed: int) -> pd.DataFrame:
+    """Invented lidar returns for the rotated truths of ``synthetic_tables``: 0-7 points inside
+    each box (drawn in its own frame), its centre and a corner (on the boundary up to
+    rounding), clutter in every frame and in frames without truths; shuffled across frames."""
+    rng = np.random.default_rng(seed)
+    rows = []
+    for f, cx, cy, w, h, a in truth[["frame", *BOX[:5]]].itertuples(index=False):
+        c, s = np.cos(a), np.sin(a)
+        k = int(rng.integers(0, 8))
+        u = rng.uniform(-w / 2, w / 2, k)
+        v = rng.uniform(-h / 2, h / 2, k)
+        for x, y in zip(cx + u * c - v * s, cy + u * s + v * c, strict=True):
+            rows.append((f, x, y))
+        if rng.random() < 0.5:
+            rows.append((f, cx, cy))
+            rows.append((f, cx + w / 2 * c - h / 2 * s, cy + w / 2 * s + h / 2 * c))
+    frames = int(truth["frame"].max()) + 1
+    for f in range(frames + 30):  # clutter, also in frames that hold no truth
+        for x, y in rng.uniform(0, 200, (int(rng.integers(0, 20)), 2)):
+            rows.append((f, x, y))
+    pts = pd.DataFrame(rows, columns=["frame", "x", "y"])
+    pts["z"] = rng.uniform(0, 3, len(pts))  # not used with 2D boxes
+    return pts.sample(frac=1.0, random_state=seed).reset_index(drop=True)
+
+
+@pytest.fixture(scope="module")
+def points(tables):
+    return synthetic_points(tables[0], seed=12)
+
+
+def test_points_and_min_points_give_the_same_numbers(client, tables, points):
+    # Points in Dask partitions that split frames, counted on the workers: the same counts,
+    # set-aside truths, records and result as counting in process (records compared field by
+    # field, truth_points and truth_set_aside included).
+    truth, dets = tables
+    options = dict(iou=[0.5, 0.7], min_points=3)
+    want = evaluation.evaluate(truth, dets, points=points, **options)
+    aside = want.records.truth_set_aside
+    assert 20 < aside.sum() < len(truth) - 100  # both kinds of truths are there
+    assert (want.records.truth_points > 0).sum() > 100
+    got = evaluate_distributed(
+        dd.from_pandas(truth, npartitions=3),
+        dd.from_pandas(dets, npartitions=2),
+        client=client,
+        buckets=5,
+        points=dd.from_pandas(points, npartitions=4),
+        **options,
+    )
+    assert_same(got, want)
+    assert got.to_dict()["points"] == want.to_dict()["points"]
+    # without min_points: the counts only, no truth set aside
+    want = evaluation.evaluate(truth, dets, points=points, distance=[1, 2])
+    got = evaluate_distributed(truth, dets, client=client, points=points, distance=[1, 2])
+    assert not got.records.truth_set_aside.any()
+    assert_same(got, want)
+
+
+def test_points_from_files_folders_and_text_frame_ids(client, tables, points, tmp_path):
+    truth, dets = tables
+    folder = tmp_path / "points"
+    folder.mkdir()
+    cuts = [0, len(points) // 3, len(points) // 3, len(points)]  # one file is empty
+    for k, (lo, hi) in enumerate(zip(cuts[:-1], cuts[1:], strict=True)):
+        points.iloc[lo:hi].to_parquet(folder / f"p{k}.parquet", index=False)
+    want = evaluation.evaluate(truth, dets, points=points, min_points=4)
+    # a folder read file by file on the workers, and in process (the same counts)
+    assert_same(evaluation.evaluate(truth, dets, points=str(folder), min_points=4), want)
+    got = evaluate_distributed(
+        truth, dets, client=client, buckets=7, points=str(folder), min_points=4
+    )
+    assert_same(got, want)
+    # a single CSV file read here; frame ids written as text with leading zeros in the
+    # points only ("007" is frame 7 by the frame-id rule): the same buckets, the same counts
+    text = points.assign(frame=points["frame"].map(lambda f: f"{f:03d}"))
+    text.to_csv(tmp_path / "points.csv", index=False)
+    got = evaluate_distributed(
+        truth,
+        dets,
+        scheduler=client.scheduler.address,
+        points=str(tmp_path / "points.csv"),
+        min_points=4,
+    )
+    assert_same(got, want)
+
+
+def test_points_errors_and_warnings_as_in_process(client, tables, points, tmp_path):
+    from obbiou.errors import InvalidInput, LikelyMistake
+
+    truth, dets = tables
+    with pytest.raises(InvalidInput, match="min_points needs a table of points"):
+        evaluate_distributed(truth, dets, client=client, min_points=3)
+    with pytest.raises(InvalidInput, match="min_points: expected a whole number >= 1"):
+        evaluate_distributed(truth, dets, client=client, points=points, min_points=0)
+    # a bad cell of a single file: the in-process message (file, line, column)
+    bad = points.head(10).astype({"y": object})
+    bad.loc[3, "y"] = "far"
+    bad.to_csv(tmp_path / "bad.csv", index=False)
+    with pytest.raises(ValueError) as in_process:
+        evaluation.evaluate(truth, dets, points=str(tmp_path / "bad.csv"))
+    with pytest.raises(ValueError) as distributed_run:
+        evaluate_distributed(truth, dets, client=client, points=str(tmp_path / "bad.csv"))
+    assert "line 5" in str(in_process.value)  # header is line 1, row 3 is line 5
+    assert str(distributed_run.value) == str(in_process.value)
+    # files with and without z in one folder: refused both ways
+    folder = tmp_path / "mixed"
+    folder.mkdir()
+    points.head(5).to_csv(folder / "a.csv", index=False)
+    points.head(5).drop(columns="z").to_csv(folder / "b.csv", index=False)
+    with pytest.raises(InvalidInput, match="x, y while .* has frame, x, y, z"):
+        evaluation.evaluate(truth, dets, points=str(folder))
+    with pytest.raises(InvalidInput, match="x, y while .* has frame, x, y, z"):
+        evaluate_distributed(truth, dets, client=client, points=str(folder))
+    # points of other frames only: the in-process warning, here on the client, and the same
+    # numbers (every truth holds 0 points)
+    elsewhere = points.assign(frame=points["frame"] + 10_000)
+    with pytest.warns(LikelyMistake, match="share no frame id with the truth"):
+        want = evaluation.evaluate(truth, dets, points=elsewhere)
+    with pytest.warns(LikelyMistake, match="share no frame id with the truth"):
+        got = evaluate_distributed(truth, dets, client=client, points=elsewhere, buckets=4)
+    assert (got.records.truth_points == 0).all()
+    assert_same(got, want)

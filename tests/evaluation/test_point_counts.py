@@ -107,6 +107,50 @@ def test_few_points_make_ignore_truths():
     assert evaluate(truth, dets).to_dict().get("points") is None
 
 
+def test_compare_sets_the_same_truths_aside_for_both_detectors():
+    # The hand-worked case above: P1 (2 returns < 5) is an ignore truth for both detectors.
+    # Detector A finds only P1: its detection is ignored, P0 is a miss -> AP 0. Detector B
+    # finds both: TP on P0, P1's detection ignored -> AP 1. Difference 1, not the 0.5 of
+    # counting P1 as a truth for both (A: AP 0.5, B: AP 1).
+    from obbiou.evaluation import compare
+
+    p = [0.0, 0.0, 0.9, 0.5, 0.5, 1.8, 0.0]
+    q = [5.0, 0.0, 0.9, 0.5, 0.5, 1.8, 0.0]
+    truth = upright([p, q], [0, 0], ["person"] * 2)
+    a = upright([q], [0], ["person"], score=[0.8])
+    b = upright([p, q], [0, 0], ["person"] * 2, score=[0.9, 0.8])
+    pts = {"frame": [0] * 8, "x": [0.0] * 6 + [5.0] * 2, "y": [0.0] * 8,
+           "z": [0.1, 0.4, 0.7, 1.0, 1.3, 1.6, 0.5, 1.0]}  # fmt: skip
+    c = compare(truth, a, b, points=pts, min_points=5, resamples=50)
+    for ev in (c.a, c.b):
+        assert ev.records.truth_set_aside.tolist() == [False, True]
+    assert (c.a.ap("person"), c.b.ap("person"), c.difference) == (0.0, 1.0, 1.0)
+    assert compare(truth, a, b, resamples=50).difference == 0.5
+
+
+def test_points_folder_reads_as_one_table(tmp_path):
+    # a folder of point files (natural order of names) counts as the files together; files
+    # with and without z cannot be mixed
+    box = [0.0, 0.0, 0.5, 1.0, 1.0, 1.0, 0.0]
+    truth = read_table(upright([box, box], [0, 1], ["a", "a"]), role="truth")
+    import pandas as pd
+
+    folder = tmp_path / "pts"
+    folder.mkdir()
+    pd.DataFrame({"frame": [0, 1], "x": [0.0, 0.5], "y": [0.0, 0.5], "z": [0.5, 1.0]}).to_csv(
+        folder / "f2.csv", index=False
+    )
+    pd.DataFrame({"frame": [1], "x": [0.6], "y": [0.0], "z": [0.5]}).to_parquet(
+        folder / "f10.parquet", index=False
+    )
+    assert count_truth_points(truth, str(folder)).tolist() == [1, 1]  # (0.6, 0) is outside
+    pd.DataFrame({"frame": [1], "x": [0.2], "y": [0.0]}).to_csv(folder / "f3.csv", index=False)
+    with pytest.raises(InvalidTable) as err:
+        count_truth_points(truth, str(folder))
+    assert err.value.source.endswith("f3.csv")
+    assert "frame, x, y while" in str(err.value)
+
+
 def test_bad_point_input():
     box = [0.0, 0.0, 0.5, 1.0, 1.0, 1.0, 0.0]
     truth = upright([box], [0], ["a"])
