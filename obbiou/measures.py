@@ -220,7 +220,7 @@ def _matrix(pa: Prepared, pb: Prepared, code: int) -> np.ndarray:
     serial = n * m < PARALLEL_MIN
     if pa.kind == "poly":
         args = (pa.vertices, pa.rows, pb.vertices, pb.rows, code, out)
-        threads.run(pairs.poly_matrix_rows, args, n, serial=serial)
+        threads.run(pairs.poly_body("matrix", code), args, n, serial=serial)
     elif pa.kind == "axis":
         args = (pa.rows, pb.rows, code, pa.is_3d, out)
         threads.run(pairs.axis_matrix_rows, args, n, serial=serial)
@@ -240,7 +240,7 @@ def _pairs(pa: Prepared, pb: Prepared, first: np.ndarray, second: np.ndarray, co
     serial = n < PARALLEL_MIN
     if pa.kind == "poly":
         args = (pa.vertices, pa.rows, pb.vertices, pb.rows, first, second, code, out)
-        threads.run(pairs.poly_list, args, n, serial=serial)
+        threads.run(pairs.poly_body("list", code), args, n, serial=serial)
     else:
         body = pairs.axis_list if pa.kind == "axis" else pairs.rect_body("list", code)
         args = (pa.rows, pb.rows, first, second, code, pa.is_3d, out)

@@ -748,6 +748,8 @@ def poly_hull(VP, p, VQ, q, buf):
 
 @njit(error_model="numpy", cache=True)
 def poly_pair(VA, A, i, VB, B, j, measure, buf):
+    """IoU, intersection or coverage of polygons VA[i] and VB[j] (GIoU and DIoU:
+    :func:`poly_pair_full`, so that a first IoU compiles no hull code)."""
     sa = A[i, P_AREA]
     sb = B[j, P_AREA]
     separate = (
@@ -757,17 +759,22 @@ def poly_pair(VA, A, i, VB, B, j, measure, buf):
         or B[j, P_YMAX] <= A[i, P_YMIN]
     )
     inter = 0.0
-    same = False
     if not separate and sa > 0.0 and sb > 0.0:
         if poly_same(VA, i, VB, j):
-            same = True
             inter = sa
         elif poly_less(VA, i, VB, j):
             inter = min(poly_inter(VB, j, VA, i, buf), sa, sb)
         else:
             inter = min(poly_inter(VA, i, VB, j, buf), sa, sb)
-    if measure == INTERSECTION or measure == IOU or measure == COVERAGE:
-        return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
+    return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
+
+
+@njit(error_model="numpy", cache=True)
+def poly_pair_full(VA, A, i, VB, B, j, measure, buf):
+    """GIoU or DIoU of polygons VA[i] and VB[j]."""
+    sa = A[i, P_AREA]
+    sb = B[j, P_AREA]
+    inter = poly_pair(VA, A, i, VB, B, j, np.int64(INTERSECTION), buf)
     if measure == DIOU:
         # centroids relative to each polygon's vertex 0: no loss at map offsets near 1e7
         dx = (VB[j, 0, 0] - VA[i, 0, 0]) + (B[j, P_GX] - A[i, P_GX])
@@ -775,7 +782,8 @@ def poly_pair(VA, A, i, VB, B, j, measure, buf):
         cw = max(A[i, P_XMAX], B[j, P_XMAX]) - min(A[i, P_XMIN], B[j, P_XMIN])
         ch = max(A[i, P_YMAX], B[j, P_YMAX]) - min(A[i, P_YMIN], B[j, P_YMIN])
         return finish(measure, inter, sa, sb, 0.0, dx * dx + dy * dy, cw * cw + ch * ch)
-    if same or (inter > 0.0 and inter >= min(sa, sb)):
+    # identical polygons have inter == sa == sb > 0: no hull needed
+    if inter > 0.0 and inter >= min(sa, sb):
         return finish(measure, inter, sa, sb, max(sa, sb), 0.0, 0.0)
     if poly_less(VA, i, VB, j):
         hull = poly_hull(VB, j, VA, i, buf)
@@ -891,20 +899,52 @@ def rect_body(job: str, measure: int):
     }[job][full]
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
-def poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi):
-    """Rows lo..hi-1 of the all-pairs matrix of prepared polygons."""
+@njit(inline="always")
+def _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, pair_fn):
     m = B.shape[0]
     buf = np.empty((6, 2 * (VA.shape[1] + VB.shape[1]) + 4))
     for i in range(lo, hi):
         row = out[i * m : (i + 1) * m]
         for j in range(m):
-            row[j] = poly_pair(VA, A, i, VB, B, j, measure, buf)
+            row[j] = pair_fn(VA, A, i, VB, B, j, measure, buf)
+
+
+@njit(inline="always")
+def _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, pair_fn):
+    buf = np.empty((6, 2 * (VA.shape[1] + VB.shape[1]) + 4))
+    for k in range(lo, hi):
+        out[k] = pair_fn(VA, A, first[k], VB, B, second[k], measure, buf)
+
+
+# Polygon bodies, fast (IoU, intersection, coverage) and full (GIoU, DIoU) as for
+# rectangles. Matrices: rows lo..hi-1 of polygons VA (rows A) with VB (rows B). Lists:
+# out[k] for the pairs (VA[first[k]], VB[second[k]]), k in lo..hi-1.
+
+
+@njit(error_model="numpy", cache=True, nogil=True)
+def poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi):
+    _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, poly_pair)
+
+
+@njit(error_model="numpy", cache=True, nogil=True)
+def poly_matrix_rows_full(VA, A, VB, B, measure, out, lo, hi):
+    _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, poly_pair_full)
 
 
 @njit(error_model="numpy", cache=True, nogil=True)
 def poly_list(VA, A, VB, B, first, second, measure, out, lo, hi):
-    """out[k] = the measure of (polygon first[k] of A, polygon second[k] of B)."""
-    buf = np.empty((6, 2 * (VA.shape[1] + VB.shape[1]) + 4))
-    for k in range(lo, hi):
-        out[k] = poly_pair(VA, A, first[k], VB, B, second[k], measure, buf)
+    _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair)
+
+
+@njit(error_model="numpy", cache=True, nogil=True)
+def poly_list_full(VA, A, VB, B, first, second, measure, out, lo, hi):
+    _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair_full)
+
+
+def poly_body(job: str, measure: int):
+    """The polygon body of ``job`` ("matrix", "list") for a measure code."""
+    full = measure in (GIOU, DIOU)
+    return {
+        "matrix": (poly_matrix_rows, poly_matrix_rows_full),
+        "list": (poly_list, poly_list_full),
+    }[job][full]
