@@ -16,7 +16,7 @@ exact sizes; results are clamped to their ranges; zero-size boxes overlap nothin
 NaN escapes (branch-free code may divide by zero in a value it then discards).
 
 Rectangles (the common case) take a branch-free path that vectorises across pairs: the
-boundary-integral area of :func:`rect_area`, with separating-axis tests for disjoint and
+boundary-integral area of :func:`rect_intersection`, with separating-axis tests for disjoint and
 nested pairs. Near-parallel pairs are flagged and clipped polygon-wise instead
 (:func:`rect_slow`). Every path ends in the same arithmetic per pair, so all-pairs
 matrices, pair lists and elementwise values agree bit for bit.
@@ -255,17 +255,37 @@ NEAR_PARALLEL = 1.0 / 64.0
 
 
 @njit(error_model="numpy", cache=True, forceinline=True)
-def rect_area(p, q):
-    """Intersection area of rectangles p and q (row tuples), in p's own frame: (area, redo).
+def rect_intersection(a, b):
+    """Intersection size of boxes a and b (row tuples), in canonical order: (size, redo).
 
-    In p's frame p is the axis-aligned rectangle [-hw, hw] x [-hh, hh]. Per-box cos/sin and
-    the angle-difference identities: no trigonometry per pair. Separating-axis tests on both
-    boxes' axes give exact 0 for disjoint pairs, exact sizes for nested ones. Otherwise the
-    area is the boundary integral (1/2) * closed integral of (x dy - y dx) over the
-    intersection's boundary: the parts of q's edges inside p and of p's edges inside q, each
-    found by parametric clipping against the other box in that box's own frame.
-    Branch-free; ``redo`` flags near-parallel pairs, which the caller clips polygon-wise.
+    The boxes are taken in canonical order (:func:`rect_before`), p first, and the area is
+    computed in p's own frame, where p is the axis-aligned rectangle [-hw, hw] x [-hh, hh].
+    Per-box cos/sin and the angle-difference identities: no trigonometry per pair.
+    Separating-axis tests on both boxes' axes give exact 0 for disjoint pairs, exact sizes
+    for nested ones. Otherwise the area is the boundary integral (1/2) * closed integral of
+    (x dy - y dx) over the intersection's boundary: the parts of q's edges inside p and of
+    p's edges inside q, each found by parametric clipping against the other box in that
+    box's own frame. 2D rows have z 0..1, so the z overlap is exactly 1 and 2D and 3D boxes
+    share this code (and the vectorised loop) without a flag.
+
+    Branch-free, one function (each compiled function costs compile time of its own);
+    ``redo`` flags near-parallel pairs, which the caller recomputes with :func:`rect_slow`.
     """
+    swap = rect_before(a, b)
+    p = pick(swap, a, b)
+    q = pick(swap, b, a)
+    sa = p[R_SIZE]
+    sb = q[R_SIZE]
+    dz = min(p[R_Z1], q[R_Z1]) - max(p[R_Z0], q[R_Z0])
+    # Extents that meet exactly mean an exact 0 (boxes sharing an edge in absolute
+    # coordinates), unless an extent has collapsed to a point: a side below the rounding of
+    # the centre's coordinates (1e-20 at x = 1) does that, and the box would be disjoint
+    # from itself. Those pairs are left to the exact tests below.
+    wide = (p[R_XMAX] > p[R_XMIN]) & (q[R_XMAX] > q[R_XMIN])
+    high = (p[R_YMAX] > p[R_YMIN]) & (q[R_YMAX] > q[R_YMIN])
+    separate = wide & ((p[R_XMAX] <= q[R_XMIN]) | (q[R_XMAX] <= p[R_XMIN]))
+    separate = separate | (high & ((p[R_YMAX] <= q[R_YMIN]) | (q[R_YMAX] <= p[R_YMIN])))
+    separate = separate | (sa <= 0.0) | (sb <= 0.0) | (dz <= 0.0)
     phw = p[R_HW]
     phh = p[R_HH]
     qhw = q[R_HW]
@@ -344,45 +364,15 @@ def rect_area(p, q):
     area = p[R_AREA] if p_in_q else area
     area = 0.0 if disjoint else area
     near = (abs(c) < NEAR_PARALLEL) | (abs(s) < NEAR_PARALLEL)
-    return area, near & ~(disjoint | q_in_p | p_in_q)
-
-
-@njit(error_model="numpy", cache=True, forceinline=True)
-def rect_ordered(p, q):
-    """Intersection size of rectangles p and q (row tuples, p first in canonical order):
-    (size, redo). 2D rows have z 0..1, so the z overlap is exactly 1 and 2D and 3D boxes
-    share this code (and the vectorised loop) without a flag."""
-    sa = p[R_SIZE]
-    sb = q[R_SIZE]
-    dz = min(p[R_Z1], q[R_Z1]) - max(p[R_Z0], q[R_Z0])
-    # Extents that meet exactly mean an exact 0 (boxes sharing an edge in absolute
-    # coordinates), unless an extent has collapsed to a point: a side below the rounding of
-    # the centre's coordinates (1e-20 at x = 1) does that, and the box would be disjoint
-    # from itself. Those pairs are left to the exact tests of rect_area.
-    wide = (p[R_XMAX] > p[R_XMIN]) & (q[R_XMAX] > q[R_XMIN])
-    high = (p[R_YMAX] > p[R_YMIN]) & (q[R_YMAX] > q[R_YMIN])
-    separate = wide & ((p[R_XMAX] <= q[R_XMIN]) | (q[R_XMAX] <= p[R_XMIN]))
-    separate = separate | (high & ((p[R_YMAX] <= q[R_YMIN]) | (q[R_YMAX] <= p[R_YMIN])))
-    separate = separate | (sa <= 0.0) | (sb <= 0.0) | (dz <= 0.0)
-    area, redo = rect_area(p, q)
+    redo = near & ~(disjoint | q_in_p | p_in_q)
     inter = 0.0 if separate else min(area * dz, sa, sb)
     return inter, redo & ~separate
-
-
-@njit(error_model="numpy", cache=True, forceinline=True)
-def rect_intersection(a, b):
-    """Intersection size of boxes a and b (row tuples), in canonical order: (size, redo).
-
-    Branch-free; ``redo`` asks the caller to recompute the pair with :func:`rect_slow`.
-    """
-    swap = rect_before(a, b)
-    return rect_ordered(pick(swap, a, b), pick(swap, b, a))
 
 
 @njit(error_model="numpy", cache=True)
 def rect_slow(a, b, buf):
     """Intersection size of rectangles a and b (row tuples) by polygon clipping: the
-    near-parallel path."""
+    near-parallel path (one function with the clipping: each costs compile time)."""
     if rect_before(a, b):
         a, b = b, a
     phw = a[R_HW]
@@ -402,19 +392,12 @@ def rect_slow(a, b, buf):
     uy = s * b[R_HW]
     vx = -s * b[R_HH]
     vy = c * b[R_HH]
-    area = rect_clip(phw, phh, px, py, ux, uy, vx, vy, a[R_AREA], b[R_AREA], buf)
-    dz = min(a[R_Z1], b[R_Z1]) - max(a[R_Z0], b[R_Z0])
-    return min(area * dz, a[R_SIZE], b[R_SIZE])
-
-
-@njit(error_model="numpy", cache=True)
-def rect_clip(phw, phh, px, py, ux, uy, vx, vy, parea, qarea, buf):
-    """Clip rectangle Q (centre p, half axes u, v, in P's frame) to P = [-phw, phw] x ..."""
+    # Clip q (its corners counter-clockwise) to p = [-phw, phw] x [-phh, phh], one side at
+    # a time (Sutherland & Hodgman, 1974).
     x1 = buf[0]
     y1 = buf[1]
     x2 = buf[2]
     y2 = buf[3]
-    # Q's corners, counter-clockwise.
     x1[0] = px - ux - vx
     y1[0] = py - uy - vy
     x1[1] = px + ux - vx
@@ -427,8 +410,9 @@ def rect_clip(phw, phh, px, py, ux, uy, vx, vy, parea, qarea, buf):
     n = clip_axis(x2, y2, n, x1, y1, -1.0, phw)
     n = clip_axis(y1, x1, n, y2, x2, 1.0, phh)
     n = clip_axis(y2, x2, n, y1, x1, -1.0, phh)
-    area = shoelace(x1, y1, n)
-    return min(max(area, 0.0), parea, qarea)
+    area = min(max(shoelace(x1, y1, n), 0.0), a[R_AREA], b[R_AREA])
+    dz = min(a[R_Z1], b[R_Z1]) - max(a[R_Z0], b[R_Z0])
+    return min(area * dz, a[R_SIZE], b[R_SIZE])
 
 
 @njit(error_model="numpy", cache=True)
@@ -524,12 +508,6 @@ def rect_measure(a, b, measure, is3d, buf):
     return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
 
 
-@njit(error_model="numpy", cache=True)
-def rect_value(A, i, B, j, measure, is3d, buf):
-    """The measure of pair (A[i], B[j]) of prepared rectangles (see :func:`rect_measure`)."""
-    return rect_measure(rect_load(A, i), rect_load(B, j), measure, is3d, buf)
-
-
 @njit(error_model="numpy", cache=True, forceinline=True)
 def _overlap(lo0, hi0, lo1, hi1):
     return max(min(hi0, hi1) - max(lo0, lo1), 0.0)
@@ -614,15 +592,6 @@ def rect_inter_columns(PT, QT, out):
         out[k] = -1.0 if again else inter
 
 
-@njit(error_model="numpy", cache=True)
-def rect_inter_row(a, BT, out):
-    """:func:`rect_inter_columns` of one box ``a`` (row tuple) with every column of BT:
-    the loop of all-pairs matrices."""
-    for j in range(out.shape[0]):
-        inter, again = rect_intersection(a, rect_load_t(BT, j))
-        out[j] = -1.0 if again else inter
-
-
 # Pairs per block of the vectorised loop: two (16, 264) scratch arrays (68 KB), small
 # enough to come from the allocator's free lists rather than fresh pages.
 RECT_BLOCK = 256
@@ -650,25 +619,6 @@ def rect_block_full(PT, QT, measure, is3d, out, buf):
     """out[k] = any measure (GIoU, DIoU) of column k of PT with column k of QT."""
     for k in range(out.shape[0]):
         out[k] = rect_measure(rect_load_t(PT, k), rect_load_t(QT, k), measure, is3d, buf)
-
-
-@njit(error_model="numpy", cache=True)
-def rect_row(a, BT, measure, is3d, row, buf):
-    """row[j] = a fast measure of box ``a`` (row tuple) with column j of BT: the
-    vectorised loop of :func:`rect_inter_row`, flagged pairs redone by clipping."""
-    rect_inter_row(a, BT, row)
-    for j in range(row.shape[0]):
-        v = row[j]
-        if v < 0.0:
-            v = rect_inter_value(a, rect_load_t(BT, j), buf)
-        row[j] = finish(measure, v, a[R_SIZE], BT[R_SIZE, j], 0.0, 0.0, 0.0)
-
-
-@njit(error_model="numpy", cache=True)
-def rect_row_full(a, BT, measure, is3d, row, buf):
-    """row[j] = any measure (GIoU, DIoU) of box ``a`` with column j of BT."""
-    for j in range(row.shape[0]):
-        row[j] = rect_measure(a, rect_load_t(BT, j), measure, is3d, buf)
 
 
 # --------------------------------------------------------------------------------------
@@ -817,13 +767,6 @@ def axis_list(A, B, first, second, measure, is3d, out, lo, hi):
 
 
 @njit(inline="always")
-def _rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi, row_fn):
-    buf = np.empty((4, RECT_SCRATCH))
-    for i in range(lo, hi):
-        row_fn(rect_load(A, i), BT, measure, is3d, out[i * m : (i + 1) * m], buf)
-
-
-@njit(inline="always")
 def _rect_list(A, B, first, second, measure, is3d, out, lo, hi, block):
     # Rows of the scratch blocks are padded off a multiple of 4096 bytes apart: sixteen
     # streams exactly 4 KiB apart would fight over the same L1 cache sets.
@@ -860,13 +803,50 @@ def _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, block):
 
 
 @njit(error_model="numpy", cache=True, nogil=True)
-def rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi):
-    _rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi, rect_row)
+def rect_matrix_rows(A, BT, m, measure, out, redo, lo, hi):
+    """Rows lo..hi-1 of a fast measure's matrix; near-parallel pairs are left at -1 and
+    counted in ``redo[i]``, for :func:`rect_matrix_redo` (only called when there are
+    any, so that a first call on ordinary boxes compiles no clipping code)."""
+    for i in range(lo, hi):
+        a = rect_load(A, i)
+        row = out[i * m : (i + 1) * m]
+        for j in range(m):  # the vectorised loop: the flag rides in the value
+            inter, again = rect_intersection(a, rect_load_t(BT, j))
+            row[j] = -1.0 if again else inter
+        flagged = 0
+        for j in range(m):
+            v = row[j]
+            flagged += v < 0.0
+            row[j] = v if v < 0.0 else finish(measure, v, a[R_SIZE], BT[R_SIZE, j], 0.0, 0.0, 0.0)
+        redo[i] = flagged
+
+
+@njit(error_model="numpy", cache=True, nogil=True)
+def rect_matrix_redo(A, BT, m, measure, out, redo, lo, hi):
+    """The pairs of rows lo..hi-1 that :func:`rect_matrix_rows` left at -1, by clipping:
+    what :func:`rect_inter_value` does with a flagged pair, so bit for bit
+    :func:`rect_measure`."""
+    buf = np.empty((4, RECT_SCRATCH))
+    for i in range(lo, hi):
+        if redo[i] == 0:
+            continue
+        a = rect_load(A, i)
+        row = out[i * m : (i + 1) * m]
+        for j in range(m):
+            if row[j] < 0.0:
+                inter = rect_slow(a, rect_load_t(BT, j), buf)
+                row[j] = finish(measure, inter, a[R_SIZE], BT[R_SIZE, j], 0.0, 0.0, 0.0)
 
 
 @njit(error_model="numpy", cache=True, nogil=True)
 def rect_matrix_rows_full(A, BT, m, measure, is3d, out, lo, hi):
-    _rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi, rect_row_full)
+    """Rows lo..hi-1 of the matrix of GIoU or DIoU."""
+    buf = np.empty((4, RECT_SCRATCH))
+    for i in range(lo, hi):
+        a = rect_load(A, i)
+        row = out[i * m : (i + 1) * m]
+        for j in range(m):
+            row[j] = rect_measure(a, rect_load_t(BT, j), measure, is3d, buf)
 
 
 @njit(error_model="numpy", cache=True, nogil=True)
@@ -890,10 +870,10 @@ def rect_elementwise_full(Da, la, Db, lb, measure, is3d, out, lo, hi):
 
 
 def rect_body(job: str, measure: int):
-    """The rectangle body of ``job`` ("matrix", "list", "elementwise") for a measure code."""
+    """The rectangle body of ``job`` ("list", "elementwise") for a measure code (matrices:
+    :func:`rect_matrix_rows` and :func:`rect_matrix_redo`, or :func:`rect_matrix_rows_full`)."""
     full = measure in (GIOU, DIOU)
     return {
-        "matrix": (rect_matrix_rows, rect_matrix_rows_full),
         "list": (rect_list, rect_list_full),
         "elementwise": (rect_elementwise, rect_elementwise_full),
     }[job][full]
