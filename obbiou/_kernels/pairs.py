@@ -34,6 +34,7 @@ from numba import njit
 from obbiou._kernels.clip import clip_axis, clip_line, hull_area, shoelace
 from obbiou._kernels.codes import Measure
 from obbiou._kernels.geometry import rect_tuple
+from obbiou._kernels.options import ENTRY, HELPER
 
 INTERSECTION = int(Measure.INTERSECTION)
 IOU = int(Measure.IOU)
@@ -54,7 +55,7 @@ POLY_COLUMNS = 7
 RECT_SCRATCH = 24
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def finish(measure, inter, sa, sb, hull, d2, c2):
     """Turn an intersection (and, for GIoU/DIoU, hull size or distances) into a measure."""
     if measure == INTERSECTION:
@@ -83,7 +84,7 @@ def finish(measure, inter, sa, sb, hull, d2, c2):
 # axis-aligned boxes (axis, axis3)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def axis_less(A, i, B, j):
     """True when row B[j] sorts before row A[i] (lexicographic on the data)."""
     for k in range(6):
@@ -92,7 +93,7 @@ def axis_less(A, i, B, j):
     return False
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def axis_pair(A, i, B, j, measure, is3d, buf):
     sa = A[i, AX_SIZE]
     sb = B[j, AX_SIZE]
@@ -130,7 +131,7 @@ def axis_pair(A, i, B, j, measure, is3d, buf):
     return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def axis_corners(R, r, ox, oy, xs, ys, at):
     x0 = R[r, AX_X0] - ox
     x1 = R[r, AX_X1] - ox
@@ -146,7 +147,7 @@ def axis_corners(R, r, ox, oy, xs, ys, at):
     ys[at + 3] = y1
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def axis_hull(P, p, Q, q, is3d, buf):
     """Convex hull area of two axis-aligned boxes (times the joint z span in 3D)."""
     ox = P[p, AX_X0]
@@ -172,7 +173,7 @@ def axis_hull(P, p, Q, q, is3d, buf):
 # 1000 IoU 8.7 -> 42 ms on one thread); ``forceinline``, 7.5 s and 8.8 ms.
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def rect_load(R, i):
     """Row i of prepared rectangles (N, 16) as a tuple."""
     return (
@@ -181,7 +182,7 @@ def rect_load(R, i):
     )  # fmt: skip
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def rect_load_t(RT, j):
     """Column j of transposed prepared rectangles (16, M) as a tuple."""
     return (
@@ -190,7 +191,7 @@ def rect_load_t(RT, j):
     )  # fmt: skip
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def rect_store_t(RT, j, t):
     """Write row tuple t into column j of transposed rows RT (16, M)."""
     RT[0, j], RT[1, j], RT[2, j], RT[3, j] = t[0], t[1], t[2], t[3]
@@ -199,7 +200,7 @@ def rect_store_t(RT, j, t):
     RT[12, j], RT[13, j], RT[14, j], RT[15, j] = t[12], t[13], t[14], t[15]
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def pick(swap, a, b):
     """b if swap else a, element by element (selects, not a branch: loops vectorise)."""
     return (
@@ -212,7 +213,7 @@ def pick(swap, a, b):
     )  # fmt: skip
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def rect_before(a, b):
     """True when box b sorts before box a: lexicographic on cx, cy, hw, hh, cos, sin, z0,
     z1 (2D rows all have z 0..1). Branch-free, so that loops over pairs vectorise."""
@@ -233,7 +234,7 @@ def rect_before(a, b):
     return lt | (eq & (b[12] < a[12]))
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def span_inside(x0, y0, rx, ry, hx, hy):
     """Length share of segment (x0, y0) + t d, t in [0, 1], inside |x| <= hx, |y| <= hy.
 
@@ -254,7 +255,7 @@ def span_inside(x0, y0, rx, ry, hx, hy):
 NEAR_PARALLEL = 1.0 / 64.0
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def rect_intersection(a, b):
     """Intersection size of boxes a and b (row tuples), in canonical order: (size, redo).
 
@@ -369,7 +370,7 @@ def rect_intersection(a, b):
     return inter, redo & ~separate
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_slow(a, b, buf):
     """Intersection size of rectangles a and b (row tuples) by polygon clipping: the
     near-parallel path (one function with the clipping: each costs compile time)."""
@@ -415,7 +416,7 @@ def rect_slow(a, b, buf):
     return min(area * dz, a[R_SIZE], b[R_SIZE])
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_hull(a, b, buf):
     """Area of the convex hull of rectangles a and b (row tuples), in a's frame."""
     phw = a[R_HW]
@@ -456,7 +457,7 @@ def rect_hull(a, b, buf):
     return hull_area(xs, ys, np.int64(8), buf[2], buf[3])
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_inter_value(a, b, buf):
     """Intersection size of rectangles a and b (row tuples): the vectorisable arithmetic,
     or polygon clipping for the pairs it flags. The IoU-only paths (hard suppression) call
@@ -467,7 +468,7 @@ def rect_inter_value(a, b, buf):
     return inter
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_measure(a, b, measure, is3d, buf):
     """The measure of rectangles a and b (row tuples): every path ends here or, for IoU,
     intersection and coverage, in the same arithmetic in :func:`rect_block`.
@@ -508,12 +509,12 @@ def rect_measure(a, b, measure, is3d, buf):
     return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def _overlap(lo0, hi0, lo1, hi1):
     return max(min(hi0, hi1) - max(lo0, lo1), 0.0)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**ENTRY)
 def rect_iou_verdict(A, i, B, j, thr):
     """Whether IoU(A[i], B[j]) > thr for prepared rectangles, from cheap bounds: 1 (above),
     0 (not above) or -1 (undecided: compute it). For hard suppression, which needs only
@@ -582,7 +583,7 @@ def rect_iou_verdict(A, i, B, j, thr):
 # 16 ms against 8.7 ms).
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_inter_columns(PT, QT, out):
     """out[k] = intersection of column k of PT with column k of QT (prepared rows,
     transposed), or -1 for a pair to recompute with :func:`rect_measure`. A vectorised
@@ -602,7 +603,7 @@ RECT_BLOCK = 256
 # hull (GIoU) and distance (DIoU) code was over a second of the first call's compiling.
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_block(PT, QT, measure, is3d, out, buf):
     """out[k] = a fast measure of column k of PT with column k of QT: the vectorised loop,
     its flagged (near-parallel) pairs redone by clipping. Bit for bit :func:`rect_measure`."""
@@ -614,7 +615,7 @@ def rect_block(PT, QT, measure, is3d, out, buf):
         out[k] = finish(measure, v, PT[R_SIZE, k], QT[R_SIZE, k], 0.0, 0.0, 0.0)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_block_full(PT, QT, measure, is3d, out, buf):
     """out[k] = any measure (GIoU, DIoU) of column k of PT with column k of QT."""
     for k in range(out.shape[0]):
@@ -625,7 +626,7 @@ def rect_block_full(PT, QT, measure, is3d, out, buf):
 # convex polygons
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_less(VA, i, VB, j):
     """True when polygon VB[j] sorts before VA[i] (vertex count, then vertices)."""
     ka = VA.shape[1]
@@ -639,7 +640,7 @@ def poly_less(VA, i, VB, j):
     return False
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_same(VA, i, VB, j):
     if VA.shape[1] != VB.shape[1]:
         return False
@@ -649,7 +650,7 @@ def poly_same(VA, i, VB, j):
     return True
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_inter(VP, p, VQ, q, buf):
     """Intersection area of convex polygons VP[p] and VQ[q], relative to VP[p]'s vertex 0."""
     kp = VP.shape[1]
@@ -679,7 +680,7 @@ def poly_inter(VP, p, VQ, q, buf):
     return max(shoelace(x1, y1, n), 0.0)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_hull(VP, p, VQ, q, buf):
     kp = VP.shape[1]
     kq = VQ.shape[1]
@@ -696,7 +697,7 @@ def poly_hull(VP, p, VQ, q, buf):
     return hull_area(xs, ys, kp + kq, buf[2], buf[3])
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_pair(VA, A, i, VB, B, j, measure, buf):
     """IoU, intersection or coverage of polygons VA[i] and VB[j] (GIoU and DIoU:
     :func:`poly_pair_full`, so that a first IoU compiles no hull code)."""
@@ -719,7 +720,7 @@ def poly_pair(VA, A, i, VB, B, j, measure, buf):
     return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_pair_full(VA, A, i, VB, B, j, measure, buf):
     """GIoU or DIoU of polygons VA[i] and VB[j]."""
     sa = A[i, P_AREA]
@@ -747,7 +748,7 @@ def poly_pair_full(VA, A, i, VB, B, j, measure, buf):
 # are written flat, row i at out[i * m : (i + 1) * m].
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def axis_matrix_rows(A, B, measure, is3d, out, lo, hi):
     """Rows lo..hi-1 of the all-pairs matrix of prepared axis boxes A with B."""
     m = B.shape[0]
@@ -758,7 +759,7 @@ def axis_matrix_rows(A, B, measure, is3d, out, lo, hi):
             row[j] = axis_pair(A, i, B, j, measure, is3d, buf)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def axis_list(A, B, first, second, measure, is3d, out, lo, hi):
     """out[k] = the measure of (A[first[k]], B[second[k]]) for k in lo..hi-1."""
     buf = np.empty((4, RECT_SCRATCH))
@@ -802,7 +803,7 @@ def _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, block):
 # (layouts la, lb), no (N, 16) arrays.
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_matrix_rows(A, BT, m, measure, out, redo, lo, hi):
     """Rows lo..hi-1 of a fast measure's matrix; near-parallel pairs are left at -1 and
     counted in ``redo[i]``, for :func:`rect_matrix_redo` (only called when there are
@@ -821,7 +822,7 @@ def rect_matrix_rows(A, BT, m, measure, out, redo, lo, hi):
         redo[i] = flagged
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_matrix_redo(A, BT, m, measure, out, redo, lo, hi):
     """The pairs of rows lo..hi-1 that :func:`rect_matrix_rows` left at -1, by clipping:
     what :func:`rect_inter_value` does with a flagged pair, so bit for bit
@@ -838,7 +839,7 @@ def rect_matrix_redo(A, BT, m, measure, out, redo, lo, hi):
                 row[j] = finish(measure, inter, a[R_SIZE], BT[R_SIZE, j], 0.0, 0.0, 0.0)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_matrix_rows_full(A, BT, m, measure, is3d, out, lo, hi):
     """Rows lo..hi-1 of the matrix of GIoU or DIoU."""
     buf = np.empty((4, RECT_SCRATCH))
@@ -849,22 +850,22 @@ def rect_matrix_rows_full(A, BT, m, measure, is3d, out, lo, hi):
             row[j] = rect_measure(a, rect_load_t(BT, j), measure, is3d, buf)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_list(A, B, first, second, measure, is3d, out, lo, hi):
     _rect_list(A, B, first, second, measure, is3d, out, lo, hi, rect_block)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_list_full(A, B, first, second, measure, is3d, out, lo, hi):
     _rect_list(A, B, first, second, measure, is3d, out, lo, hi, rect_block_full)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi):
     _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, rect_block)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_elementwise_full(Da, la, Db, lb, measure, is3d, out, lo, hi):
     _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, rect_block_full)
 
@@ -901,22 +902,22 @@ def _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, pair_fn):
 # out[k] for the pairs (VA[first[k]], VB[second[k]]), k in lo..hi-1.
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi):
     _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, poly_pair)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def poly_matrix_rows_full(VA, A, VB, B, measure, out, lo, hi):
     _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, poly_pair_full)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def poly_list(VA, A, VB, B, first, second, measure, out, lo, hi):
     _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def poly_list_full(VA, A, VB, B, first, second, measure, out, lo, hi):
     _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair_full)
 
