@@ -795,9 +795,10 @@ def _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, block):
         block(PT, QT, measure, is3d, out[s : s + n], buf)
 
 
-# The bodies of the three jobs, each for the fast and the full measures (the generic
-# bodies above are written once; numba inlines them, so each of these is a plain cached
-# kernel). Matrices: rows lo..hi-1 of A with B given as its transposed rows BT (16, >= m).
+# The bodies of the three jobs, each for the fast and the full measures (the generic list
+# and elementwise bodies above are written once; numba inlines them, so each of these is a
+# plain cached kernel). Matrices: rows lo..hi-1 of A with B given as its transposed rows
+# BT (16, >= m); the fast matrix body flags near-parallel pairs for a second body.
 # Lists: out[k] for the pairs (A[first[k]], B[second[k]]), k in lo..hi-1, gathered block by
 # block into columns. Elementwise: box k of a with box k of b straight from the box data
 # (layouts la, lb), no (N, 16) arrays.
