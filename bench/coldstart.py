@@ -4,7 +4,9 @@ Every row runs in a fresh Python process with an empty ``NUMBA_CACHE_DIR``, so i
 every compile a new user, a CI run or a fresh Dask worker pays. Times are printed in
 seconds and in units of numba's compile of a trivial ``prange`` kernel, measured in a fresh
 process of the same run (the first parallel kernel of a process, thread-pool start
-included), so the multiples hold from machine to machine.
+included), so the multiples hold from machine to machine. Rows also give the process's CPU
+seconds over the same calls as a multiple of the unit's CPU seconds: on a machine that
+others share, steadier than wall time.
 
     python bench/coldstart.py              # the table (about 4 minutes on 2 cores)
     python bench/coldstart.py --profile    # and the compile time of every kernel per row
@@ -39,7 +41,8 @@ def f(n):
     for i in prange(n):
         s += i
     return s
-t0 = time.perf_counter(); f(10); first = time.perf_counter() - t0
+c0 = time.process_time(); t0 = time.perf_counter(); f(10)
+first = time.perf_counter() - t0; cpu = time.process_time() - c0
 """
 
 TRIVIAL_SERIAL = """
@@ -50,7 +53,8 @@ def f(n):
     for i in range(n):
         s += i
     return s
-t0 = time.perf_counter(); f(10); first = time.perf_counter() - t0
+c0 = time.process_time(); t0 = time.perf_counter(); f(10)
+first = time.perf_counter() - t0; cpu = time.process_time() - c0
 """
 
 FIRST_IOU = """
@@ -64,8 +68,10 @@ def boxes(n):
     c = rng.uniform(0, 10, (n, 1, 2)); t = np.linspace(0, 2 * np.pi, 5)[:-1]
     return c + np.stack([np.cos(t), np.sin(t)], -1)[None] * 2
 small, big = boxes(3), boxes(300)
+c0 = time.process_time()
 t0 = time.perf_counter(); obbiou.iou(small, small); first = time.perf_counter() - t0
 t0 = time.perf_counter(); obbiou.iou(big, big); extra = time.perf_counter() - t0
+cpu = time.process_time() - c0
 """
 
 FIRST_PAIRS = """
@@ -75,9 +81,11 @@ def boxes(n, span):  # rotated boxes 5-30 long at random angles
     return np.column_stack([rng.uniform(0, span, (n, 2)), rng.uniform(5, 30, (n, 2)),
                             rng.uniform(-np.pi, np.pi, n)])
 b = boxes(50, 100)
+c0 = time.process_time()
 t0 = time.perf_counter(); obbiou.overlapping_pairs(b); first = time.perf_counter() - t0
 b = boxes(30000, 3000)
 t0 = time.perf_counter(); obbiou.overlapping_pairs(b); extra = time.perf_counter() - t0
+cpu = time.process_time() - c0
 """
 
 FIRST_SUPPRESS = """
@@ -87,9 +95,11 @@ def boxes(n, span):  # rotated boxes 5-30 long at random angles
     return np.column_stack([rng.uniform(0, span, (n, 2)), rng.uniform(5, 30, (n, 2)),
                             rng.uniform(-np.pi, np.pi, n)])
 b = boxes(50, 100)
+c0 = time.process_time()
 t0 = time.perf_counter(); obbiou.suppress(b, rng.random(50)); first = time.perf_counter() - t0
 b = boxes(30000, 3000)
 t0 = time.perf_counter(); obbiou.suppress(b, rng.random(30000)); extra = time.perf_counter() - t0
+cpu = time.process_time() - c0
 """
 
 FIRST_EVALUATE = """
@@ -103,9 +113,11 @@ truth = {"frame": rng.integers(0, 4, n), "label": rng.choice(["vessel", "crane"]
          "angle": rng.uniform(-1.5, 1.5, n)}
 dets = {k: (v + rng.normal(0, 1, n) if k in ("cx", "cy") else v) for k, v in truth.items()}
 dets["score"] = rng.random(n)
+c0 = time.process_time()
 t0 = time.perf_counter()
 evaluate(truth, dets, iou="0.5:0.95:0.05")
 first = time.perf_counter() - t0
+cpu = time.process_time() - c0
 """
 
 WARM_IMPORT = """
@@ -151,7 +163,8 @@ kernels = {{}}
 if "_excl" in globals():
     kernels = {k: [_excl[k], _incl[k], _count[k]] for k in _excl}
 print("RESULT " + json.dumps({"first": first, "extra": extra, "kernels": kernels,
-                              "numpy": globals().get("t_numpy", 0.0)}))
+                              "numpy": globals().get("t_numpy", 0.0),
+                              "cpu": globals().get("cpu", 0.0)}))
 """
     return head + textwrap.dedent(body) + tail
 
@@ -213,17 +226,27 @@ def main() -> None:
     parser.add_argument("--only", default="", help="run only rows whose name contains this")
     args = parser.parse_args()
 
-    unit = run_row(TRIVIAL_PARALLEL)["first"]
+    trivial = run_row(TRIVIAL_PARALLEL)
+    unit, unit_cpu = trivial["first"], trivial["cpu"]
     serial = run_row(TRIVIAL_SERIAL)["first"]
-    print(f"unit: numba's compile of a trivial prange kernel, fresh process: {unit:.2f} s")
+    print(
+        f"unit: numba's compile of a trivial prange kernel, fresh process: {unit:.2f} s "
+        f"({unit_cpu:.2f} s CPU)"
+    )
     print(f"      (a trivial serial kernel: {serial:.2f} s)")
+    print("CPU: the process's CPU seconds over the same calls, and their multiple of the unit's")
+    print("     CPU seconds (steadier than wall time on a machine others share)")
     print()
     print(f"{'first use, cold cache':<46s} {'seconds':>8s} {'x unit':>7s} {'goal':>6s}")
 
-    def line(name: str, seconds: float, goal: float | None, note: str = "") -> None:
+    def line(
+        name: str, seconds: float, goal: float | None, note: str = "", cpu: float = 0.0
+    ) -> None:
         mult = seconds / unit
         verdict = "" if goal is None else ("met" if mult <= goal else "NOT met")
         goal_s = "" if goal is None else f"<={goal:g}x"
+        if cpu:
+            note = f"[CPU {cpu:.2f} s = {cpu / unit_cpu:.1f}x] {note}"
         print(f"{name:<46s} {seconds:8.2f} {mult:6.1f}x {goal_s:>6s} {verdict} {note}", flush=True)
 
     rows = [
@@ -244,7 +267,7 @@ def main() -> None:
             if r["extra"]
             else ""
         )
-        line(name, total, goal, note)
+        line(name, total, goal, note, r["cpu"])
         if args.profile:
             print_kernels(r["kernels"])
     for name, cmd, goal in (("obbiou warmup", ["warmup"], 40), ("obbiou demo", ["demo"], 60)):

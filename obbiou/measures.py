@@ -220,15 +220,24 @@ def _matrix(pa: Prepared, pb: Prepared, code: int) -> np.ndarray:
     serial = n * m < PARALLEL_MIN
     if pa.kind == "poly":
         args = (pa.vertices, pa.rows, pb.vertices, pb.rows, code, out)
-        threads.run(pairs.poly_matrix_rows, args, n, serial=serial)
+        threads.run(pairs.poly_body("matrix", code), args, n, serial=serial)
     elif pa.kind == "axis":
         args = (pa.rows, pb.rows, code, pa.is_3d, out)
         threads.run(pairs.axis_matrix_rows, args, n, serial=serial)
     else:
         bt = np.empty((pairs.RECT_COLUMNS, m + 8))  # padded: rows not a multiple of 4 KiB apart
         bt[:, :m] = pb.rows.T
-        args = (pa.rows, bt, m, code, pa.is_3d, out)
-        threads.run(pairs.rect_body("matrix", code), args, n, serial=serial)
+        if code in (pairs.GIOU, pairs.DIOU):
+            args = (pa.rows, bt, m, code, pa.is_3d, out)
+            threads.run(pairs.rect_matrix_rows_full, args, n, serial=serial)
+        else:
+            # near-parallel pairs come back flagged, to be clipped by a second body that
+            # compiles only when some input has them
+            redo = np.empty(n, np.int64)
+            args = (pa.rows, bt, m, code, out, redo)
+            threads.run(pairs.rect_matrix_rows, args, n, serial=serial)
+            if redo.any():
+                threads.run(pairs.rect_matrix_redo, args, n, serial=serial)
     return out.reshape(n, m)
 
 
@@ -240,7 +249,7 @@ def _pairs(pa: Prepared, pb: Prepared, first: np.ndarray, second: np.ndarray, co
     serial = n < PARALLEL_MIN
     if pa.kind == "poly":
         args = (pa.vertices, pa.rows, pb.vertices, pb.rows, first, second, code, out)
-        threads.run(pairs.poly_list, args, n, serial=serial)
+        threads.run(pairs.poly_body("list", code), args, n, serial=serial)
     else:
         body = pairs.axis_list if pa.kind == "axis" else pairs.rect_body("list", code)
         args = (pa.rows, pb.rows, first, second, code, pa.is_3d, out)
@@ -477,8 +486,13 @@ def warmup() -> None:
     cases = [
         [[0.0, 0.0, 1.0, 1.0], [0.5, 0.5, 2.0, 2.0]],
         [[0.0, 0.0, 0.0, 1.0, 1.0, 1.0], [0.5, 0.5, 0.5, 2.0, 2.0, 2.0]],
-        [[0.0, 0.0, 2.0, 1.0, 0.3], [0.5, 0.2, 1.0, 1.0, 0.0]],
-        [[0.0, 0.0, 0.0, 2.0, 1.0, 1.0, 0.3], [0.5, 0.2, 0.1, 1.0, 1.0, 1.0, 0.0]],
+        # the last rectangle is parallel to the first: the clipping path of near-parallel pairs
+        [[0.0, 0.0, 2.0, 1.0, 0.3], [0.5, 0.2, 1.0, 1.0, 0.0], [0.5, 0.2, 1.0, 1.0, 0.3]],
+        [
+            [0.0, 0.0, 0.0, 2.0, 1.0, 1.0, 0.3],
+            [0.5, 0.2, 0.1, 1.0, 1.0, 1.0, 0.0],
+            [0.5, 0.2, 0.1, 1.0, 1.0, 1.0, 0.3],
+        ],
         [[[0.0, 0.0], [2.0, 0.0], [0.0, 2.0]], [[0.5, 0.5], [3.0, 0.5], [0.5, 3.0]]],
     ]
     idx = np.array([0, 1], dtype=np.int64)

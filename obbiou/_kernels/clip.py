@@ -9,8 +9,10 @@ from __future__ import annotations
 
 from numba import njit
 
+from obbiou._kernels.options import HELPER
 
-@njit(error_model="numpy", cache=True)
+
+@njit(**HELPER)
 def clip_axis(us, vs, n, out_u, out_v, sign, bound):
     """Keep the part of polygon (us, vs)[:n] where ``sign * u <= bound``; return its size.
 
@@ -44,7 +46,7 @@ def clip_axis(us, vs, n, out_u, out_v, sign, bound):
     return m
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def clip_line(xs, ys, n, out_x, out_y, ax, ay, bx, by):
     """Keep the part of polygon (xs, ys)[:n] left of the directed line a -> b; return size.
 
@@ -78,7 +80,7 @@ def clip_line(xs, ys, n, out_x, out_y, ax, ay, bx, by):
     return m
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def shoelace(xs, ys, n):
     """Signed area of polygon (xs, ys)[:n] (positive when counter-clockwise)."""
     if n < 3:
@@ -95,7 +97,7 @@ def shoelace(xs, ys, n):
     return 0.5 * s
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def hull_area(xs, ys, n, hx, hy):
     """Area of the convex hull of the points (xs, ys)[:n] (Andrew's monotone chain, 1979).
 

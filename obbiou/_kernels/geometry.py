@@ -12,6 +12,7 @@ import numpy as np
 from numba import njit
 
 from obbiou._kernels.codes import Layout
+from obbiou._kernels.options import ENTRY, HELPER
 
 # Source layout codes (plain ints: numba folds them).
 AXIS = int(Layout.AXIS)
@@ -20,7 +21,7 @@ AXIS3 = int(Layout.AXIS3)
 UPRIGHT = int(Layout.UPRIGHT)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**ENTRY)
 def axis_rows(data, layout):
     """Rows ``x0, y0, x1, y1, z0, z1, size`` of axis / axis3 boxes."""
     n = data.shape[0]
@@ -44,7 +45,7 @@ def axis_rows(data, layout):
     return rows
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def rect_tuple(data, i, layout):
     """``cx, cy, hw, hh, cos, sin, area, xmin, ymin, xmax, ymax, z0, z1, size, 1/hw, 1/hh``
     of box ``data[i]`` (rotated, axis, or the footprint of an upright / axis3 box) as a
@@ -103,7 +104,7 @@ def rect_tuple(data, i, layout):
     return (cx, cy, hw, hh, c, s, area, xmin, ymin, xmax, ymax, z0, z1, size, ihw, ihh)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_rows(data, layout, rows, lo, hi):
     """Rows of :func:`rect_tuple` for boxes lo..hi-1 into ``rows`` (N, 16)."""
     for i in range(lo, hi):

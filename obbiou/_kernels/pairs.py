@@ -16,7 +16,7 @@ exact sizes; results are clamped to their ranges; zero-size boxes overlap nothin
 NaN escapes (branch-free code may divide by zero in a value it then discards).
 
 Rectangles (the common case) take a branch-free path that vectorises across pairs: the
-boundary-integral area of :func:`rect_area`, with separating-axis tests for disjoint and
+boundary-integral area of :func:`rect_intersection`, with separating-axis tests for disjoint and
 nested pairs. Near-parallel pairs are flagged and clipped polygon-wise instead
 (:func:`rect_slow`). Every path ends in the same arithmetic per pair, so all-pairs
 matrices, pair lists and elementwise values agree bit for bit.
@@ -34,6 +34,7 @@ from numba import njit
 from obbiou._kernels.clip import clip_axis, clip_line, hull_area, shoelace
 from obbiou._kernels.codes import Measure
 from obbiou._kernels.geometry import rect_tuple
+from obbiou._kernels.options import ENTRY, HELPER
 
 INTERSECTION = int(Measure.INTERSECTION)
 IOU = int(Measure.IOU)
@@ -54,7 +55,7 @@ POLY_COLUMNS = 7
 RECT_SCRATCH = 24
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def finish(measure, inter, sa, sb, hull, d2, c2):
     """Turn an intersection (and, for GIoU/DIoU, hull size or distances) into a measure."""
     if measure == INTERSECTION:
@@ -83,7 +84,7 @@ def finish(measure, inter, sa, sb, hull, d2, c2):
 # axis-aligned boxes (axis, axis3)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def axis_less(A, i, B, j):
     """True when row B[j] sorts before row A[i] (lexicographic on the data)."""
     for k in range(6):
@@ -92,7 +93,7 @@ def axis_less(A, i, B, j):
     return False
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def axis_pair(A, i, B, j, measure, is3d, buf):
     sa = A[i, AX_SIZE]
     sb = B[j, AX_SIZE]
@@ -130,7 +131,7 @@ def axis_pair(A, i, B, j, measure, is3d, buf):
     return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def axis_corners(R, r, ox, oy, xs, ys, at):
     x0 = R[r, AX_X0] - ox
     x1 = R[r, AX_X1] - ox
@@ -146,7 +147,7 @@ def axis_corners(R, r, ox, oy, xs, ys, at):
     ys[at + 3] = y1
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def axis_hull(P, p, Q, q, is3d, buf):
     """Convex hull area of two axis-aligned boxes (times the joint z span in 3D)."""
     ox = P[p, AX_X0]
@@ -172,7 +173,7 @@ def axis_hull(P, p, Q, q, is3d, buf):
 # 1000 IoU 8.7 -> 42 ms on one thread); ``forceinline``, 7.5 s and 8.8 ms.
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def rect_load(R, i):
     """Row i of prepared rectangles (N, 16) as a tuple."""
     return (
@@ -181,7 +182,7 @@ def rect_load(R, i):
     )  # fmt: skip
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def rect_load_t(RT, j):
     """Column j of transposed prepared rectangles (16, M) as a tuple."""
     return (
@@ -190,7 +191,7 @@ def rect_load_t(RT, j):
     )  # fmt: skip
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def rect_store_t(RT, j, t):
     """Write row tuple t into column j of transposed rows RT (16, M)."""
     RT[0, j], RT[1, j], RT[2, j], RT[3, j] = t[0], t[1], t[2], t[3]
@@ -199,7 +200,7 @@ def rect_store_t(RT, j, t):
     RT[12, j], RT[13, j], RT[14, j], RT[15, j] = t[12], t[13], t[14], t[15]
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def pick(swap, a, b):
     """b if swap else a, element by element (selects, not a branch: loops vectorise)."""
     return (
@@ -212,7 +213,7 @@ def pick(swap, a, b):
     )  # fmt: skip
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def rect_before(a, b):
     """True when box b sorts before box a: lexicographic on cx, cy, hw, hh, cos, sin, z0,
     z1 (2D rows all have z 0..1). Branch-free, so that loops over pairs vectorise."""
@@ -233,7 +234,7 @@ def rect_before(a, b):
     return lt | (eq & (b[12] < a[12]))
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def span_inside(x0, y0, rx, ry, hx, hy):
     """Length share of segment (x0, y0) + t d, t in [0, 1], inside |x| <= hx, |y| <= hy.
 
@@ -254,18 +255,38 @@ def span_inside(x0, y0, rx, ry, hx, hy):
 NEAR_PARALLEL = 1.0 / 64.0
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
-def rect_area(p, q):
-    """Intersection area of rectangles p and q (row tuples), in p's own frame: (area, redo).
+@njit(forceinline=True, **HELPER)
+def rect_intersection(a, b):
+    """Intersection size of boxes a and b (row tuples), in canonical order: (size, redo).
 
-    In p's frame p is the axis-aligned rectangle [-hw, hw] x [-hh, hh]. Per-box cos/sin and
-    the angle-difference identities: no trigonometry per pair. Separating-axis tests on both
-    boxes' axes give exact 0 for disjoint pairs, exact sizes for nested ones. Otherwise the
-    area is the boundary integral (1/2) * closed integral of (x dy - y dx) over the
-    intersection's boundary: the parts of q's edges inside p and of p's edges inside q, each
-    found by parametric clipping against the other box in that box's own frame.
-    Branch-free; ``redo`` flags near-parallel pairs, which the caller clips polygon-wise.
+    The boxes are taken in canonical order (:func:`rect_before`), p first, and the area is
+    computed in p's own frame, where p is the axis-aligned rectangle [-hw, hw] x [-hh, hh].
+    Per-box cos/sin and the angle-difference identities: no trigonometry per pair.
+    Separating-axis tests on both boxes' axes give exact 0 for disjoint pairs, exact sizes
+    for nested ones. Otherwise the area is the boundary integral (1/2) * closed integral of
+    (x dy - y dx) over the intersection's boundary: the parts of q's edges inside p and of
+    p's edges inside q, each found by parametric clipping against the other box in that
+    box's own frame. 2D rows have z 0..1, so the z overlap is exactly 1 and 2D and 3D boxes
+    share this code (and the vectorised loop) without a flag.
+
+    Branch-free, one function (each compiled function costs compile time of its own);
+    ``redo`` flags near-parallel pairs, which the caller recomputes with :func:`rect_slow`.
     """
+    swap = rect_before(a, b)
+    p = pick(swap, a, b)
+    q = pick(swap, b, a)
+    sa = p[R_SIZE]
+    sb = q[R_SIZE]
+    dz = min(p[R_Z1], q[R_Z1]) - max(p[R_Z0], q[R_Z0])
+    # Extents that meet exactly mean an exact 0 (boxes sharing an edge in absolute
+    # coordinates), unless an extent has collapsed to a point: a side below the rounding of
+    # the centre's coordinates (1e-20 at x = 1) does that, and the box would be disjoint
+    # from itself. Those pairs are left to the exact tests below.
+    wide = (p[R_XMAX] > p[R_XMIN]) & (q[R_XMAX] > q[R_XMIN])
+    high = (p[R_YMAX] > p[R_YMIN]) & (q[R_YMAX] > q[R_YMIN])
+    separate = wide & ((p[R_XMAX] <= q[R_XMIN]) | (q[R_XMAX] <= p[R_XMIN]))
+    separate = separate | (high & ((p[R_YMAX] <= q[R_YMIN]) | (q[R_YMAX] <= p[R_YMIN])))
+    separate = separate | (sa <= 0.0) | (sb <= 0.0) | (dz <= 0.0)
     phw = p[R_HW]
     phh = p[R_HH]
     qhw = q[R_HW]
@@ -344,45 +365,15 @@ def rect_area(p, q):
     area = p[R_AREA] if p_in_q else area
     area = 0.0 if disjoint else area
     near = (abs(c) < NEAR_PARALLEL) | (abs(s) < NEAR_PARALLEL)
-    return area, near & ~(disjoint | q_in_p | p_in_q)
-
-
-@njit(error_model="numpy", cache=True, forceinline=True)
-def rect_ordered(p, q):
-    """Intersection size of rectangles p and q (row tuples, p first in canonical order):
-    (size, redo). 2D rows have z 0..1, so the z overlap is exactly 1 and 2D and 3D boxes
-    share this code (and the vectorised loop) without a flag."""
-    sa = p[R_SIZE]
-    sb = q[R_SIZE]
-    dz = min(p[R_Z1], q[R_Z1]) - max(p[R_Z0], q[R_Z0])
-    # Extents that meet exactly mean an exact 0 (boxes sharing an edge in absolute
-    # coordinates), unless an extent has collapsed to a point: a side below the rounding of
-    # the centre's coordinates (1e-20 at x = 1) does that, and the box would be disjoint
-    # from itself. Those pairs are left to the exact tests of rect_area.
-    wide = (p[R_XMAX] > p[R_XMIN]) & (q[R_XMAX] > q[R_XMIN])
-    high = (p[R_YMAX] > p[R_YMIN]) & (q[R_YMAX] > q[R_YMIN])
-    separate = wide & ((p[R_XMAX] <= q[R_XMIN]) | (q[R_XMAX] <= p[R_XMIN]))
-    separate = separate | (high & ((p[R_YMAX] <= q[R_YMIN]) | (q[R_YMAX] <= p[R_YMIN])))
-    separate = separate | (sa <= 0.0) | (sb <= 0.0) | (dz <= 0.0)
-    area, redo = rect_area(p, q)
+    redo = near & ~(disjoint | q_in_p | p_in_q)
     inter = 0.0 if separate else min(area * dz, sa, sb)
     return inter, redo & ~separate
 
 
-@njit(error_model="numpy", cache=True, forceinline=True)
-def rect_intersection(a, b):
-    """Intersection size of boxes a and b (row tuples), in canonical order: (size, redo).
-
-    Branch-free; ``redo`` asks the caller to recompute the pair with :func:`rect_slow`.
-    """
-    swap = rect_before(a, b)
-    return rect_ordered(pick(swap, a, b), pick(swap, b, a))
-
-
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_slow(a, b, buf):
     """Intersection size of rectangles a and b (row tuples) by polygon clipping: the
-    near-parallel path."""
+    near-parallel path (one function with the clipping: each costs compile time)."""
     if rect_before(a, b):
         a, b = b, a
     phw = a[R_HW]
@@ -402,19 +393,12 @@ def rect_slow(a, b, buf):
     uy = s * b[R_HW]
     vx = -s * b[R_HH]
     vy = c * b[R_HH]
-    area = rect_clip(phw, phh, px, py, ux, uy, vx, vy, a[R_AREA], b[R_AREA], buf)
-    dz = min(a[R_Z1], b[R_Z1]) - max(a[R_Z0], b[R_Z0])
-    return min(area * dz, a[R_SIZE], b[R_SIZE])
-
-
-@njit(error_model="numpy", cache=True)
-def rect_clip(phw, phh, px, py, ux, uy, vx, vy, parea, qarea, buf):
-    """Clip rectangle Q (centre p, half axes u, v, in P's frame) to P = [-phw, phw] x ..."""
+    # Clip q (its corners counter-clockwise) to p = [-phw, phw] x [-phh, phh], one side at
+    # a time (Sutherland & Hodgman, 1974).
     x1 = buf[0]
     y1 = buf[1]
     x2 = buf[2]
     y2 = buf[3]
-    # Q's corners, counter-clockwise.
     x1[0] = px - ux - vx
     y1[0] = py - uy - vy
     x1[1] = px + ux - vx
@@ -427,11 +411,12 @@ def rect_clip(phw, phh, px, py, ux, uy, vx, vy, parea, qarea, buf):
     n = clip_axis(x2, y2, n, x1, y1, -1.0, phw)
     n = clip_axis(y1, x1, n, y2, x2, 1.0, phh)
     n = clip_axis(y2, x2, n, y1, x1, -1.0, phh)
-    area = shoelace(x1, y1, n)
-    return min(max(area, 0.0), parea, qarea)
+    area = min(max(shoelace(x1, y1, n), 0.0), a[R_AREA], b[R_AREA])
+    dz = min(a[R_Z1], b[R_Z1]) - max(a[R_Z0], b[R_Z0])
+    return min(area * dz, a[R_SIZE], b[R_SIZE])
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_hull(a, b, buf):
     """Area of the convex hull of rectangles a and b (row tuples), in a's frame."""
     phw = a[R_HW]
@@ -472,7 +457,7 @@ def rect_hull(a, b, buf):
     return hull_area(xs, ys, np.int64(8), buf[2], buf[3])
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_inter_value(a, b, buf):
     """Intersection size of rectangles a and b (row tuples): the vectorisable arithmetic,
     or polygon clipping for the pairs it flags. The IoU-only paths (hard suppression) call
@@ -483,7 +468,7 @@ def rect_inter_value(a, b, buf):
     return inter
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_measure(a, b, measure, is3d, buf):
     """The measure of rectangles a and b (row tuples): every path ends here or, for IoU,
     intersection and coverage, in the same arithmetic in :func:`rect_block`.
@@ -524,18 +509,12 @@ def rect_measure(a, b, measure, is3d, buf):
     return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
 
 
-@njit(error_model="numpy", cache=True)
-def rect_value(A, i, B, j, measure, is3d, buf):
-    """The measure of pair (A[i], B[j]) of prepared rectangles (see :func:`rect_measure`)."""
-    return rect_measure(rect_load(A, i), rect_load(B, j), measure, is3d, buf)
-
-
-@njit(error_model="numpy", cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def _overlap(lo0, hi0, lo1, hi1):
     return max(min(hi0, hi1) - max(lo0, lo1), 0.0)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**ENTRY)
 def rect_iou_verdict(A, i, B, j, thr):
     """Whether IoU(A[i], B[j]) > thr for prepared rectangles, from cheap bounds: 1 (above),
     0 (not above) or -1 (undecided: compute it). For hard suppression, which needs only
@@ -604,7 +583,7 @@ def rect_iou_verdict(A, i, B, j, thr):
 # 16 ms against 8.7 ms).
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_inter_columns(PT, QT, out):
     """out[k] = intersection of column k of PT with column k of QT (prepared rows,
     transposed), or -1 for a pair to recompute with :func:`rect_measure`. A vectorised
@@ -612,15 +591,6 @@ def rect_inter_columns(PT, QT, out):
     for k in range(out.shape[0]):
         inter, again = rect_intersection(rect_load_t(PT, k), rect_load_t(QT, k))
         out[k] = -1.0 if again else inter
-
-
-@njit(error_model="numpy", cache=True)
-def rect_inter_row(a, BT, out):
-    """:func:`rect_inter_columns` of one box ``a`` (row tuple) with every column of BT:
-    the loop of all-pairs matrices."""
-    for j in range(out.shape[0]):
-        inter, again = rect_intersection(a, rect_load_t(BT, j))
-        out[j] = -1.0 if again else inter
 
 
 # Pairs per block of the vectorised loop: two (16, 264) scratch arrays (68 KB), small
@@ -633,7 +603,7 @@ RECT_BLOCK = 256
 # hull (GIoU) and distance (DIoU) code was over a second of the first call's compiling.
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_block(PT, QT, measure, is3d, out, buf):
     """out[k] = a fast measure of column k of PT with column k of QT: the vectorised loop,
     its flagged (near-parallel) pairs redone by clipping. Bit for bit :func:`rect_measure`."""
@@ -645,37 +615,18 @@ def rect_block(PT, QT, measure, is3d, out, buf):
         out[k] = finish(measure, v, PT[R_SIZE, k], QT[R_SIZE, k], 0.0, 0.0, 0.0)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def rect_block_full(PT, QT, measure, is3d, out, buf):
     """out[k] = any measure (GIoU, DIoU) of column k of PT with column k of QT."""
     for k in range(out.shape[0]):
         out[k] = rect_measure(rect_load_t(PT, k), rect_load_t(QT, k), measure, is3d, buf)
 
 
-@njit(error_model="numpy", cache=True)
-def rect_row(a, BT, measure, is3d, row, buf):
-    """row[j] = a fast measure of box ``a`` (row tuple) with column j of BT: the
-    vectorised loop of :func:`rect_inter_row`, flagged pairs redone by clipping."""
-    rect_inter_row(a, BT, row)
-    for j in range(row.shape[0]):
-        v = row[j]
-        if v < 0.0:
-            v = rect_inter_value(a, rect_load_t(BT, j), buf)
-        row[j] = finish(measure, v, a[R_SIZE], BT[R_SIZE, j], 0.0, 0.0, 0.0)
-
-
-@njit(error_model="numpy", cache=True)
-def rect_row_full(a, BT, measure, is3d, row, buf):
-    """row[j] = any measure (GIoU, DIoU) of box ``a`` with column j of BT."""
-    for j in range(row.shape[0]):
-        row[j] = rect_measure(a, rect_load_t(BT, j), measure, is3d, buf)
-
-
 # --------------------------------------------------------------------------------------
 # convex polygons
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_less(VA, i, VB, j):
     """True when polygon VB[j] sorts before VA[i] (vertex count, then vertices)."""
     ka = VA.shape[1]
@@ -689,7 +640,7 @@ def poly_less(VA, i, VB, j):
     return False
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_same(VA, i, VB, j):
     if VA.shape[1] != VB.shape[1]:
         return False
@@ -699,7 +650,7 @@ def poly_same(VA, i, VB, j):
     return True
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_inter(VP, p, VQ, q, buf):
     """Intersection area of convex polygons VP[p] and VQ[q], relative to VP[p]'s vertex 0."""
     kp = VP.shape[1]
@@ -729,7 +680,7 @@ def poly_inter(VP, p, VQ, q, buf):
     return max(shoelace(x1, y1, n), 0.0)
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_hull(VP, p, VQ, q, buf):
     kp = VP.shape[1]
     kq = VQ.shape[1]
@@ -746,8 +697,10 @@ def poly_hull(VP, p, VQ, q, buf):
     return hull_area(xs, ys, kp + kq, buf[2], buf[3])
 
 
-@njit(error_model="numpy", cache=True)
+@njit(**HELPER)
 def poly_pair(VA, A, i, VB, B, j, measure, buf):
+    """IoU, intersection or coverage of polygons VA[i] and VB[j] (GIoU and DIoU:
+    :func:`poly_pair_full`, so that a first IoU compiles no hull code)."""
     sa = A[i, P_AREA]
     sb = B[j, P_AREA]
     separate = (
@@ -757,17 +710,22 @@ def poly_pair(VA, A, i, VB, B, j, measure, buf):
         or B[j, P_YMAX] <= A[i, P_YMIN]
     )
     inter = 0.0
-    same = False
     if not separate and sa > 0.0 and sb > 0.0:
         if poly_same(VA, i, VB, j):
-            same = True
             inter = sa
         elif poly_less(VA, i, VB, j):
             inter = min(poly_inter(VB, j, VA, i, buf), sa, sb)
         else:
             inter = min(poly_inter(VA, i, VB, j, buf), sa, sb)
-    if measure == INTERSECTION or measure == IOU or measure == COVERAGE:
-        return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
+    return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
+
+
+@njit(**HELPER)
+def poly_pair_full(VA, A, i, VB, B, j, measure, buf):
+    """GIoU or DIoU of polygons VA[i] and VB[j]."""
+    sa = A[i, P_AREA]
+    sb = B[j, P_AREA]
+    inter = poly_pair(VA, A, i, VB, B, j, np.int64(INTERSECTION), buf)
     if measure == DIOU:
         # centroids relative to each polygon's vertex 0: no loss at map offsets near 1e7
         dx = (VB[j, 0, 0] - VA[i, 0, 0]) + (B[j, P_GX] - A[i, P_GX])
@@ -775,7 +733,8 @@ def poly_pair(VA, A, i, VB, B, j, measure, buf):
         cw = max(A[i, P_XMAX], B[j, P_XMAX]) - min(A[i, P_XMIN], B[j, P_XMIN])
         ch = max(A[i, P_YMAX], B[j, P_YMAX]) - min(A[i, P_YMIN], B[j, P_YMIN])
         return finish(measure, inter, sa, sb, 0.0, dx * dx + dy * dy, cw * cw + ch * ch)
-    if same or (inter > 0.0 and inter >= min(sa, sb)):
+    # identical polygons have inter == sa == sb > 0: no hull needed
+    if inter > 0.0 and inter >= min(sa, sb):
         return finish(measure, inter, sa, sb, max(sa, sb), 0.0, 0.0)
     if poly_less(VA, i, VB, j):
         hull = poly_hull(VB, j, VA, i, buf)
@@ -789,7 +748,7 @@ def poly_pair(VA, A, i, VB, B, j, measure, buf):
 # are written flat, row i at out[i * m : (i + 1) * m].
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def axis_matrix_rows(A, B, measure, is3d, out, lo, hi):
     """Rows lo..hi-1 of the all-pairs matrix of prepared axis boxes A with B."""
     m = B.shape[0]
@@ -800,19 +759,12 @@ def axis_matrix_rows(A, B, measure, is3d, out, lo, hi):
             row[j] = axis_pair(A, i, B, j, measure, is3d, buf)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def axis_list(A, B, first, second, measure, is3d, out, lo, hi):
     """out[k] = the measure of (A[first[k]], B[second[k]]) for k in lo..hi-1."""
     buf = np.empty((4, RECT_SCRATCH))
     for k in range(lo, hi):
         out[k] = axis_pair(A, first[k], B, second[k], measure, is3d, buf)
-
-
-@njit(inline="always")
-def _rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi, row_fn):
-    buf = np.empty((4, RECT_SCRATCH))
-    for i in range(lo, hi):
-        row_fn(rect_load(A, i), BT, measure, is3d, out[i * m : (i + 1) * m], buf)
 
 
 @njit(inline="always")
@@ -843,68 +795,138 @@ def _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, block):
         block(PT, QT, measure, is3d, out[s : s + n], buf)
 
 
-# The bodies of the three jobs, each for the fast and the full measures (the generic
-# bodies above are written once; numba inlines them, so each of these is a plain cached
-# kernel). Matrices: rows lo..hi-1 of A with B given as its transposed rows BT (16, >= m).
+# The bodies of the three jobs, each for the fast and the full measures (the generic list
+# and elementwise bodies above are written once; numba inlines them, so each of these is a
+# plain cached kernel). Matrices: rows lo..hi-1 of A with B given as its transposed rows
+# BT (16, >= m); the fast matrix body flags near-parallel pairs for a second body.
 # Lists: out[k] for the pairs (A[first[k]], B[second[k]]), k in lo..hi-1, gathered block by
 # block into columns. Elementwise: box k of a with box k of b straight from the box data
 # (layouts la, lb), no (N, 16) arrays.
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
-def rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi):
-    _rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi, rect_row)
+@njit(nogil=True, **ENTRY)
+def rect_matrix_rows(A, BT, m, measure, out, redo, lo, hi):
+    """Rows lo..hi-1 of a fast measure's matrix; near-parallel pairs are left at -1 and
+    counted in ``redo[i]``, for :func:`rect_matrix_redo` (only called when there are
+    any, so that a first call on ordinary boxes compiles no clipping code)."""
+    for i in range(lo, hi):
+        a = rect_load(A, i)
+        row = out[i * m : (i + 1) * m]
+        for j in range(m):  # the vectorised loop: the flag rides in the value
+            inter, again = rect_intersection(a, rect_load_t(BT, j))
+            row[j] = -1.0 if again else inter
+        flagged = 0
+        for j in range(m):
+            v = row[j]
+            flagged += v < 0.0
+            row[j] = v if v < 0.0 else finish(measure, v, a[R_SIZE], BT[R_SIZE, j], 0.0, 0.0, 0.0)
+        redo[i] = flagged
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
+def rect_matrix_redo(A, BT, m, measure, out, redo, lo, hi):
+    """The pairs of rows lo..hi-1 that :func:`rect_matrix_rows` left at -1, by clipping:
+    what :func:`rect_inter_value` does with a flagged pair, so bit for bit
+    :func:`rect_measure`."""
+    buf = np.empty((4, RECT_SCRATCH))
+    for i in range(lo, hi):
+        if redo[i] == 0:
+            continue
+        a = rect_load(A, i)
+        row = out[i * m : (i + 1) * m]
+        for j in range(m):
+            if row[j] < 0.0:
+                inter = rect_slow(a, rect_load_t(BT, j), buf)
+                row[j] = finish(measure, inter, a[R_SIZE], BT[R_SIZE, j], 0.0, 0.0, 0.0)
+
+
+@njit(nogil=True, **ENTRY)
 def rect_matrix_rows_full(A, BT, m, measure, is3d, out, lo, hi):
-    _rect_matrix_rows(A, BT, m, measure, is3d, out, lo, hi, rect_row_full)
+    """Rows lo..hi-1 of the matrix of GIoU or DIoU."""
+    buf = np.empty((4, RECT_SCRATCH))
+    for i in range(lo, hi):
+        a = rect_load(A, i)
+        row = out[i * m : (i + 1) * m]
+        for j in range(m):
+            row[j] = rect_measure(a, rect_load_t(BT, j), measure, is3d, buf)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_list(A, B, first, second, measure, is3d, out, lo, hi):
     _rect_list(A, B, first, second, measure, is3d, out, lo, hi, rect_block)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_list_full(A, B, first, second, measure, is3d, out, lo, hi):
     _rect_list(A, B, first, second, measure, is3d, out, lo, hi, rect_block_full)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi):
     _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, rect_block)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def rect_elementwise_full(Da, la, Db, lb, measure, is3d, out, lo, hi):
     _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, rect_block_full)
 
 
 def rect_body(job: str, measure: int):
-    """The rectangle body of ``job`` ("matrix", "list", "elementwise") for a measure code."""
+    """The rectangle body of ``job`` ("list", "elementwise") for a measure code (matrices:
+    :func:`rect_matrix_rows` and :func:`rect_matrix_redo`, or :func:`rect_matrix_rows_full`)."""
     full = measure in (GIOU, DIOU)
     return {
-        "matrix": (rect_matrix_rows, rect_matrix_rows_full),
         "list": (rect_list, rect_list_full),
         "elementwise": (rect_elementwise, rect_elementwise_full),
     }[job][full]
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
-def poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi):
-    """Rows lo..hi-1 of the all-pairs matrix of prepared polygons."""
+@njit(inline="always")
+def _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, pair_fn):
     m = B.shape[0]
     buf = np.empty((6, 2 * (VA.shape[1] + VB.shape[1]) + 4))
     for i in range(lo, hi):
         row = out[i * m : (i + 1) * m]
         for j in range(m):
-            row[j] = poly_pair(VA, A, i, VB, B, j, measure, buf)
+            row[j] = pair_fn(VA, A, i, VB, B, j, measure, buf)
 
 
-@njit(error_model="numpy", cache=True, nogil=True)
-def poly_list(VA, A, VB, B, first, second, measure, out, lo, hi):
-    """out[k] = the measure of (polygon first[k] of A, polygon second[k] of B)."""
+@njit(inline="always")
+def _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, pair_fn):
     buf = np.empty((6, 2 * (VA.shape[1] + VB.shape[1]) + 4))
     for k in range(lo, hi):
-        out[k] = poly_pair(VA, A, first[k], VB, B, second[k], measure, buf)
+        out[k] = pair_fn(VA, A, first[k], VB, B, second[k], measure, buf)
+
+
+# Polygon bodies, fast (IoU, intersection, coverage) and full (GIoU, DIoU) as for
+# rectangles. Matrices: rows lo..hi-1 of polygons VA (rows A) with VB (rows B). Lists:
+# out[k] for the pairs (VA[first[k]], VB[second[k]]), k in lo..hi-1.
+
+
+@njit(nogil=True, **ENTRY)
+def poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi):
+    _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, poly_pair)
+
+
+@njit(nogil=True, **ENTRY)
+def poly_matrix_rows_full(VA, A, VB, B, measure, out, lo, hi):
+    _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, poly_pair_full)
+
+
+@njit(nogil=True, **ENTRY)
+def poly_list(VA, A, VB, B, first, second, measure, out, lo, hi):
+    _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair)
+
+
+@njit(nogil=True, **ENTRY)
+def poly_list_full(VA, A, VB, B, first, second, measure, out, lo, hi):
+    _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair_full)
+
+
+def poly_body(job: str, measure: int):
+    """The polygon body of ``job`` ("matrix", "list") for a measure code."""
+    full = measure in (GIOU, DIOU)
+    return {
+        "matrix": (poly_matrix_rows, poly_matrix_rows_full),
+        "list": (poly_list, poly_list_full),
+    }[job][full]
