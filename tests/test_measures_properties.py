@@ -12,6 +12,7 @@ from hypothesis import strategies as st
 from obbiou.boxes import corners
 from obbiou.measures import coverage, diou, giou, intersection, iou
 from tests.strategies import FAR, FAR_SIZES, PAIR_KINDS, polygon_pair, rotated_pair, upright_pair
+from tests.test_exact import exact_measures
 
 shapely = pytest.importorskip("shapely")
 
@@ -221,18 +222,28 @@ def _check_family(kind, a, b, measured, exact_area, scale, inter_tol=None):
 @SETTINGS
 @given(st.sampled_from(PAIR_KINDS), st.data())
 @pytest.mark.parametrize("far", [False, True])
-def test_rotated_families_against_shapely(far, kind, data):
+def test_rotated_families_against_exact_rationals(far, kind, data):
+    # Reference: exact rational arithmetic (fractions) on the float corners written out in
+    # _rectangle. Shapely was the reference here until it gave a pair of boxes sharing an
+    # edge the full area of one of them (test_shared_edge_where_shapely_errs below).
     a, b, kind = data.draw(
         rotated_pair(kind, centre=FAR, sizes=FAR_SIZES) if far else rotated_pair(kind)
     )
-    sx, sy = _shift_for(a, far)
-    pa = shapely.Polygon([(x - sx, y - sy) for x, y in _rectangle(a)])
-    pb = shapely.Polygon([(x - sx, y - sy) for x, y in _rectangle(b)])
-    inter_ref = pa.intersection(pb).area
-    union = pa.area + pb.area - inter_ref
-    iou_ref = inter_ref / union if union > 0 else 0.0
+    inter_ref, iou_ref = (float(v) for v in exact_measures(_rectangle(a), _rectangle(b)))
     measured = (iou(a, b), iou(b, a), intersection(a, b), coverage(b, a))
     _check_family(kind, a, b, measured, (inter_ref, iou_ref), 1e-7 if far else 1e-9)
+
+
+def test_shared_edge_where_shapely_errs():
+    # Found by the property test above: two boxes at the same angle whose centres are
+    # exactly 25.125 apart across their long sides, the sum of the half heights (23 / 2 +
+    # 27.25 / 2): they share an edge, so intersection and IoU are 0. Exact rationals on the
+    # corners agree; shapely 2.2 (GEOS overlay) returned 1518, the whole area of a.
+    a = np.array([0.0, 0.0, 66.0, 23.0, -3.5])
+    b = np.array([-8.813428595701698, -23.52847426818126, 66.0, 27.25, -3.5])
+    inter_ref, iou_ref = exact_measures(_rectangle(a), _rectangle(b))
+    assert float(inter_ref) == pytest.approx(0.0, abs=1e-9) and float(iou_ref) < 1e-12
+    assert intersection(a, b) == pytest.approx(0.0, abs=1e-9) and iou(a, b) < 1e-12
 
 
 @SETTINGS
