@@ -486,6 +486,26 @@ def prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, seria
     return scene, Grid(levels, bounds, cell_ptr, box_cell, box_level)
 
 
+def index_extents(env):
+    """The grid over boxes given by their extents ``env`` (N, 4: x_min, y_min, x_max, y_max,
+    C-ordered float64) and their spatial order: (order, grid), ``order[p]`` the row at
+    position p. :func:`build_index` reads them as axis rows (the same extents, padded the
+    same way, as the prepared rows of axis and rotated boxes give), so a caller that has
+    the extents already finds the order before it prepares the boxes, and prepares them
+    in that order: nothing is permuted afterwards."""
+    base = base_cell(AXIS, env)
+    order, levels, bounds, cell_ptr, box_cell, box_level = build_index(AXIS, env, base)
+    return order, Grid(levels, bounds, cell_ptr, box_cell, box_level)
+
+
+def self_scene(kind, R, V, order, labels, thr, is3d, serial):
+    """The scene of the self-pairs of prepared rows ``R`` (vertices ``V`` for polygons)
+    that are in the spatial order of :func:`index_extents` already (``order``: the input
+    row at each position; ``labels``: int64 codes in that order, or an empty array)."""
+    e, s = _side_extents(kind, R, is3d, serial)
+    return Scene(kind, R, V, e, s, order, R, V, e, s, order, True, labels, labels, float(thr), is3d)
+
+
 def _side_extents(kind, R, is3d, serial):
     n = R.shape[0]
     ext = np.empty((n, 6))
