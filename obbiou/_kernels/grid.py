@@ -431,13 +431,16 @@ def walk(i, scene, grid, items, ends, growing, out):
             qy0 = (own_cell - c0) // nx
         for cy in range(qy0, qy1 + 1):
             first = c0 + cy * nx + qx0
+            last = c0 + cy * nx + qx1
             if own and cy == qy0:
                 first = own_cell
-            for c in range(first, c0 + cy * nx + qx1 + 1):
+            # in the static grid a run of cells along a row is one range of positions:
+            # one pass from the first cell's start to the last cell's end
+            for c in range(first, (last if growing else first) + 1):
                 k0 = cell_ptr[c]
                 if c == own_cell:
                     k0 = i + 1
-                for k in range(k0, ends[c]):
+                for k in range(k0, ends[c] if growing else ends[last]):
                     j = items[k] if growing else k
                     if eb[j, 0] >= x1 or eb[j, 2] <= x0 or eb[j, 1] >= y1 or eb[j, 3] <= y0:
                         continue
