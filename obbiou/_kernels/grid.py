@@ -496,7 +496,7 @@ def index_extents(env):
     same way, as the prepared rows of axis and rotated boxes give), so a caller that has
     the extents already finds the order before it prepares the boxes, and prepares them
     in that order: nothing is permuted afterwards."""
-    base = base_cell(AXIS, env)
+    base = base_cell(AXIS, env) if env.shape[0] else 1.0  # (no median of nothing)
     order, levels, bounds, cell_ptr, box_cell, box_level = build_index(AXIS, env, base)
     return order, Grid(levels, bounds, cell_ptr, box_cell, box_level)
 
