@@ -821,7 +821,7 @@ def warmup() -> None:
     # a box of tile 0 at its seam, held whole by tile 1; a copy of a box in tile 1
     boxes = [[95.0, 50, 10, 4, 0.1], [15, 50, 10, 4, 0.1], [40, 20, 10, 4, 0], [40, 20, 10, 4, 0]]
     merge(boxes, [0.9, 0.8, 0.7, 0.6], [0, 1, 1, 1], tiles)
-    copies = np.array(boxes[2:])  # and the road of large inputs
+    copies = np.array(boxes[2:], dtype=np.float64)  # and the road of large inputs
     env = envelope(copies, shape="rotated")
     scores = np.array([0.7, 0.6])
     _suppress_copies(copies, env, np.arange(2), scores, "rotated", 0.5, None, pairs=True)
