@@ -706,7 +706,9 @@ def merge(
         members = rows[f.members]
         fused = type(f)(f.boxes, f.scores, f.labels, f.offsets, members)
         return Merged(f.boxes, f.scores, f.labels, members[f.offsets[:-1]], dropped, fused)
-    src = _suppress_copies(image, env, rows, s, b.shape, thr, codes)
+    kept_env = _take(env, rows)
+    del env, state  # (the arrays made next reuse their memory: fewer fresh pages)
+    src = _suppress_copies(image, kept_env, rows, s, b.shape, thr, codes)
     return Merged(
         _take(image, src),
         s[src],
@@ -768,7 +770,7 @@ def _suppress_copies(
 ) -> np.ndarray:
     """The input rows that ``obbiou.suppress(image[rows], scores[rows], max_iou=thr,
     labels=codes[rows], min_score=-inf)`` keeps, best first (``env``: the extents of
-    ``image``). From :data:`_PAIRS_FROM` boxes (or with ``pairs=True``) by another road,
+    ``image[rows]``). From :data:`_PAIRS_FROM` boxes (or with ``pairs=True``) by another road,
     on all cores: the pairs with IoU > ``thr`` first, then the greedy walk over them.
     After the seam rule most boxes have no copy and the rest one to three, so the pairs
     are few; suppress's lazy walk would visit the boxes in score order, jumping across the
@@ -796,15 +798,16 @@ def _suppress_copies(
                 min_score=-np.inf,
             ).indices
         ]
-    order, index = grid.index_extents(_take(env, rows))
+    order, index = grid.index_extents(env)
     src = rows[order]  # the input row at each position of the spatial order
     p = prepare(Boxes(_take(image, src), layout, False))
+    kind, prepared = int(Kind[p.kind.upper()]), p.rows
     vertices = p.vertices if p.kind == "poly" else np.zeros((0, 0, 2))
+    del p  # (and its copy of the boxes: later arrays reuse the memory, no fresh pages)
     labels = np.zeros(0, np.int64) if codes is None else codes[src]
-    scene = grid.self_scene(
-        int(Kind[p.kind.upper()]), p.rows, vertices, order, labels, thr, False, False
-    )
+    scene = grid.self_scene(kind, prepared, vertices, order, labels, thr, False, False)
     ptr, nbr = kernels.exceeding(scene, index, False)
+    del scene, index, prepared, vertices  # (as above)
     return rows[kernels.hard_over_pairs(score_order(s), ptr, nbr)]
 
 
