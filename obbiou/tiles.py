@@ -750,11 +750,13 @@ def _place(
 
 
 # From this many boxes merge finds the copies by the pairs above max_iou; below it by
-# obbiou.suppress's lazy walk. Measured (one thread, CPU, fastest of 15, boxes of the
-# bench's scene): 1 700 boxes 0.42 against 0.40 ms, 16 500 boxes 4.7 against 3.9 ms,
-# 37 000 boxes 13.9 against 8.9 ms. Below it the two cost the same, and a process that
-# suppresses anyway (the demo) then compiles no pair kernels for its merges: the demo's
-# first run with an empty cache took 5 s more CPU with the pairs road for every size.
+# obbiou.suppress's lazy walk. Measured (one thread, CPU, fastest of 15, squares of the
+# bench's scene after the seam rule, suppress against the pairs): 1 478 boxes 0.24 against
+# 0.17 ms, 5 965 boxes 1.25 against 0.84 ms, 16 038 boxes 3.56 against 2.44 ms, 35 264
+# boxes 9.92 against 5.68 ms. Below it the pairs save a millisecond at most, and a
+# process that suppresses anyway (the demo) then compiles no pair kernels for its merges
+# (about 2 s with an empty cache; the demo's first run took 5 s more CPU when the former
+# pairs road served every size).
 _PAIRS_FROM = 20_000
 
 
