@@ -502,10 +502,12 @@ def prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, seria
 def index_extents(env):
     """The grid over boxes given by their extents ``env`` (N, 4: x_min, y_min, x_max, y_max,
     C-ordered float64) and their spatial order: (order, grid), ``order[p]`` the row at
-    position p. :func:`build_index` reads them as axis rows (the same extents, padded the
-    same way, as the prepared rows of axis and rotated boxes give), so a caller that has
-    the extents already finds the order before it prepares the boxes, and prepares them
-    in that order: nothing is permuted afterwards."""
+    position p. :func:`build_index` reads them as axis rows and pads them as it pads any
+    rows; the extents must be those the prepared rows of the boxes hold (merge's first
+    pass computes them with the same arithmetic), so that the walks, which read the
+    prepared rows' extents, find every pair. A caller that has the extents already finds
+    the order before it prepares the boxes, and prepares them in that order: nothing is
+    permuted afterwards."""
     base = base_cell(AXIS, env) if env.shape[0] else 1.0  # (no median of nothing)
     order, levels, bounds, cell_ptr, box_cell, box_level = build_index(AXIS, env, base)
     return order, Grid(levels, bounds, cell_ptr, box_cell, box_level)
