@@ -125,6 +125,16 @@ def build_index(kind, R, base):
     """
     m = R.shape[0]
     level = np.empty(m, np.int64)
+    # each box's level, and each level's count, bounds and reach, in one pass (room for
+    # every level a box can get: the level loop stops at 200)
+    count = np.zeros(201, np.int64)
+    bounds = np.empty((201, 4))
+    reach = np.zeros(201)
+    for lv in range(201):
+        bounds[lv, 0] = np.inf
+        bounds[lv, 1] = np.inf
+        bounds[lv, 2] = -np.inf
+        bounds[lv, 3] = -np.inf
     top = 0
     for j in range(m):
         x0, y0, x1, y1 = _padded_xy(kind, R, j)
@@ -136,24 +146,16 @@ def build_index(kind, R, base):
             lv += 1
         level[j] = lv
         top = max(top, lv)
-    nlev = top + 1
-    count = np.zeros(nlev, np.int64)
-    bounds = np.empty((nlev, 4))
-    reach = np.zeros(nlev)
-    for lv in range(nlev):
-        bounds[lv, 0] = np.inf
-        bounds[lv, 1] = np.inf
-        bounds[lv, 2] = -np.inf
-        bounds[lv, 3] = -np.inf
-    for j in range(m):
-        x0, y0, x1, y1 = _padded_xy(kind, R, j)
-        lv = level[j]
         count[lv] += 1
         bounds[lv, 0] = min(bounds[lv, 0], x0)
         bounds[lv, 1] = min(bounds[lv, 1], y0)
         bounds[lv, 2] = max(bounds[lv, 2], x1)
         bounds[lv, 3] = max(bounds[lv, 3], y1)
-        reach[lv] = max(reach[lv], x1 - x0, y1 - y0)
+        reach[lv] = max(reach[lv], d)
+    nlev = top + 1
+    count = count[:nlev]
+    bounds = bounds[:nlev].copy()
+    reach = reach[:nlev]
     levels = np.zeros((nlev, 8))
     ncells = 0
     for lv in range(nlev):
