@@ -217,7 +217,8 @@ def diagnose(side, tiles, boxes, scores, tile, repeat) -> None:
     print(f"suppress whole, scores decreasing in row-major spatial order: CPU {cpu * 1e3:.0f} ms")
     wall, cpu, p = timed(lambda: obbiou.overlapping_pairs(image, min_iou=MAX_IOU), repeat)
     print(
-        f"the pairs above {MAX_IOU} (merge's road: then a greedy walk over them): "
+        f"the pairs above {MAX_IOU} by overlapping_pairs (exact IoU; merge finds the same "
+        "pairs deciding most by bounds, then walks them greedily): "
         f"{len(p)} pairs, {wall * 1e3:.0f} ms (CPU {cpu * 1e3:.0f} ms)"
     )
 

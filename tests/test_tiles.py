@@ -614,3 +614,108 @@ def test_merge_equals_seam_rule_then_suppress_adversarial(boxes, seed, max_iou):
             m = merge(local, scores, tile, tiles, shape="rotated", max_iou=max_iou)
         assert m.at_seam.tolist() == dropped.tolist()
         assert m.rows.tolist() == kept.tolist()
+
+
+# ------------------------------------------------------------------ the pairs merge walks
+
+
+def pairs_by_verdict(boxes, shape, thr, labels=None, serial=True):
+    """The pairs (i < j) with IoU > thr that merge's pairs road finds (the spatial order from
+    the extents, the boxes prepared in it, pairs decided by cheap bounds where they can
+    be), from the CSR neighbour list it walks."""
+    from obbiou._kernels import grid as kgrid
+    from obbiou._kernels import suppress as ksup
+    from obbiou._kernels.codes import Kind
+    from obbiou.measures import prepare
+    from obbiou.shapes import Boxes
+
+    data = np.asarray(boxes, dtype=np.float64)
+    order, index = kgrid.index_extents(np.ascontiguousarray(envelope(data, shape=shape)))
+    p = prepare(Boxes(np.ascontiguousarray(data[order]), shape, False))
+    vertices = p.vertices if p.kind == "poly" else np.zeros((0, 0, 2))
+    codes = np.zeros(0, np.int64) if labels is None else np.asarray(labels, np.int64)[order]
+    kind = int(Kind[p.kind.upper()])
+    scene = kgrid.self_scene(kind, p.rows, vertices, order, codes, thr, False, serial)
+    ptr, nbr = ksup.exceeding(scene, index, serial)
+    return {(i, int(j)) for i in range(len(data)) for j in nbr[ptr[i] : ptr[i + 1]] if i < j}
+
+
+def exact_pairs(boxes, shape, thr, labels=None):
+    """The pairs (i < j) with exact IoU > thr (obbiou.overlapping_pairs, checked against
+    shapely in tests/test_scene.py), of the same label when labels are given."""
+    p = obbiou.overlapping_pairs(boxes, shape=shape, min_iou=thr)
+    same = np.ones(len(p), bool) if labels is None else labels[p.first] == labels[p.second]
+    return set(zip(p.first[same].tolist(), p.second[same].tolist(), strict=True))
+
+
+def test_pairs_by_verdict_at_exact_thresholds():
+    # Hand-made rotated boxes (angle 0, so their areas are exact in floating point) whose
+    # IoU is a simple fraction, computed with fractions.Fraction from the intervals:
+    # 3 x 1 boxes 1 apart: 2 / 4 = 1/2; 5 x 1 boxes 3 apart: 2 / 8 = 1/4; 7 x 1 boxes 1
+    # apart: 6 / 8 = 3/4; a 2 x 2 box inside a 4 x 4 box: 4 / 16 = 1/4; identical boxes: 1;
+    # boxes sharing an edge only: 0. Each group sits far from the others.
+    from fractions import Fraction
+
+    groups = [  # (x_min, width) pairs along x, height 1 (last: heights of their own)
+        [(0, 3), (1, 3)],
+        [(100, 5), (103, 5)],
+        [(200, 7), (201, 7)],
+        [(300, 2), (302, 2)],
+    ]
+    boxes, spans = [], []
+    for k, group in enumerate(groups):
+        for x0, w in group:
+            boxes.append([x0 + w / 2, 0.5 + 10 * k, w, 1.0, 0.0])
+            spans.append((Fraction(x0), Fraction(x0 + w), Fraction(10 * k), Fraction(10 * k + 1)))
+    for box in (
+        [500.0, 500.0, 4.0, 4.0, 0.0],
+        [500.0, 500.0, 2.0, 2.0, 0.0],
+        [500.0, 500.0, 2.0, 2.0, 0.0],
+    ):
+        boxes.append(box)
+        cx, cy, w, h = (Fraction(v) for v in box[:4])
+        spans.append((cx - w / 2, cx + w / 2, cy - h / 2, cy + h / 2))
+
+    def rational_iou(a, b):
+        ix = max(min(a[1], b[1]) - max(a[0], b[0]), 0)
+        iy = max(min(a[3], b[3]) - max(a[2], b[2]), 0)
+        inter = ix * iy
+        union = (a[1] - a[0]) * (a[3] - a[2]) + (b[1] - b[0]) * (b[3] - b[2]) - inter
+        return inter / union
+
+    n = len(boxes)
+    ious = {(i, j): rational_iou(spans[i], spans[j]) for i in range(n) for j in range(i + 1, n)}
+    assert ious[(0, 1)] == Fraction(1, 2) and ious[(2, 3)] == Fraction(1, 4)
+    assert ious[(4, 5)] == Fraction(3, 4) and ious[(6, 7)] == 0  # shared edge
+    assert ious[(8, 9)] == Fraction(1, 4) and ious[(9, 10)] == 1
+    for thr in (0.0, 0.25, 0.5, 0.75, 1.0):
+        for t in (thr, math.nextafter(thr, -1.0), math.nextafter(thr, 2.0)):
+            if not 0.0 <= t <= 1.0:
+                continue
+            want = {pair for pair, v in ious.items() if v > Fraction(t)}  # exact rationals
+            assert pairs_by_verdict(boxes, "rotated", t) == want, t
+            assert exact_pairs(boxes, "rotated", t) == want, t
+
+
+@pytest.mark.parametrize("serial", [True, False])
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(rotated_boxes(min_n=0, max_n=40), st.floats(0, 1), st.integers(0, 2**32 - 1))
+def test_pairs_by_verdict_equal_exact_pairs(serial, boxes, thr, seed):
+    # the shared adversarial boxes (identical, nested, near-parallel, tiny, huge, far from
+    # the origin); with labels or without; with buffers too small, so that every chunk
+    # that has a candidate is walked again with room for all of them
+    from obbiou._kernels import suppress as ksup
+
+    rng = np.random.default_rng(seed)
+    labels = rng.integers(0, 2, len(boxes)) if seed % 2 else None
+    with pytest.MonkeyPatch.context() as mp:
+        for room in ((4, 64), (0, 0)):
+            mp.setattr(ksup, "PAIRS_ROOM", room)
+            got = pairs_by_verdict(boxes, "rotated", thr, labels, serial)
+            assert got == exact_pairs(boxes, "rotated", thr, labels)
+
+
+@settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(convex_polygons(min_n=0, max_n=20), st.floats(0, 1))
+def test_pairs_by_verdict_equal_exact_pairs_polygons(polys, thr):
+    assert pairs_by_verdict(polys, "polygon", thr) == exact_pairs(polys, "polygon", thr)

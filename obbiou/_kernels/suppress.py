@@ -11,7 +11,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from obbiou._kernels.grid import insert, scratch, walk
+from obbiou._kernels import threads
+from obbiou._kernels.grid import chunk_room, insert, regrow, scratch, walk
 from obbiou._kernels.pairs import (
     IOU,
     R_SIZE,
@@ -166,16 +167,18 @@ def soft(scores, order, ptr, nbr, val, gaussian, max_iou, sigma, min_score, limi
 @njit(cache=True)
 def hard_over_pairs(order, ptr, nbr):
     """Greedy hard suppression over a neighbour list of the pairs with IoU above the
-    threshold (:func:`neighbours` of them): walk ``order`` (best first); a box not yet
-    removed is kept and removes its neighbours. The kept set of :func:`suppress_hard_rect`
-    and its siblings on the same pairs: a box's higher-ranked neighbours are all decided
-    when it comes up, and it is removed exactly when one of them was kept. For boxes with
+    threshold (:func:`neighbours` or :func:`exceeding` of them): walk ``order`` (best
+    first); a box not yet removed is kept and removes its neighbours. The kept set of
+    :func:`suppress_hard_rect` and its siblings on the same pairs: a box's higher-ranked
+    neighbours are all decided when it comes up, and it is removed exactly when one of
+    them was kept. For boxes with
     few copies each (the seams of a tiled image), where the pairs are few and found on all
     cores. Measured on the 168 483 boxes left after the seam rule in ``python
     bench/tiles.py`` (57 615 pairs above 0.5; one thread, CPU, fastest of 11): this walk
-    1.2-1.6 ms, the pairs 47-55 ms, against 129-158 ms for :func:`obbiou.suppress`, whose
-    lazy walk visits the boxes in score order, jumping across the whole scene. Returns the
-    kept indices, best first."""
+    1.2-1.6 ms, the pairs 47-55 ms (by ``overlapping_pairs``; 16-20 ms by
+    :func:`exceeding`), against 129-158 ms for :func:`obbiou.suppress`, whose lazy walk
+    visits the boxes in score order, jumping across the whole scene. Returns the kept
+    indices, best first."""
     n = order.shape[0]
     removed = np.zeros(n, np.bool_)
     kept = np.empty(n, np.int64)
@@ -191,16 +194,17 @@ def hard_over_pairs(order, ptr, nbr):
     return kept[:nk]
 
 
-# "IoU(A[i], A[j]) > thr" of each kind; hard suppression compiles only its own kind's.
+# "IoU(A[i], A[j]) > thr" of each kind (A: the scene's rows, self-pairs); hard suppression
+# and the pairs search of :func:`exceeding` compile only their own kind's.
 
 
-@njit(cache=True)
-def _exceeds_axis(scene, i, j, buf):
+@njit(cache=True, forceinline=True)
+def exceeds_axis(scene, i, j, buf):
     return axis_pair(scene.A, i, scene.A, j, np.int64(IOU), scene.is3d, buf) > scene.thr
 
 
-@njit(cache=True)
-def _exceeds_rect(scene, i, j, buf):
+@njit(cache=True, forceinline=True)
+def exceeds_rect(scene, i, j, buf):
     """For rectangles by cheap bounds when they decide (measured, 10 000 clustered
     detections: they decide 84 % of the overlapping pairs at 0.5), else the exact value."""
     A, thr = scene.A, scene.thr
@@ -214,8 +218,8 @@ def _exceeds_rect(scene, i, j, buf):
     )  # as rect_measure
 
 
-@njit(cache=True)
-def _exceeds_poly(scene, i, j, buf):
+@njit(cache=True, forceinline=True)
+def exceeds_poly(scene, i, j, buf):
     V, A = scene.VA, scene.A
     return poly_pair(V, A, i, V, A, j, np.int64(IOU), buf) > scene.thr
 
@@ -223,19 +227,19 @@ def _exceeds_poly(scene, i, j, buf):
 @njit(cache=True)
 def suppress_hard_axis(scene, grid, order, limit):
     """:func:`_suppress_hard` of axis boxes."""
-    return _suppress_hard(scene, grid, order, limit, _exceeds_axis)
+    return _suppress_hard(scene, grid, order, limit, exceeds_axis)
 
 
 @njit(cache=True)
 def suppress_hard_rect(scene, grid, order, limit):
     """:func:`_suppress_hard` of rectangles (rotated, upright)."""
-    return _suppress_hard(scene, grid, order, limit, _exceeds_rect)
+    return _suppress_hard(scene, grid, order, limit, exceeds_rect)
 
 
 @njit(cache=True)
 def suppress_hard_poly(scene, grid, order, limit):
     """:func:`_suppress_hard` of polygons."""
-    return _suppress_hard(scene, grid, order, limit, _exceeds_poly)
+    return _suppress_hard(scene, grid, order, limit, exceeds_poly)
 
 
 #: The hard-suppression kernel of each kind, by its code.
@@ -288,3 +292,134 @@ def _suppress_hard(scene, grid, order, limit, exceeds):
             kept[nk] = order[p]
             nk += 1
     return kept[:nk]
+
+
+# ---------------------------------------------------------------------------------------
+# the pairs above the threshold, by verdict: for a greedy walk that needs no IoU values
+
+
+@njit(inline="always")
+def _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, exceeds):
+    """For the chunks c0..c1-1 marked in ``todo``: the self-pairs of a's rows c * step ...
+    (spatial order) with IoU > thr, by ``exceeds`` (cheap bounds for rectangles, the exact
+    value only when they do not decide). Each row's candidates (one forward walk over the
+    static grid) go into cj[lo[c]:hi[c]] after the pairs kept so far, and those above the
+    threshold are compacted to the front, with their first row in ci. ``need[c]``: the
+    number of candidates when they overflowed the room (redo the chunk with that much,
+    see :func:`obbiou._kernels.grid.regrow`), else the number of pairs; ``got[c]``: the
+    pairs. Written once; numba inlines it into each kind's ``exceeding_*`` kernel."""
+    n = scene.A.shape[0]
+    cell_ptr = grid.cell_ptr
+    buf = scratch(scene.VA, scene.VA)
+    for c in range(c0, c1):
+        if not todo[c]:
+            continue
+        a = ci[lo[c] : hi[c]]
+        b = cj[lo[c] : hi[c]]
+        cap = b.shape[0]
+        seen = 0
+        kept = 0
+        over = False
+        for i in range(c * step, min(n, (c + 1) * step)):
+            out = b[:0] if over else b[kept:]
+            m = walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], np.bool_(False), out)
+            seen += m
+            if over:
+                continue
+            if kept + m > cap:  # this row's candidates did not all fit: count the rest
+                over = True
+                continue
+            s0 = kept
+            for k in range(s0, s0 + m):
+                j = b[k]
+                if exceeds(scene, i, j, buf):
+                    a[kept] = i
+                    b[kept] = j
+                    kept += 1
+        need[c] = seen if over else kept
+        got[c] = 0 if over else kept
+
+
+@njit(cache=True, nogil=True)
+def exceeding_axis(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1):
+    """:func:`_exceeding` of axis boxes."""
+    _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, exceeds_axis)
+
+
+@njit(cache=True, nogil=True)
+def exceeding_rect(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1):
+    """:func:`_exceeding` of rectangles (rotated, upright)."""
+    _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, exceeds_rect)
+
+
+@njit(cache=True, nogil=True)
+def exceeding_poly(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1):
+    """:func:`_exceeding` of polygons."""
+    _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, exceeds_poly)
+
+
+#: The verdict pairs kernel of each kind, by its code.
+EXCEEDING = (exceeding_axis, exceeding_rect, exceeding_poly)
+
+
+@njit(cache=True)
+def chunk_neighbours(oa, ci, cj, lo, got):
+    """Symmetric CSR neighbour list (ptr, nbr) of the chunks' pairs (chunk c's at
+    ci[lo[c]:lo[c] + got[c]], cj likewise: spatial positions), over the rows ``oa`` of
+    the positions (``oa[p]``: the row at position p)."""
+    n = oa.shape[0]
+    ptr = np.zeros(n + 1, np.int64)
+    for c in range(got.shape[0]):
+        for k in range(lo[c], lo[c] + got[c]):
+            ptr[oa[ci[k]] + 1] += 1
+            ptr[oa[cj[k]] + 1] += 1
+    for r in range(n):
+        ptr[r + 1] += ptr[r]
+    fill = ptr[:-1].copy()
+    nbr = np.empty(ptr[n], np.int64)
+    for c in range(got.shape[0]):
+        for k in range(lo[c], lo[c] + got[c]):
+            p, q = oa[ci[k]], oa[cj[k]]
+            nbr[fill[p]] = q
+            fill[p] += 1
+            nbr[fill[q]] = p
+            fill[q] += 1
+    return ptr, nbr
+
+
+#: Room in a chunk's buffer of :func:`exceeding`: pairs per row, and spare (tests set
+#: (0, 0) to force the redo path).
+PAIRS_ROOM = (4, 64)
+
+
+def exceeding(scene, grid, serial):
+    """The self-pairs of a scene (:func:`obbiou._kernels.grid.prepare_scene` with
+    ``same``, or :func:`obbiou._kernels.grid.self_scene`) with IoU > the scene's threshold
+    (and the same label, when labels are given), as a symmetric CSR neighbour list (ptr,
+    nbr) over the scene's rows ``oa`` (the input rows, not the spatial positions): what
+    :func:`hard_over_pairs` walks. No IoU values: rectangles are decided by cheap bounds
+    where they can be, as in hard suppression. ``serial``: one thread.
+
+    Chunks of rows in spatial order, each with its own buffer. A chunk's buffer holds its
+    pairs so far plus one row's candidates, so it is sized by the pairs expected, not by
+    the candidates: :data:`PAIRS_ROOM`, four pairs per row plus 64 (copies are few per box after a
+    merge's seam rule: 0.34 pairs per box in ``python bench/tiles.py``; pages of room left
+    unused are never touched). This saves the sampling walk of
+    :func:`obbiou._kernels.grid.scene_pairs`. A chunk that overflows is redone with room
+    for all its candidates."""
+    n = scene.A.shape[0]
+    chunks = 1 if serial else 8 * threads.count()
+    step = -(-n // chunks)
+    rows = np.minimum(step, np.maximum(n - step * np.arange(chunks), 0))
+    per_row, spare = PAIRS_ROOM
+    lo, hi, ci, cj, cv = chunk_room(per_row * rows + spare)
+    need = np.zeros(chunks, np.int64)
+    got = np.zeros(chunks, np.int64)
+    todo = np.ones(chunks, np.bool_)
+    body = EXCEEDING[scene.kind]
+    threads.run(body, (step, scene, grid, ci, cj, lo, hi, need, got, todo), chunks, serial=serial)
+    ci, cj, cv, redo = regrow(lo, hi, need, ci, cj, cv)
+    if redo.any():
+        args = (step, scene, grid, ci, cj, lo, hi, need, got, redo)
+        threads.run(body, args, chunks, serial=serial)
+    return chunk_neighbours(scene.oa, ci, cj, lo, got)
