@@ -35,7 +35,7 @@ def frame_statuses(
 
     Truths: ``"matched"``, ``"missed"`` or ``"ignore"``; detections: ``"matched"``,
     ``"false positive"``, ``"ignored"`` (absorbed by an ignore truth) or ``"capped"``
-    (beyond ``max_detections``). ``iou`` defaults to the lowest threshold evaluated.
+    (beyond ``max_detections``). ``iou`` defaults to the most lenient threshold evaluated.
 
     Examples
     --------
@@ -50,7 +50,7 @@ def frame_statuses(
     from obbiou.tables import comparable_frame_ids
 
     r = evaluation.records
-    t = min(evaluation.thresholds) if iou is None else evaluation.threshold(iou)
+    t = evaluation.threshold(iou)  # None: the most lenient
     k = int(np.flatnonzero(np.abs(np.asarray(r.thresholds) - t) < 1e-9)[0])
     want = np.array([frame], dtype=object if isinstance(frame, str) else None)
     dframe, tframe, want = comparable_frame_ids([r.det_frame, r.truth_frame, want])

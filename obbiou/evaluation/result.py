@@ -728,7 +728,7 @@ class Evaluation:
         ``detections`` (kept and evaluated), ``tp``, ``fp``, ``ignored``, ``missed``,
         ``truths``, ``precision``, ``recall``, ``f1``; ``<NA>`` where a value is undefined
         (precision with nothing kept, recall without truths). ``iou`` as for
-        :meth:`detections` (``None``: each label at the lowest of its own thresholds).
+        :meth:`detections` (``None``: each label at the most lenient of its own thresholds).
         Exact without re-matching: see :mod:`obbiou.evaluation.operating`. Capped
         detections are never kept; in a bucket, the bucket's outcomes are used.
 
@@ -1077,8 +1077,8 @@ class Evaluation:
     def plot(self, path: str, *, iou: float | None = None, title: str | None = None) -> None:
         """Precision-recall curves per label, PNG at ``path``.
 
-        Each label is drawn at ``iou`` or, by default, at its own lowest threshold (a label
-        with a threshold of its own is drawn at it); see
+        Each label is drawn at ``iou`` or, by default, at its own most lenient threshold (a
+        label with a threshold of its own is drawn at it); see
         :func:`obbiou.evaluation.plots.draw_curves`. ``title`` (optional) heads the figure,
         e.g. the data set and model name.
         """

@@ -157,8 +157,8 @@ def tp_errors_text(evaluation: Any) -> str:
 def causes_text(evaluation: Any, iou: float | None = None) -> str:
     """Causes of false positives and misses per label, and the orientation error, as text.
 
-    Each label is reported at ``iou`` or, by default, at its own lowest threshold (labels
-    may have thresholds of their own).
+    Each label is reported at ``iou`` or, by default, at its own most lenient threshold
+    (lowest IoU, largest distance; labels may have thresholds of their own).
     """
     per_label = evaluation.to_dict(breakdowns=False)["labels"]
     criterion = getattr(evaluation, "criterion", "iou")
