@@ -177,6 +177,8 @@ def frames_strategy(draw):
     return truth, dets
 
 
+# random tables may share no frame or label: the warning is right, and not the subject here
+@pytest.mark.filterwarnings("ignore::obbiou.errors.LikelyMistake")
 @settings(max_examples=60, deadline=None)
 @given(
     frames_strategy(),
