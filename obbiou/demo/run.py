@@ -594,7 +594,7 @@ def _section(
         ),
         "",
         "Evaluation of the improved detector:",
-        ev.summary(),
+        ev.summary(note=False),  # the report says it once, at its head
         "",
         f"  mean AP over thresholds {_fmt(ev.mean_ap())}, 95% interval "
         f"[{ci_all[0]:.4f}, {ci_all[1]:.4f}]; at IoU {head:g}: {_fmt(ev.mean_ap(head))} "
@@ -634,7 +634,7 @@ def _lidar_section(lidar: Any, n_returns: int) -> list[str]:
         f"The same detections matched by ground-plane centre distance instead of IoU, with "
         f"{n_returns} invented lidar returns:",
         f"truths holding fewer than {LIDAR['min_points']} returns are set aside as ignore truths.",
-        lidar.summary(),
+        lidar.summary(note=False),
     ]
 
 
@@ -655,6 +655,6 @@ def _footer(out: Path, files: dict[str, Path]) -> list[str]:
         f"  obbiou evaluate {out}/warehouse/truth.csv {out}/warehouse/improved.csv "
         f"--distance 0.5,1,2,4 --points {out}/warehouse/returns.csv --min-points 5",
         "",
-        textwrap.fill("Reminder: the data is invented. " + CAUTION, 88),
+        "Reminder: the data is invented.",
     ]
     return lines

@@ -936,11 +936,12 @@ class Evaluation:
         return frame
 
     # -- reports -----------------------------------------------------------------------------
-    def summary(self) -> str:
-        """A readable text table: one line per label and threshold, then the means."""
+    def summary(self, *, note: bool = True) -> str:
+        """A readable text table: one line per label and threshold, then the means, and the
+        safety note (``note=False`` leaves it out, for a report that says it once)."""
         from obbiou.evaluation.text import summary_text
 
-        return summary_text(self)
+        return summary_text(self, note=note)
 
     def to_dict(self, *, breakdowns: bool = True, interval: Mapping | None = None) -> dict:
         """JSON-safe result: mean AP, per-label AP and counts, thresholds, protocol options.

@@ -55,9 +55,10 @@ def _shown(criterion: str, t: float) -> str:
     return f"{t:g}m" if criterion == "distance" else f"{t:.2f}"
 
 
-def summary_text(evaluation: Any) -> str:
+def summary_text(evaluation: Any, *, note: bool = True) -> str:
     """One line per label and threshold (AP and counts), the means, the mean AP of each size
-    or range bucket (when there are buckets), and the note."""
+    or range bucket (when there are buckets), and the safety note (``note=False``: without
+    it, for a report that says it once elsewhere)."""
     protocol = evaluation.protocol()
     points = protocol["recall_points"]
     kind = protocol["ap"] if points is None else f"{points}-point"
@@ -114,7 +115,8 @@ def summary_text(evaluation: Any) -> str:
         lines.append(tp_errors_text(evaluation))
     if evaluation.buckets:
         lines += ["", buckets_text(evaluation), ""]
-    lines.append(SAFETY_NOTE)
+    if note:
+        lines.append(SAFETY_NOTE)
     return "\n".join(lines)
 
 

@@ -305,3 +305,13 @@ def test_nan_bucket_edges_are_an_error():
         evaluate(truth, dets, range_buckets=[0, float("nan")])
     ev = evaluate(truth, dets, size_buckets=[0, float("inf")])
     assert list(ev.buckets["size"]) == ["0-inf"]
+
+
+def test_summary_note_can_be_left_out():
+    # a report that states the safety note once (the demo) leaves it out of each summary
+    truth = {"frame": [0], "label": ["skiff"], "x_min": [0], "y_min": [0], "x_max": [2],
+             "y_max": [2]}  # fmt: skip
+    ev = evaluate(truth, dict(truth, score=[0.5]))
+    assert "qualified engineers" in ev.summary()
+    assert "qualified engineers" not in ev.summary(note=False)
+    assert ev.summary(note=False) == ev.summary().rsplit("\n", 1)[0]
