@@ -37,6 +37,7 @@ from numba import njit
 
 from obbiou._kernels import threads
 from obbiou._kernels.codes import Kind
+from obbiou._kernels.options import ENTRY, HELPER
 from obbiou._kernels.pairs import (
     AX_SIZE,
     AX_X0,
@@ -72,26 +73,51 @@ _PAD = 1e-12
 X0, Y0, X1, Y1, Z0, Z1 = 0, 1, 2, 3, 4, 5
 
 
-@njit(cache=True)
 def _pad(lo, hi):
-    p = _PAD * (abs(lo) + abs(hi)) + 1e-300
+    """The one padding rule (numpy arrays lo <= hi): (lo - p, hi + p)."""
+    p = _PAD * (np.abs(lo) + np.abs(hi)) + 1e-300
     return lo - p, hi + p
 
 
 def pad_extents(env):
-    """:func:`_pad` of every row of ``env`` (N, 4): x_min, y_min, x_max, y_max, in numpy, for
-    the code outside the kernels that must agree with the index (the Dask tiles): the one
-    padding rule."""
+    """:func:`_pad` of every row of ``env`` (N, 4): x_min, y_min, x_max, y_max, for the
+    grid and for the code outside the kernels that must agree with it (the Dask tiles)."""
     env = np.asarray(env, dtype=np.float64)
-    p = _PAD * (np.abs(env[:, :2]) + np.abs(env[:, 2:])) + 1e-300
-    return np.concatenate([env[:, :2] - p, env[:, 2:] + p], axis=1)
+    lo, hi = _pad(env[:, :2], env[:, 2:])
+    return np.concatenate([lo, hi], axis=1)
 
 
-@njit(cache=True)
+# The extent columns of prepared rows, by kind: x0, y0, x1, y1, z0, z1 (None: no z) and size.
+_EXTENT_COLUMNS = {
+    0: (AX_X0, AX_Y0, AX_X1, AX_Y1, AX_Z0, AX_Z1, AX_SIZE),
+    1: (R_XMIN, R_YMIN, R_XMAX, R_YMAX, R_Z0, R_Z1, R_SIZE),
+    2: (P_XMIN, P_YMIN, P_XMAX, P_YMAX, None, None, P_AREA),
+}
+
+
+def side_extents(kind, R, is3d):
+    """Padded extents (N, 6: x0, y0, x1, y1, z0, z1; without ``is3d``, z0 and z1 are the
+    padded -1 and 1, so z never rejects) and sizes (N,) of prepared rows ``R``. numpy: a
+    few column operations (50 000 rows: about 0.3 ms), where a numba kernel cost a
+    second of compiling on the first scene call."""
+    x0, y0, x1, y1, z0, z1, size = _EXTENT_COLUMNS[kind]
+    n = R.shape[0]
+    ext = np.empty((n, 6))
+    ext[:, X0], ext[:, X1] = _pad(R[:, x0], R[:, x1])
+    ext[:, Y0], ext[:, Y1] = _pad(R[:, y0], R[:, y1])
+    if is3d and z0 is not None:
+        ext[:, Z0], ext[:, Z1] = _pad(R[:, z0], R[:, z1])
+    else:
+        ext[:, Z0], ext[:, Z1] = _pad(np.full(n, -1.0), np.ones(n))
+    return ext, np.ascontiguousarray(R[:, size])
+
+
+@njit(**HELPER)
 def _cell(x, g, inv, n):
     """Cell of coordinate x on an axis from g with cells of size 1 / inv, clamped to n."""
     c = int(np.floor((x - g) * inv))
-    return min(max(c, 0), n - 1)
+    c = c if c > 0 else 0
+    return c if c < n - 1 else n - 1
 
 
 # Columns of a grid level (floats, one array): origin x, y, cell size, cells along x, y (0:
@@ -101,18 +127,10 @@ def _cell(x, g, inv, n):
 L_GX, L_GY, L_SIZE, L_NX, L_NY, L_FIRST, L_INV, L_REACH = 0, 1, 2, 3, 4, 5, 6, 7
 
 
-@njit(cache=True, forceinline=True)
-def _padded_xy(kind, R, i):
-    """Padded x-y extent (x0, y0, x1, y1) of prepared row ``R[i]`` (as in :func:`_extents`)."""
-    bx0, by0, bx1, by1 = _box_xy(kind, R, i)
-    x0, x1 = _pad(bx0, bx1)
-    y0, y1 = _pad(by0, by1)
-    return x0, y0, x1, y1
-
-
-@njit(cache=True)
-def build_index(kind, R, base):
-    """The multi-level grid over prepared rows ``R`` and their spatial order.
+@njit(**ENTRY)
+def build_index(ext, base):
+    """The multi-level grid over boxes with padded extents ``ext`` (rows x0, y0, x1, y1,
+    ...: :func:`side_extents`, :func:`pad_extents`) and their spatial order.
 
     ``base`` is the level-0 cell size (> 0). Each box belongs to the level whose cell size
     base * 2**L is at least its padded extent, and is stored once, in the cell of its
@@ -123,42 +141,54 @@ def build_index(kind, R, base):
     cell c are positions cell_ptr[c] to cell_ptr[c + 1] - 1 of the order), ``box_cell``
     and ``box_level`` (cell and level of each position).
     """
-    m = R.shape[0]
+    # Arrays come from np.empty alone, filled by loops, and minima and maxima are written
+    # out: each numpy constructor (np.zeros, .copy) and each min or max signature is a
+    # function numba compiles for this kernel; measured, they were a third of a second of
+    # the first scene call.
+    m = ext.shape[0]
     level = np.empty(m, np.int64)
     # each box's level, and each level's count, bounds and reach, in one pass (room for
     # every level a box can get: the level loop stops at 200)
-    count = np.zeros(201, np.int64)
-    bounds = np.empty((201, 4))
-    reach = np.zeros(201)
+    count = np.empty(201, np.int64)
+    stats = np.empty((201, 5))  # bounds x0, y0, x1, y1 of the level's boxes; reach
     for lv in range(201):
-        bounds[lv, 0] = np.inf
-        bounds[lv, 1] = np.inf
-        bounds[lv, 2] = -np.inf
-        bounds[lv, 3] = -np.inf
+        count[lv] = 0
+        stats[lv, 0] = np.inf
+        stats[lv, 1] = np.inf
+        stats[lv, 2] = -np.inf
+        stats[lv, 3] = -np.inf
+        stats[lv, 4] = 0.0
     top = 0
     for j in range(m):
-        x0, y0, x1, y1 = _padded_xy(kind, R, j)
-        d = max(x1 - x0, y1 - y0)
+        x0, y0, x1, y1 = ext[j, X0], ext[j, Y0], ext[j, X1], ext[j, Y1]
+        d = x1 - x0 if x1 - x0 > y1 - y0 else y1 - y0
         lv = 0
         s = base
         while s < d and lv < 200:
             s *= 2.0
             lv += 1
         level[j] = lv
-        top = max(top, lv)
+        top = lv if lv > top else top
         count[lv] += 1
-        bounds[lv, 0] = min(bounds[lv, 0], x0)
-        bounds[lv, 1] = min(bounds[lv, 1], y0)
-        bounds[lv, 2] = max(bounds[lv, 2], x1)
-        bounds[lv, 3] = max(bounds[lv, 3], y1)
-        reach[lv] = max(reach[lv], d)
+        if x0 < stats[lv, 0]:
+            stats[lv, 0] = x0
+        if y0 < stats[lv, 1]:
+            stats[lv, 1] = y0
+        if x1 > stats[lv, 2]:
+            stats[lv, 2] = x1
+        if y1 > stats[lv, 3]:
+            stats[lv, 3] = y1
+        if d > stats[lv, 4]:
+            stats[lv, 4] = d
     nlev = top + 1
-    count = count[:nlev]
-    bounds = bounds[:nlev].copy()
-    reach = reach[:nlev]
-    levels = np.zeros((nlev, 8))
+    bounds = np.empty((nlev, 4))
+    levels = np.empty((nlev, 8))
     ncells = 0
     for lv in range(nlev):
+        for k in range(4):
+            bounds[lv, k] = stats[lv, k]
+        for k in range(8):
+            levels[lv, k] = 0.0
         if count[lv] == 0:
             continue
         s = base * 2.0**lv
@@ -184,20 +214,23 @@ def build_index(kind, R, base):
         levels[lv, L_FIRST] = ncells
         levels[lv, L_INV] = 1.0 / s
         # enlarged so that x0 - reach, rounded, is never above a box's true reach
-        levels[lv, L_REACH] = reach[lv] * (1.0 + 2.0**-20) + 1e-300
+        levels[lv, L_REACH] = stats[lv, 4] * (1.0 + 2.0**-20) + 1e-300
         ncells += int(nx * ny)
-    cell_ptr = np.zeros(ncells + 1, np.int64)
+    cell_ptr = np.empty(ncells + 1, np.int64)
+    for c in range(ncells + 1):
+        cell_ptr[c] = 0
     key = np.empty(m, np.int64)  # each box's cell
     for j in range(m):
-        x0, y0, _, _ = _padded_xy(kind, R, j)
+        x0, y0 = ext[j, X0], ext[j, Y0]
         lv = level[j]
         gx, gy, inv = levels[lv, L_GX], levels[lv, L_GY], levels[lv, L_INV]
         nx, ny, c0 = int(levels[lv, L_NX]), int(levels[lv, L_NY]), int(levels[lv, L_FIRST])
         key[j] = c0 + _cell(y0, gy, inv, ny) * nx + _cell(x0, gx, inv, nx)
         cell_ptr[key[j] + 1] += 1
+    fill = np.empty(ncells, np.int64)
     for c in range(ncells):
         cell_ptr[c + 1] += cell_ptr[c]
-    fill = cell_ptr[:-1].copy()
+        fill[c] = cell_ptr[c]
     order = np.empty(m, np.int64)
     box_cell = np.empty(m, np.int64)
     box_level = np.empty(m, np.int64)
@@ -223,47 +256,13 @@ Grid = namedtuple("Grid", "levels bounds cell_ptr box_cell box_level")
 AXIS, RECT, POLY = int(Kind.AXIS), int(Kind.RECT), int(Kind.POLY)
 
 
-@njit(cache=True, forceinline=True)
-def _extent_row(kind, R, i, is3d, ext, size):
-    """Padded extent and size of prepared row ``R[i]`` into ``ext[i]``, ``size[i]``."""
-    ext[i, X0], ext[i, Y0], ext[i, X1], ext[i, Y1] = _padded_xy(kind, R, i)
-    if kind == AXIS:
-        z0, z1, s = R[i, AX_Z0], R[i, AX_Z1], R[i, AX_SIZE]
-    elif kind == RECT:
-        z0, z1, s = R[i, R_Z0], R[i, R_Z1], R[i, R_SIZE]
-    else:
-        z0, z1, s = -1.0, 1.0, R[i, P_AREA]
-    if not is3d:
-        z0, z1 = -1.0, 1.0
-    ext[i, Z0], ext[i, Z1] = _pad(z0, z1)
-    size[i] = s
-
-
-@njit(cache=True, nogil=True)
-def extent_rows(kind, R, is3d, ext, size, lo, hi):
-    """Padded extents and sizes of prepared rows lo..hi-1 (see :func:`_extent_row`)."""
-    for i in range(lo, hi):
-        _extent_row(kind, R, i, is3d, ext, size)
-
-
-@njit(cache=True, forceinline=True)
-def _box_xy(kind, R, i):
-    """Unpadded x-y extent (x0, y0, x1, y1) of prepared row ``R[i]``."""
-    if kind == AXIS:
-        return R[i, AX_X0], R[i, AX_Y0], R[i, AX_X1], R[i, AX_Y1]
-    if kind == RECT:
-        return R[i, R_XMIN], R[i, R_YMIN], R[i, R_XMAX], R[i, R_YMAX]
-    return R[i, P_XMIN], R[i, P_YMIN], R[i, P_XMAX], R[i, P_YMAX]
-
-
-def base_cell(kind, R):
-    """Level-0 cell size: twice the median extent of the indexed boxes ``R`` (prepared rows;
-    of an evenly spaced sample of at most 4097 of them: the size only tunes speed), bounded
-    below so that the size levels stay few whatever the spread of sizes. Measured on
-    self-pairs of 5e4 rotated boxes 8-40 px long (2 threads, no fresh pages, fastest of
-    40 calls): 1.5x the median 8.7 ms, 2x 6.0-6.3 ms, 3x 6.2-7.4 ms. Read from
-    the unpadded rows (the grid itself is built on the padded extents): the cell size
-    changes no result, only speed. The median is numpy's (numba's would add a second of
+def base_cell(ext):
+    """Level-0 cell size: twice the median extent of the indexed boxes (padded extents
+    ``ext``; of an evenly spaced sample of at most 4097 of them: the size only tunes
+    speed), bounded below so that the size levels stay few whatever the spread of sizes.
+    Measured on self-pairs of 5e4 rotated boxes 8-40 px long (2 threads, no fresh pages,
+    fastest of 40 calls): 1.5x the median 8.7 ms, 2x 6.0-6.3 ms, 3x 6.2-7.4 ms. The cell
+    size changes no result, only speed. numpy's median (numba's would add a second of
     compiling to the first scene call).
 
     When the largest extent is at most a quarter above that, the cells take its size
@@ -272,32 +271,19 @@ def base_cell(kind, R):
     extent 2.2x the median; one thread, CPU, fastest of 15, three rounds): the walk 10.4-
     10.7 ms with one level of 80 px cells, 12.6-12.9 ms with 69.5 px cells and a second
     level for 553 boxes."""
-    n = R.shape[0]
-    step = max(1, n // 4096)
-    d = np.empty((n + step - 1) // step)
-    top = _sample_extents(kind, R, step, d)
-    base = 2.0 * float(np.median(d))
+    n = ext.shape[0]
+    if n == 0:
+        return 1.0
+    d = np.maximum(ext[:, X1] - ext[:, X0], ext[:, Y1] - ext[:, Y0])
+    top = float(d.max())
+    base = 2.0 * float(np.median(d[:: max(1, n // 4096)]))
     if base < top <= 1.25 * base:
-        base = top * (1.0 + 2.0**-20)  # (above the padding of ordinary coordinates)
+        base = top * (1.0 + 2.0**-20)
     return max(base, top * 2.0**-40, 1e-300)
 
 
-@njit(cache=True)
-def _sample_extents(kind, R, step, d):
-    """The larger side of the extents of every ``step``-th row into ``d``; the largest
-    side of all rows."""
-    top = 0.0
-    for i in range(R.shape[0]):
-        x0, y0, x1, y1 = _box_xy(kind, R, i)
-        top = max(top, x1 - x0, y1 - y0)
-    for k in range(d.shape[0]):
-        x0, y0, x1, y1 = _box_xy(kind, R, k * step)
-        d[k] = max(x1 - x0, y1 - y0)
-    return top
-
-
-@njit(cache=True)
-def order_on(kind, R, levels):
+@njit(**ENTRY)
+def order_on(ext, levels):
     """Rows of ``R`` (the other side of a scene) by the cell of their lower-left corner on
     the finest non-empty level of b's grid (counting sort, row-major): neighbouring boxes
     then sit next to each other in memory, so the queries read cells, extents and
@@ -309,11 +295,13 @@ def order_on(kind, R, levels):
         lv += 1
     gx, gy, inv = levels[lv, L_GX], levels[lv, L_GY], levels[lv, L_INV]
     nx, ny = int(levels[lv, L_NX]), int(levels[lv, L_NY])
-    n = R.shape[0]
+    n = ext.shape[0]
     key = np.empty(n, np.int64)
-    ptr = np.zeros(nx * ny + 1, np.int64)
+    ptr = np.empty(nx * ny + 1, np.int64)
+    for c in range(nx * ny + 1):
+        ptr[c] = 0
     for i in range(n):
-        x0, y0, _, _ = _padded_xy(kind, R, i)
+        x0, y0 = ext[i, X0], ext[i, Y0]
         key[i] = _cell(y0, gy, inv, ny) * nx + _cell(x0, gx, inv, nx)
         ptr[key[i] + 1] += 1
     for c in range(nx * ny):
@@ -325,29 +313,16 @@ def order_on(kind, R, levels):
     return rows
 
 
-@njit(cache=True)
-def _take(R, order):
-    """R[order] for 2-D or 3-D R, by plain loops: measured 4x faster than numba's fancy
-    indexing (50 000 prepared rows: 1.5 ms against 6 ms)."""
-    out = np.empty((order.shape[0],) + R.shape[1:])
-    flat = R.reshape(R.shape[0], -1)
-    dst = out.reshape(order.shape[0], -1)
-    w = flat.shape[1]
-    for i in range(order.shape[0]):
-        src = order[i]
-        for c in range(w):
-            dst[i, c] = flat[src, c]
-    return out
-
-
-@njit(cache=True)
+@njit(**ENTRY)
 def _permute(R, order):
     """R[:] = R[order] in place, cycle by cycle with one spare row: the scene's largest
     array is not copied (measured, 50 000 rotated boxes: a copy of the prepared rows was
     6.4 MB of fresh pages per call, some 1 600 page faults)."""
     n = R.shape[0]
     w = R.shape[1]
-    done = np.zeros(n, np.bool_)
+    done = np.empty(n, np.int64)
+    for p in range(n):
+        done[p] = 0
     spare = np.empty(w)
     for start in range(n):
         if done[start]:
@@ -356,7 +331,7 @@ def _permute(R, order):
             spare[c] = R[start, c]
         p = start
         while True:
-            done[p] = True
+            done[p] = 1
             q = order[p]
             if q == start:
                 for c in range(w):
@@ -367,22 +342,21 @@ def _permute(R, order):
             p = q
 
 
-@njit(cache=True)
 def arrange(kind, R, V, order, labels):
     """One side of the scene in spatial order: rows (``R`` itself, permuted in place: the
     callers pass private arrays), vertices (a copy: they may be the user's), labels."""
     _permute(R, order)
-    Vs = _take(V, order) if kind == POLY else V
+    Vs = V[order] if kind == POLY else V
     ls = labels[order] if labels.shape[0] > 0 else labels
     return R, Vs, ls
 
 
-@njit(cache=True)
+@njit(**HELPER)
 def scratch(VA, VB):
     return np.empty((6, max(RECT_SCRATCH, 2 * (VA.shape[1] + VB.shape[1]) + 4)))
 
 
-@njit(cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def walk(i, scene, grid, items, ends, growing, out):
     """Candidates of a's row i, by a walk over the grid cells where a box overlapping it
     can have its lower-left corner: on each level, x from x0 - reach to x1, y likewise.
@@ -461,12 +435,18 @@ def walk(i, scene, grid, items, ends, growing, out):
                     if use_labels and labels_a[i] != labels_b[j]:
                         continue
                     if thr > 0.0:
-                        m = (min(x1, eb[j, 2]) - max(x0, eb[j, 0])) * (
-                            min(y1, eb[j, 3]) - max(y0, eb[j, 1])
-                        )
+                        # (minima and maxima written out, as in build_index)
+                        lx = x0 if x0 > eb[j, 0] else eb[j, 0]
+                        hx = x1 if x1 < eb[j, 2] else eb[j, 2]
+                        ly = y0 if y0 > eb[j, 1] else eb[j, 1]
+                        hy = y1 if y1 < eb[j, 3] else eb[j, 3]
+                        m = (hx - lx) * (hy - ly)
                         if is3d:
-                            m *= min(z1, eb[j, 5]) - max(z0, eb[j, 4])
-                        m = min(m, sa[i], sb[j])
+                            lz = z0 if z0 > eb[j, 4] else eb[j, 4]
+                            hz = z1 if z1 < eb[j, 5] else eb[j, 5]
+                            m *= hz - lz
+                        m = m if m < sa[i] else sa[i]
+                        m = m if m < sb[j] else sb[j]
                         u = sa[i] + sb[j] - m
                         if u > 0.0 and m * (1.0 + 1e-9) <= thr * u:
                             continue
@@ -476,7 +456,7 @@ def walk(i, scene, grid, items, ends, growing, out):
     return n
 
 
-@njit(cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def insert(i, grid, items, ends):
     """Add b's row i (spatial order) to the growing grid (``items``, ``ends``), in its cell."""
     c = grid.box_cell[i]
@@ -484,19 +464,24 @@ def insert(i, grid, items, ends):
     ends[c] += 1
 
 
-def prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial):
-    """Spatially ordered scene and grid over b (Python: extents are computed on threads
-    for large scenes). Returns (scene, grid) tuples that the walks read."""
-    base = base_cell(kind, B)
-    ob, levels, bounds, cell_ptr, box_cell, box_level = build_index(kind, B, base)
-    oa = ob if same else order_on(kind, A, levels)
-    A, VA, la = arrange(kind, A, VA, oa, labels_a)
-    ea, sa = _side_extents(kind, A, is3d, serial)
+def prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d):
+    """Spatially ordered scene and grid over b. Returns (scene, grid) tuples that the walks
+    read. The extents come from numpy (:func:`side_extents`), are indexed, then put in
+    spatial order with the rows."""
+    ext_b, size_b = side_extents(kind, B, is3d)
+    ob, levels, bounds, cell_ptr, box_cell, box_level = build_index(ext_b, base_cell(ext_b))
+    eb, sb = ext_b[ob], size_b[ob]
     if same:
-        B, VB, eb, sb, lb = A, VA, ea, sa, la
+        oa, ea, sa = ob, eb, sb
+    else:
+        ext_a, size_a = side_extents(kind, A, is3d)
+        oa = order_on(ext_a, levels)
+        ea, sa = ext_a[oa], size_a[oa]
+    A, VA, la = arrange(kind, A, VA, oa, labels_a)
+    if same:
+        B, VB, lb = A, VA, la
     else:
         B, VB, lb = arrange(kind, B, VB, ob, labels_b)
-        eb, sb = _side_extents(kind, B, is3d, serial)
     scene = Scene(kind, A, VA, ea, sa, oa, B, VB, eb, sb, ob, same, la, lb, float(thr), is3d)
     return scene, Grid(levels, bounds, cell_ptr, box_cell, box_level)
 
@@ -504,35 +489,31 @@ def prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, seria
 def index_extents(env):
     """The grid over boxes given by their extents ``env`` (N, 4: x_min, y_min, x_max, y_max,
     C-ordered float64) and their spatial order: (order, grid), ``order[p]`` the row at
-    position p. :func:`build_index` reads them as axis rows and pads them as it pads any
-    rows; the extents must be those the prepared rows of the boxes hold (merge's first
-    pass computes them with the same arithmetic), so that the walks, which read the
-    prepared rows' extents, find every pair. A caller that has the extents already finds
-    the order before it prepares the boxes, and prepares them in that order: nothing is
-    permuted afterwards."""
-    base = base_cell(AXIS, env) if env.shape[0] else 1.0  # (no median of nothing)
-    order, levels, bounds, cell_ptr, box_cell, box_level = build_index(AXIS, env, base)
+    position p. The extents are padded as any are (:func:`pad_extents`); they must be
+    those the prepared rows of the boxes hold (merge's first pass computes them with the
+    same arithmetic), so that the walks, which read the prepared rows' extents, find
+    every pair. A caller that has the extents already finds the order before it prepares
+    the boxes, and prepares them in that order: nothing is permuted afterwards."""
+    ext = pad_extents(env)
+    order, levels, bounds, cell_ptr, box_cell, box_level = build_index(ext, base_cell(ext))
     return order, Grid(levels, bounds, cell_ptr, box_cell, box_level)
 
 
-def self_scene(kind, R, V, order, labels, thr, is3d, serial):
+def self_scene(kind, R, V, order, labels, thr, is3d):
     """The scene of the self-pairs of prepared rows ``R`` (vertices ``V`` for polygons)
     that are in the spatial order of :func:`index_extents` already (``order``: the input
     row at each position; ``labels``: int64 codes in that order, or an empty array)."""
-    e, s = _side_extents(kind, R, is3d, serial)
+    e, s = side_extents(kind, R, is3d)
     return Scene(kind, R, V, e, s, order, R, V, e, s, order, True, labels, labels, float(thr), is3d)
-
-
-def _side_extents(kind, R, is3d, serial):
-    n = R.shape[0]
-    ext = np.empty((n, 6))
-    size = np.empty(n)
-    threads.run(extent_rows, (kind, R, is3d, ext, size), n, serial=serial)
-    return ext, size
 
 
 # One row in this many (per chunk) is walked ahead to size the chunk's candidate buffer.
 SAMPLE_STRIDE = 16
+
+# What a pass of the chunk kernels does with chunk c (``todo[c]``): nothing; sample its
+# rows' candidates (:data:`SAMPLE_STRIDE`) into need[c]; its pairs. One kernel does both
+# walks: measured, a kernel of its own for the sampling cost half a second of compiling.
+SKIP, SAMPLE, PAIRS = 0, 1, 2
 
 
 # The measure of the candidates, one kernel per kind: a scene compiles only its own kind's
@@ -541,58 +522,46 @@ SAMPLE_STRIDE = 16
 # bit for bit, so self-pairs need no reordering).
 
 
-@njit(cache=True)
+@njit(inline="always")
 def _values_axis(scene, ci, cj, n, out):
     axis_list(scene.A, scene.B, ci, cj, np.int64(IOU), scene.is3d, out, np.int64(0), n)
 
 
-@njit(cache=True)
+@njit(inline="always")
 def _values_rect(scene, ci, cj, n, out):
     rect_list(scene.A, scene.B, ci, cj, np.int64(IOU), scene.is3d, out, np.int64(0), n)
 
 
-@njit(cache=True)
+@njit(inline="always")
 def _values_poly(scene, ci, cj, n, out):
     poly_list(scene.VA, scene.A, scene.VB, scene.B, ci, cj, np.int64(IOU), out, np.int64(0), n)
 
 
-@njit(cache=True, nogil=True)
-def chunk_estimates(step, scene, grid, margin, est, c0, c1):
-    """For chunks c0..c1-1: room for the candidates of a's rows c * step ...: those of
-    every SAMPLE_STRIDE-th row, scaled up by ``margin``, plus 64, into est[c]. Only sizes a
-    buffer: a chunk that overflows it is walked again with exact room."""
-    n = scene.A.shape[0]
-    cell_ptr = grid.cell_ptr
-    none = cell_ptr[:0]
-    for c in range(c0, c1):
-        lo, hi = c * step, min(n, (c + 1) * step)
-        found = 0
-        for i in range(lo, hi, SAMPLE_STRIDE):
-            found += walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], np.bool_(False), none)
-        est[c] = int(margin * found * SAMPLE_STRIDE) + 64 if hi > lo else 0
-
-
 @njit(inline="always")
 def _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, values):
-    """:func:`_chunk_pairs` for the chunks c0..c1-1 marked in ``todo``. Written once; the
-    ``chunk_pairs_*`` kernels below bind ``values`` to their kind's measure (numba inlines
-    this body into each, so each is cached as a plain kernel)."""
+    """For the chunks c0..c1-1, what ``todo`` says: for SAMPLE, the candidates of every
+    SAMPLE_STRIDE-th of its rows c * step ... into need[c] (they size its buffer; a
+    chunk that overflows it is walked again with exact room); for PAIRS,
+    :func:`_chunk_pairs`. Written once; the ``chunk_pairs_*`` kernels below bind
+    ``values`` to their kind's measure (numba inlines this body into each, so each is
+    cached as a plain kernel)."""
     for c in range(c0, c1):
-        if todo[c]:
-            _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo[c], hi[c], need, got, values)
+        if todo[c] != SKIP:
+            sample = todo[c] == SAMPLE
+            _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo[c], hi[c], need, got, sample, values)
 
 
-@njit(cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def chunk_pairs_axis(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
     _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, _values_axis)
 
 
-@njit(cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def chunk_pairs_rect(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
     _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, _values_rect)
 
 
-@njit(cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def chunk_pairs_poly(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
     _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, _values_poly)
 
@@ -602,23 +571,25 @@ CHUNK_PAIRS = (chunk_pairs_axis, chunk_pairs_rect, chunk_pairs_poly)
 
 
 @njit(inline="always")
-def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got, values):
+def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got, sample, values):
     """The pairs of a's rows c * step ... (spatial order) with IoU above the threshold:
     candidates from one walk each into ci, cj [lo, hi), all of them counted into need[c];
     when they fit, their IoU into cv, and the pairs above the threshold compacted to the
-    front, their number into got[c]."""
+    front, their number into got[c]. With ``sample``, only every SAMPLE_STRIDE-th row's
+    candidates, counted into need[c]. (One call of the walk: each call is a copy of it
+    for LLVM to optimise.)"""
     ci, cj, cv = ci[lo:hi], cj[lo:hi], cv[lo:hi]
     n = scene.A.shape[0]
     cell_ptr = grid.cell_ptr
     cap = cj.shape[0]
     pos = np.int64(0)
-    for i in range(c * step, min(n, (c + 1) * step)):
+    for i in range(c * step, min(n, (c + 1) * step), SAMPLE_STRIDE if sample else 1):
         m = walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], np.bool_(False), cj[min(pos, cap) :])
         for k in range(pos, min(pos + m, cap)):
             ci[k] = i
         pos += m
     need[c] = pos
-    if pos > cap:
+    if sample or pos > cap:
         return
     values(scene, ci, cj, pos, cv)
     thr = scene.thr
@@ -663,7 +634,7 @@ def regrow(lo, hi, need, ci, cj, cv):
     )
 
 
-@njit(cache=True)
+@njit(**ENTRY)
 def gather(scene, ci, cj, cv, lo, got):
     """Exact-size outputs (first, second, iou) in input order from the chunks' pairs (a's
     and b's spatial rows, chunk c's at ci[lo[c]:lo[c] + got[c]]), sorted by (first,
@@ -671,12 +642,14 @@ def gather(scene, ci, cj, cv, lo, got):
     two), then a short sort within each row."""
     oa, ob, same = scene.oa, scene.ob, scene.same
     n = oa.shape[0]
-    ptr = np.zeros(n + 1, np.int64)
+    ptr = np.empty(n + 1, np.int64)
+    for r in range(n + 1):
+        ptr[r] = 0
     for c in range(got.shape[0]):
         for k in range(lo[c], lo[c] + got[c]):
             r = oa[ci[k]]
-            if same:
-                r = min(r, ob[cj[k]])
+            if same and ob[cj[k]] < r:
+                r = ob[cj[k]]
             ptr[r + 1] += 1
     for r in range(n):
         ptr[r + 1] += ptr[r]
@@ -684,7 +657,9 @@ def gather(scene, ci, cj, cv, lo, got):
     first = np.empty(total, np.int64)
     second = np.empty(total, np.int64)
     iou = np.empty(total)
-    fill = ptr[:-1].copy()
+    fill = np.empty(n, np.int64)
+    for r in range(n):
+        fill[r] = ptr[r]
     for c in range(got.shape[0]):
         for k in range(lo[c], lo[c] + got[c]):
             p, q = oa[ci[k]], ob[cj[k]]
@@ -695,31 +670,26 @@ def gather(scene, ci, cj, cv, lo, got):
             second[d] = q
             iou[d] = cv[k]
             fill[p] = d + 1
+    # Each row's pairs by second: a shell sort (a box overlaps few others: mostly the
+    # last, insertion-sort pass), written here rather than as a function of its own (a
+    # tenth of a second of compiling) or numba's argsort (a second and a half); a row of
+    # thousands still sorts in well under a millisecond.
     for r in range(n):
-        if ptr[r + 1] - ptr[r] > 1:
-            _sort_small(second[ptr[r] : ptr[r + 1]], iou[ptr[r] : ptr[r + 1]])
+        r0 = ptr[r]
+        m = ptr[r + 1] - r0
+        gap = 1
+        while gap < m // 3:
+            gap = 3 * gap + 1
+        while gap > 0:
+            for p in range(r0 + gap, r0 + m):
+                k, v = second[p], iou[p]
+                q = p - gap
+                while q >= r0 and second[q] > k:
+                    second[q + gap], iou[q + gap] = second[q], iou[q]
+                    q -= gap
+                second[q + gap], iou[q + gap] = k, v
+            gap //= 3
     return first, second, iou
-
-
-@njit(cache=True)
-def _sort_small(keys, values):
-    """Shell sort of a row's pairs by key (a box overlaps few others: mostly the last,
-    insertion-sort pass), values carried along. numba's argsort would add a second and a
-    half of compiling to the first scene call; a row of thousands still sorts in well under
-    a millisecond."""
-    n = keys.shape[0]
-    gap = 1
-    while gap < n // 3:
-        gap = 3 * gap + 1
-    while gap > 0:
-        for p in range(gap, n):
-            k, v = keys[p], values[p]
-            q = p - gap
-            while q >= 0 and keys[q] > k:
-                keys[q + gap], values[q + gap] = keys[q], values[q]
-                q -= gap
-            keys[q + gap], values[q + gap] = k, v
-        gap //= 3
 
 
 def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial, margin=1.25):
@@ -737,33 +707,39 @@ def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial,
     rotated boxes: the former count-then-fill passes walked the grid twice per row.
     Memory grows with the number of candidates (extents overlapping, IoU bound above thr).
     """
-    scene, grid = prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial)
+    scene, grid = prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d)
     n = A.shape[0]
     chunks = 1 if serial else 8 * threads.count()
     step = -(-n // chunks)
-    est = np.zeros(chunks, np.int64)
-    threads.run(chunk_estimates, (step, scene, grid, margin, est), chunks, serial=serial)
-    lo, hi, ci, cj, cv = chunk_room(est)
+    body = CHUNK_PAIRS[kind]
     need = np.zeros(chunks, np.int64)
     got = np.zeros(chunks, np.int64)
-    todo = np.ones(chunks, np.bool_)
+    todo = np.full(chunks, SAMPLE, np.int64)
+    none, at = np.zeros(0, np.int64), np.zeros(chunks, np.int64)  # (no room)
+    args = (step, scene, grid, none, none, np.zeros(0), at, at, need, got, todo)
+    threads.run(body, args, chunks, serial=serial)
+    rows = np.minimum(step, np.maximum(n - step * np.arange(chunks), 0))
+    est = np.where(rows > 0, (margin * need * SAMPLE_STRIDE).astype(np.int64) + 64, 0)
+    lo, hi, ci, cj, cv = chunk_room(est)
+    todo[:] = PAIRS
     args = (step, scene, grid, ci, cj, cv, lo, hi, need, got, todo)
-    threads.run(CHUNK_PAIRS[kind], args, chunks, serial=serial)
+    threads.run(body, args, chunks, serial=serial)
     ci, cj, cv, redo = regrow(lo, hi, need, ci, cj, cv)
     if redo.any():
-        args = (step, scene, grid, ci, cj, cv, lo, hi, need, got, redo)
-        threads.run(CHUNK_PAIRS[kind], args, chunks, serial=serial)
+        todo = np.where(redo, PAIRS, SKIP)
+        args = (step, scene, grid, ci, cj, cv, lo, hi, need, got, todo)
+        threads.run(body, args, chunks, serial=serial)
     return gather(scene, ci, cj, cv, lo, got)
 
 
 def candidate_count(kind, A, VA, B, VB, same, thr, is3d):
     """Number of candidate pairs (the index alone, no measure): for benchmarks."""
     none = np.zeros(0, np.int64)
-    scene, grid = prepare_scene(kind, A, VA, B, VB, same, none, none, thr, is3d, True)
+    scene, grid = prepare_scene(kind, A, VA, B, VB, same, none, none, thr, is3d)
     return _count_candidates(scene, grid)
 
 
-@njit(cache=True)
+@njit(**ENTRY)
 def _count_candidates(scene, grid):
     none = np.zeros(0, np.int64)
     cell_ptr = grid.cell_ptr

@@ -13,6 +13,7 @@ from numba import njit
 
 from obbiou._kernels import threads
 from obbiou._kernels.grid import chunk_room, insert, regrow, scratch, walk
+from obbiou._kernels.options import ENTRY, HELPER
 from obbiou._kernels.pairs import (
     IOU,
     R_SIZE,
@@ -25,7 +26,7 @@ from obbiou._kernels.pairs import (
 )
 
 
-@njit(cache=True)
+@njit(**ENTRY)
 def neighbours(n, first, second, values):
     """Symmetric CSR neighbour list of n boxes from pairs (first[k], second[k], values[k])."""
     ptr = np.zeros(n + 1, np.int64)
@@ -48,20 +49,20 @@ def neighbours(n, first, second, values):
     return ptr, nbr, val
 
 
-@njit(cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def _before(s1, i1, s2, i2):
     """Heap order: higher score first, ties by lower input index."""
     return s1 > s2 or (s1 == s2 and i1 < i2)
 
 
-@njit(cache=True)
+@njit(**HELPER)
 def _place(hs, hx, pos, p, s, i):
     hs[p] = s
     hx[p] = i
     pos[i] = p
 
 
-@njit(cache=True)
+@njit(**HELPER)
 def _sift_down(hs, hx, pos, size, p):
     """Move the entry at heap position p down to its place (its score fell)."""
     s, i = hs[p], hx[p]
@@ -78,7 +79,7 @@ def _sift_down(hs, hx, pos, size, p):
     _place(hs, hx, pos, p, s, i)
 
 
-@njit(cache=True)
+@njit(**HELPER)
 def _sift_up(hs, hx, pos, p):
     """Move the entry at heap position p up to its place."""
     s, i = hs[p], hx[p]
@@ -91,7 +92,7 @@ def _sift_up(hs, hx, pos, p):
     _place(hs, hx, pos, p, s, i)
 
 
-@njit(cache=True)
+@njit(**HELPER)
 def _remove(hs, hx, pos, size, p):
     """Remove the entry at heap position p; returns the new size."""
     size -= 1
@@ -105,7 +106,7 @@ def _remove(hs, hx, pos, size, p):
     return size
 
 
-@njit(cache=True)
+@njit(**ENTRY)
 def soft(scores, order, ptr, nbr, val, gaussian, max_iou, sigma, min_score, limit):
     """Soft suppression (Bodla et al., ICCV 2017), exact for any order of decays.
 
@@ -164,7 +165,7 @@ def soft(scores, order, ptr, nbr, val, gaussian, max_iou, sigma, min_score, limi
     return kept[:nk], kept_s[:nk]
 
 
-@njit(cache=True)
+@njit(**ENTRY)
 def hard_over_pairs(order, ptr, nbr):
     """Greedy hard suppression over a neighbour list of the pairs with IoU above the
     threshold (:func:`neighbours` or :func:`exceeding` of them): walk ``order`` (best
@@ -198,12 +199,12 @@ def hard_over_pairs(order, ptr, nbr):
 # and the pairs search of :func:`exceeding` compile only their own kind's.
 
 
-@njit(cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def exceeds_axis(scene, i, j, buf):
     return axis_pair(scene.A, i, scene.A, j, np.int64(IOU), scene.is3d, buf) > scene.thr
 
 
-@njit(cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def exceeds_rect(scene, i, j, buf):
     """For rectangles by cheap bounds when they decide (measured, 10 000 clustered
     detections: they decide 84 % of the overlapping pairs at 0.5), else the exact value."""
@@ -218,25 +219,25 @@ def exceeds_rect(scene, i, j, buf):
     )  # as rect_measure
 
 
-@njit(cache=True, forceinline=True)
+@njit(forceinline=True, **HELPER)
 def exceeds_poly(scene, i, j, buf):
     V, A = scene.VA, scene.A
     return poly_pair(V, A, i, V, A, j, np.int64(IOU), buf) > scene.thr
 
 
-@njit(cache=True)
+@njit(**ENTRY)
 def suppress_hard_axis(scene, grid, order, limit):
     """:func:`_suppress_hard` of axis boxes."""
     return _suppress_hard(scene, grid, order, limit, exceeds_axis)
 
 
-@njit(cache=True)
+@njit(**ENTRY)
 def suppress_hard_rect(scene, grid, order, limit):
     """:func:`_suppress_hard` of rectangles (rotated, upright)."""
     return _suppress_hard(scene, grid, order, limit, exceeds_rect)
 
 
-@njit(cache=True)
+@njit(**ENTRY)
 def suppress_hard_poly(scene, grid, order, limit):
     """:func:`_suppress_hard` of polygons."""
     return _suppress_hard(scene, grid, order, limit, exceeds_poly)
@@ -268,7 +269,9 @@ def _suppress_hard(scene, grid, order, limit, exceeds):
         where[oa[i]] = i
     cell_ptr = grid.cell_ptr
     items = np.empty(n, np.int64)  # kept boxes, cell by cell
-    ends = cell_ptr[:-1].copy()  # end of each cell's kept boxes in ``items``
+    ends = np.empty(cell_ptr.shape[0] - 1, np.int64)  # end of each cell's kept boxes
+    for c in range(ends.shape[0]):
+        ends[c] = cell_ptr[c]
     buf = scratch(VA, VA)
     near = np.empty(64, np.int64)
     kept = np.empty(order.shape[0], np.int64)
@@ -277,12 +280,15 @@ def _suppress_hard(scene, grid, order, limit, exceeds):
         if nk == limit:
             break
         i = where[order[p]]
-        m = walk(i, scene, grid, items, ends, np.bool_(True), near)
+        # one call of the walk (each call is a copy of it for LLVM to optimise): walked
+        # again, rarely, when more kept neighbours were found than the buffer holds
+        while True:
+            m = walk(i, scene, grid, items, ends, np.bool_(True), near)
+            if m <= near.shape[0]:
+                break
+            near = np.empty(2 * m, np.int64)
         suppressed = False
         if m > 0:
-            if m > near.shape[0]:  # rare: more kept neighbours than the buffer holds
-                near = np.empty(2 * m, np.int64)
-                walk(i, scene, grid, items, ends, np.bool_(True), near)
             for k in range(m):
                 if exceeds(scene, i, near[k], buf):
                     suppressed = True
@@ -340,19 +346,19 @@ def _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, excee
         got[c] = 0 if over else kept
 
 
-@njit(cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def exceeding_axis(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1):
     """:func:`_exceeding` of axis boxes."""
     _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, exceeds_axis)
 
 
-@njit(cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def exceeding_rect(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1):
     """:func:`_exceeding` of rectangles (rotated, upright)."""
     _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, exceeds_rect)
 
 
-@njit(cache=True, nogil=True)
+@njit(nogil=True, **ENTRY)
 def exceeding_poly(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1):
     """:func:`_exceeding` of polygons."""
     _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, exceeds_poly)
@@ -362,7 +368,7 @@ def exceeding_poly(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1):
 EXCEEDING = (exceeding_axis, exceeding_rect, exceeding_poly)
 
 
-@njit(cache=True)
+@njit(**ENTRY)
 def chunk_neighbours(oa, ci, cj, lo, got):
     """Symmetric CSR neighbour list (ptr, nbr) of the chunks' pairs (chunk c's at
     ci[lo[c]:lo[c] + got[c]], cj likewise: spatial positions), over the rows ``oa`` of
