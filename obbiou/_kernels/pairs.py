@@ -768,7 +768,7 @@ def axis_list(A, B, first, second, measure, is3d, out, lo, hi):
 
 
 @njit(inline="always")
-def _rect_list(A, B, first, second, measure, is3d, out, lo, hi, block):
+def rect_list_body(A, B, first, second, measure, is3d, out, lo, hi, block):
     # Rows of the scratch blocks are padded off a multiple of 4096 bytes apart: sixteen
     # streams exactly 4 KiB apart would fight over the same L1 cache sets.
     PT = np.empty((RECT_COLUMNS, RECT_BLOCK + 8))
@@ -853,12 +853,12 @@ def rect_matrix_rows_full(A, BT, m, measure, is3d, out, lo, hi):
 
 @njit(nogil=True, **ENTRY)
 def rect_list(A, B, first, second, measure, is3d, out, lo, hi):
-    _rect_list(A, B, first, second, measure, is3d, out, lo, hi, rect_block)
+    rect_list_body(A, B, first, second, measure, is3d, out, lo, hi, rect_block)
 
 
 @njit(nogil=True, **ENTRY)
 def rect_list_full(A, B, first, second, measure, is3d, out, lo, hi):
-    _rect_list(A, B, first, second, measure, is3d, out, lo, hi, rect_block_full)
+    rect_list_body(A, B, first, second, measure, is3d, out, lo, hi, rect_block_full)
 
 
 @njit(nogil=True, **ENTRY)
@@ -892,7 +892,7 @@ def _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, pair_fn):
 
 
 @njit(inline="always")
-def _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, pair_fn):
+def poly_list_body(VA, A, VB, B, first, second, measure, out, lo, hi, pair_fn):
     buf = np.empty((6, 2 * (VA.shape[1] + VB.shape[1]) + 4))
     for k in range(lo, hi):
         out[k] = pair_fn(VA, A, first[k], VB, B, second[k], measure, buf)
@@ -915,12 +915,12 @@ def poly_matrix_rows_full(VA, A, VB, B, measure, out, lo, hi):
 
 @njit(nogil=True, **ENTRY)
 def poly_list(VA, A, VB, B, first, second, measure, out, lo, hi):
-    _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair)
+    poly_list_body(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair)
 
 
 @njit(nogil=True, **ENTRY)
 def poly_list_full(VA, A, VB, B, first, second, measure, out, lo, hi):
-    _poly_list(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair_full)
+    poly_list_body(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair_full)
 
 
 def poly_body(job: str, measure: int):
