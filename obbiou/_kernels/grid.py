@@ -129,7 +129,6 @@ def _cell(x, g, inv, n):
 L_GX, L_GY, L_SIZE, L_NX, L_NY, L_FIRST, L_INV, L_REACH = 0, 1, 2, 3, 4, 5, 6, 7
 
 
-@njit(**ENTRY)
 def build_index(ext, base):
     """The multi-level grid over boxes with padded extents ``ext`` (rows x0, y0, x1, y1,
     ...: :func:`side_extents`, :func:`pad_extents`) and their spatial order.
@@ -142,17 +141,62 @@ def build_index(ext, base):
     ``L_*``), ``bounds`` (L, 4, extent of the level's boxes), ``cell_ptr`` (the boxes of
     cell c are positions cell_ptr[c] to cell_ptr[c + 1] - 1 of the order), ``box_cell``
     and ``box_level`` (cell and level of each position).
+
+    Two kernels over the boxes, and the table of the levels, a few rows, in Python
+    between them: as numba code the table was a fifth of a second of compiling.
     """
-    # Arrays come from np.empty alone, filled by loops, and minima and maxima are written
-    # out: each numpy constructor (np.zeros, .copy) and each min or max signature is a
-    # function numba compiles for this kernel; measured, they were a third of a second of
-    # the first scene call.
+    level, count, stats, top = box_levels(ext, base)
+    nlev = top + 1
+    bounds = np.ascontiguousarray(stats[:nlev, :4])
+    levels = np.zeros((nlev, 8))
+    ncells = 0
+    for lv in range(nlev):
+        if count[lv] == 0:
+            continue
+        s = base * 2.0**lv
+        w = bounds[lv, 2] - bounds[lv, 0]
+        h = bounds[lv, 3] - bounds[lv, 1]
+        # keep at most ~4 cells per box on a level (memory ~ N): coarsen if needed
+        cap = 4.0 * count[lv] + 16.0
+        nx = np.floor(w / s) + 1.0
+        ny = np.floor(h / s) + 1.0
+        steps = 0
+        while not nx * ny <= cap and steps < 4000:  # "not <=" also catches NaN
+            s *= 1.5
+            nx = np.floor(w / s) + 1.0
+            ny = np.floor(h / s) + 1.0
+            steps += 1
+        if not nx * ny <= cap:  # extents near the float64 limit: one cell holds all
+            s, nx, ny = 1.0, 1.0, 1.0
+        levels[lv, L_GX] = bounds[lv, 0]
+        levels[lv, L_GY] = bounds[lv, 1]
+        levels[lv, L_SIZE] = s
+        levels[lv, L_NX] = nx
+        levels[lv, L_NY] = ny
+        levels[lv, L_FIRST] = ncells
+        levels[lv, L_INV] = 1.0 / s
+        # enlarged so that x0 - reach, rounded, is never above a box's true reach
+        levels[lv, L_REACH] = stats[lv, 4] * (1.0 + 2.0**-20) + 1e-300
+        ncells += int(nx * ny)
+    order, cell_ptr, box_cell, box_level = cell_order(ext, level, levels, ncells)
+    return order, levels, bounds, cell_ptr, box_cell, box_level
+
+
+# The index kernels make their arrays with np.empty alone, filled by loops, and write
+# minima and maxima out: each numpy constructor (np.zeros, .copy) and each min or max
+# signature is a function numba compiles for the kernel that uses it; measured, they
+# were a third of a second of the first scene call.
+
+
+@njit(**ENTRY)
+def box_levels(ext, base):
+    """Each box's level (:func:`build_index`), and each level's count and statistics
+    (rows of 201, room for every level a box can get: the level loop stops at 200):
+    bounds x0, y0, x1, y1 of the level's boxes and their largest extent; the top level."""
     m = ext.shape[0]
     level = np.empty(m, np.int64)
-    # each box's level, and each level's count, bounds and reach, in one pass (room for
-    # every level a box can get: the level loop stops at 200)
     count = np.empty(201, np.int64)
-    stats = np.empty((201, 5))  # bounds x0, y0, x1, y1 of the level's boxes; reach
+    stats = np.empty((201, 5))
     for lv in range(201):
         count[lv] = 0
         stats[lv, 0] = np.inf
@@ -182,42 +226,15 @@ def build_index(ext, base):
             stats[lv, 3] = y1
         if d > stats[lv, 4]:
             stats[lv, 4] = d
-    nlev = top + 1
-    bounds = np.empty((nlev, 4))
-    levels = np.empty((nlev, 8))
-    ncells = 0
-    for lv in range(nlev):
-        for k in range(4):
-            bounds[lv, k] = stats[lv, k]
-        for k in range(8):
-            levels[lv, k] = 0.0
-        if count[lv] == 0:
-            continue
-        s = base * 2.0**lv
-        w = bounds[lv, 2] - bounds[lv, 0]
-        h = bounds[lv, 3] - bounds[lv, 1]
-        # keep at most ~4 cells per box on a level (memory ~ N): coarsen if needed
-        cap = 4.0 * count[lv] + 16.0
-        nx = np.floor(w / s) + 1.0
-        ny = np.floor(h / s) + 1.0
-        steps = 0
-        while not nx * ny <= cap and steps < 4000:  # "not <=" also catches NaN
-            s *= 1.5
-            nx = np.floor(w / s) + 1.0
-            ny = np.floor(h / s) + 1.0
-            steps += 1
-        if not nx * ny <= cap:  # extents near the float64 limit: one cell holds all
-            s, nx, ny = 1.0, 1.0, 1.0
-        levels[lv, L_GX] = bounds[lv, 0]
-        levels[lv, L_GY] = bounds[lv, 1]
-        levels[lv, L_SIZE] = s
-        levels[lv, L_NX] = nx
-        levels[lv, L_NY] = ny
-        levels[lv, L_FIRST] = ncells
-        levels[lv, L_INV] = 1.0 / s
-        # enlarged so that x0 - reach, rounded, is never above a box's true reach
-        levels[lv, L_REACH] = stats[lv, 4] * (1.0 + 2.0**-20) + 1e-300
-        ncells += int(nx * ny)
+    return level, count, stats, top
+
+
+@njit(**ENTRY)
+def cell_order(ext, level, levels, ncells):
+    """The boxes by (level, cell row, cell column) (:func:`build_index`): a counting sort
+    on the cell of each box's lower-left corner. Returns the order, ``cell_ptr``,
+    ``box_cell`` and ``box_level``."""
+    m = ext.shape[0]
     cell_ptr = np.empty(ncells + 1, np.int64)
     for c in range(ncells + 1):
         cell_ptr[c] = 0
@@ -242,7 +259,7 @@ def build_index(ext, base):
         order[pos] = j
         box_cell[pos] = key[j]
         box_level[pos] = level[j]
-    return order, levels, bounds, cell_ptr, box_cell, box_level
+    return order, cell_ptr, box_cell, box_level
 
 
 #: One side or both of a scene, in spatial order, as the kernels read it (numba types a
