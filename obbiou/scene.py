@@ -447,7 +447,7 @@ def suppress(
         lab = np.zeros(0, np.int64) if codes is None else codes
         vert = _vertices(pb)
         scene, index = grid.prepare_scene(
-            kind, pb.rows, vert, pb.rows, vert, True, lab, lab, thr, b.is_3d
+            kind, pb.rows, vert, pb.rows, vert, True, lab, lab, thr, b.is_3d, True
         )
         kept = kernels.SUPPRESS_HARD[kind](scene, index, order, cap)
         kept_scores = s[kept]

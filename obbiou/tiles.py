@@ -807,7 +807,7 @@ def _suppress_copies(
     vertices = p.vertices if p.kind == "poly" else np.zeros((0, 0, 2))
     del p  # (and its copy of the boxes: later arrays reuse the memory, no fresh pages)
     labels = np.zeros(0, np.int64) if codes is None else codes[src]
-    scene = grid.self_scene(kind, prepared, vertices, order, labels, thr, False)
+    scene = grid.self_scene(kind, prepared, vertices, order, labels, thr, False, False)
     ptr, nbr = kernels.exceeding(scene, index, False)
     del scene, index, prepared, vertices  # (as above)
     return rows[kernels.hard_over_pairs(score_order(s), ptr, nbr)]

@@ -635,7 +635,7 @@ def pairs_by_verdict(boxes, shape, thr, labels=None, serial=True):
     vertices = p.vertices if p.kind == "poly" else np.zeros((0, 0, 2))
     codes = np.zeros(0, np.int64) if labels is None else np.asarray(labels, np.int64)[order]
     kind = int(Kind[p.kind.upper()])
-    scene = kgrid.self_scene(kind, p.rows, vertices, order, codes, thr, False)
+    scene = kgrid.self_scene(kind, p.rows, vertices, order, codes, thr, False, serial)
     ptr, nbr = ksup.exceeding(scene, index, serial)
     return {(i, int(j)) for i in range(len(data)) for j in nbr[ptr[i] : ptr[i + 1]] if i < j}
 

@@ -89,29 +89,49 @@ def pad_extents(env):
     return np.concatenate([lo, hi], axis=1)
 
 
-# The extent columns of prepared rows, by kind: x0, y0, x1, y1, z0, z1 (None: no z) and size.
+# The extent columns of prepared rows, by kind: x0, y0, x1, y1, z0, z1 (-1: no z) and size.
 _EXTENT_COLUMNS = {
     0: (AX_X0, AX_Y0, AX_X1, AX_Y1, AX_Z0, AX_Z1, AX_SIZE),
     1: (R_XMIN, R_YMIN, R_XMAX, R_YMAX, R_Z0, R_Z1, R_SIZE),
-    2: (P_XMIN, P_YMIN, P_XMAX, P_YMAX, None, None, P_AREA),
+    2: (P_XMIN, P_YMIN, P_XMAX, P_YMAX, -1, -1, P_AREA),
 }
 
 
-def side_extents(kind, R, is3d):
+def side_extents(kind, R, is3d, serial=False):
     """Padded extents (N, 6: x0, y0, x1, y1, z0, z1; without ``is3d``, z0 and z1 are the
-    padded -1 and 1, so z never rejects) and sizes (N,) of prepared rows ``R``. numpy: a
-    few column operations (50 000 rows: about 0.3 ms), where a numba kernel cost a
-    second of compiling on the first scene call."""
-    x0, y0, x1, y1, z0, z1, size = _EXTENT_COLUMNS[kind]
+    padded -1 and 1, so z never rejects) and sizes (N,) of prepared rows ``R``, on
+    threads for large inputs (``serial``: one thread)."""
+    cols = np.array(_EXTENT_COLUMNS[kind], np.int64)
+    if not is3d:
+        cols[4:6] = -1
     n = R.shape[0]
     ext = np.empty((n, 6))
-    ext[:, X0], ext[:, X1] = _pad(R[:, x0], R[:, x1])
-    ext[:, Y0], ext[:, Y1] = _pad(R[:, y0], R[:, y1])
-    if is3d and z0 is not None:
-        ext[:, Z0], ext[:, Z1] = _pad(R[:, z0], R[:, z1])
-    else:
-        ext[:, Z0], ext[:, Z1] = _pad(np.full(n, -1.0), np.ones(n))
-    return ext, np.ascontiguousarray(R[:, size])
+    size = np.empty(n)
+    threads.run(extent_rows, (R, cols, ext, size), n, serial=serial)
+    return ext, size
+
+
+@njit(forceinline=True, **HELPER)
+def _padded(lo, hi):
+    p = _PAD * (abs(lo) + abs(hi)) + 1e-300
+    return lo - p, hi + p
+
+
+@njit(nogil=True, **ENTRY)
+def extent_rows(R, cols, ext, size, lo, hi):
+    """Padded extents and sizes of prepared rows lo..hi-1 (:func:`side_extents`; the
+    arithmetic of :func:`_pad`): one kernel for every kind, which passes its columns
+    ``cols`` (x0, y0, x1, y1, z0, z1, size; z0 < 0: z from -1 to 1). Measured, numpy's
+    column operations on the (N, 16) rows took 2.5 ms for 50 000 rows, this 0.1 ms."""
+    cx0, cy0, cx1, cy1, cz0, cz1, cs = cols[0], cols[1], cols[2], cols[3], cols[4], cols[5], cols[6]
+    for i in range(lo, hi):
+        ext[i, X0], ext[i, X1] = _padded(R[i, cx0], R[i, cx1])
+        ext[i, Y0], ext[i, Y1] = _padded(R[i, cy0], R[i, cy1])
+        if cz0 >= 0:
+            ext[i, Z0], ext[i, Z1] = _padded(R[i, cz0], R[i, cz1])
+        else:
+            ext[i, Z0], ext[i, Z1] = _padded(-1.0, 1.0)
+        size[i] = R[i, cs]
 
 
 @njit(**HELPER)
@@ -129,11 +149,12 @@ def _cell(x, g, inv, n):
 L_GX, L_GY, L_SIZE, L_NX, L_NY, L_FIRST, L_INV, L_REACH = 0, 1, 2, 3, 4, 5, 6, 7
 
 
-def build_index(ext, base):
+def build_index(ext, median):
     """The multi-level grid over boxes with padded extents ``ext`` (rows x0, y0, x1, y1,
     ...: :func:`side_extents`, :func:`pad_extents`) and their spatial order.
 
-    ``base`` is the level-0 cell size (> 0). Each box belongs to the level whose cell size
+    ``median``: the boxes' median extent (:func:`median_extent`), of which
+    :func:`box_levels` makes the level-0 cell size. Each box belongs to the level whose cell size
     base * 2**L is at least its padded extent, and is stored once, in the cell of its
     lower-left corner; the boxes are ordered by (level, cell row, cell column), so the
     boxes of a cell, and of a run of cells along a row, are one contiguous range of the
@@ -145,7 +166,7 @@ def build_index(ext, base):
     Two kernels over the boxes, and the table of the levels, a few rows, in Python
     between them: as numba code the table was a fifth of a second of compiling.
     """
-    level, count, stats, top = box_levels(ext, base)
+    level, count, stats, top, base = box_levels(ext, median)
     nlev = top + 1
     bounds = np.ascontiguousarray(stats[:nlev, :4])
     levels = np.zeros((nlev, 8))
@@ -189,11 +210,36 @@ def build_index(ext, base):
 
 
 @njit(**ENTRY)
-def box_levels(ext, base):
+def box_levels(ext, median):
     """Each box's level (:func:`build_index`), and each level's count and statistics
     (rows of 201, room for every level a box can get: the level loop stops at 200):
-    bounds x0, y0, x1, y1 of the level's boxes and their largest extent; the top level."""
+    bounds x0, y0, x1, y1 of the level's boxes and their largest extent; the top level;
+    the level-0 cell size ``base``.
+
+    ``base`` is twice the median extent, bounded below so that the size levels stay few
+    whatever the spread of sizes. Measured on self-pairs of 5e4 rotated boxes 8-40 px
+    long (2 threads, no fresh pages, fastest of 40 calls): 1.5x the median 8.7 ms, 2x
+    6.0-6.3 ms, 3x 6.2-7.4 ms. The cell size changes no result, only speed. When the
+    largest extent is at most a quarter above that, the cells take its size instead: one
+    level, so no walk visits a second level for a few large boxes. Measured on merge's
+    pairs in ``python bench/tiles.py`` (168 483 rotated boxes, the largest extent 2.2x the
+    median; one thread, CPU, fastest of 15, three rounds): the walk 10.4-10.7 ms with one
+    level of 80 px cells, 12.6-12.9 ms with 69.5 px cells and a second level for 553
+    boxes."""
     m = ext.shape[0]
+    top_extent = 0.0
+    for j in range(m):
+        d = ext[j, X1] - ext[j, X0]
+        top_extent = d if d > top_extent else top_extent
+        d = ext[j, Y1] - ext[j, Y0]
+        top_extent = d if d > top_extent else top_extent
+    base = 2.0 * median
+    if base < top_extent <= 1.25 * base:
+        base = top_extent * (1.0 + 2.0**-20)
+    if base < top_extent * 2.0**-40:
+        base = top_extent * 2.0**-40
+    if not base >= 1e-300:
+        base = 1e-300
     level = np.empty(m, np.int64)
     count = np.empty(201, np.int64)
     stats = np.empty((201, 5))
@@ -226,7 +272,7 @@ def box_levels(ext, base):
             stats[lv, 3] = y1
         if d > stats[lv, 4]:
             stats[lv, 4] = d
-    return level, count, stats, top
+    return level, count, stats, top, base
 
 
 @njit(**ENTRY)
@@ -275,30 +321,16 @@ Grid = namedtuple("Grid", "levels bounds cell_ptr box_cell box_level")
 AXIS, RECT, POLY = int(Kind.AXIS), int(Kind.RECT), int(Kind.POLY)
 
 
-def base_cell(ext):
-    """Level-0 cell size: twice the median extent of the indexed boxes (padded extents
-    ``ext``; of an evenly spaced sample of at most 4097 of them: the size only tunes
-    speed), bounded below so that the size levels stay few whatever the spread of sizes.
-    Measured on self-pairs of 5e4 rotated boxes 8-40 px long (2 threads, no fresh pages,
-    fastest of 40 calls): 1.5x the median 8.7 ms, 2x 6.0-6.3 ms, 3x 6.2-7.4 ms. The cell
-    size changes no result, only speed. numpy's median (numba's would add a second of
-    compiling to the first scene call).
-
-    When the largest extent is at most a quarter above that, the cells take its size
-    instead: one level, so no walk visits a second level for a few large boxes. Measured
-    on merge's pairs in ``python bench/tiles.py`` (168 483 rotated boxes, the largest
-    extent 2.2x the median; one thread, CPU, fastest of 15, three rounds): the walk 10.4-
-    10.7 ms with one level of 80 px cells, 12.6-12.9 ms with 69.5 px cells and a second
-    level for 553 boxes."""
+def median_extent(ext):
+    """The median extent (larger side) of an evenly spaced sample of at most 4097 of the
+    boxes ``ext`` (padded extents): numpy's median (numba's would add a second of
+    compiling to the first scene call); :func:`box_levels` makes the level-0 cell size of
+    it."""
     n = ext.shape[0]
     if n == 0:
         return 1.0
-    d = np.maximum(ext[:, X1] - ext[:, X0], ext[:, Y1] - ext[:, Y0])
-    top = float(d.max())
-    base = 2.0 * float(np.median(d[:: max(1, n // 4096)]))
-    if base < top <= 1.25 * base:
-        base = top * (1.0 + 2.0**-20)
-    return max(base, top * 2.0**-40, 1e-300)
+    e = ext[:: max(1, n // 4096)]
+    return float(np.median(np.maximum(e[:, X1] - e[:, X0], e[:, Y1] - e[:, Y0])))
 
 
 @njit(**ENTRY)
@@ -483,24 +515,22 @@ def insert(i, grid, items, ends):
     ends[c] += 1
 
 
-def prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d):
+def prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial):
     """Spatially ordered scene and grid over b. Returns (scene, grid) tuples that the walks
-    read. The extents come from numpy (:func:`side_extents`), are indexed, then put in
-    spatial order with the rows."""
-    ext_b, size_b = side_extents(kind, B, is3d)
-    ob, levels, bounds, cell_ptr, box_cell, box_level = build_index(ext_b, base_cell(ext_b))
-    eb, sb = ext_b[ob], size_b[ob]
-    if same:
-        oa, ea, sa = ob, eb, sb
-    else:
-        ext_a, size_a = side_extents(kind, A, is3d)
-        oa = order_on(ext_a, levels)
-        ea, sa = ext_a[oa], size_a[oa]
+    read. The extents are indexed, the rows put in spatial order, and the extents computed
+    again from them (measured: faster than gathering them, 0.1 against 0.8 ms for 50 000
+    boxes). ``serial``: one thread."""
+    ext, _ = side_extents(kind, B, is3d, serial)
+    ob, levels, bounds, cell_ptr, box_cell, box_level = build_index(ext, median_extent(ext))
+    oa = ob if same else order_on(side_extents(kind, A, is3d, serial)[0], levels)
+    del ext  # (before the arrays below: a lower peak of memory)
     A, VA, la = arrange(kind, A, VA, oa, labels_a)
+    ea, sa = side_extents(kind, A, is3d, serial)
     if same:
-        B, VB, lb = A, VA, la
+        B, VB, eb, sb, lb = A, VA, ea, sa, la
     else:
         B, VB, lb = arrange(kind, B, VB, ob, labels_b)
+        eb, sb = side_extents(kind, B, is3d, serial)
     scene = Scene(kind, A, VA, ea, sa, oa, B, VB, eb, sb, ob, same, la, lb, float(thr), is3d)
     return scene, Grid(levels, bounds, cell_ptr, box_cell, box_level)
 
@@ -514,15 +544,15 @@ def index_extents(env):
     every pair. A caller that has the extents already finds the order before it prepares
     the boxes, and prepares them in that order: nothing is permuted afterwards."""
     ext = pad_extents(env)
-    order, levels, bounds, cell_ptr, box_cell, box_level = build_index(ext, base_cell(ext))
+    order, levels, bounds, cell_ptr, box_cell, box_level = build_index(ext, median_extent(ext))
     return order, Grid(levels, bounds, cell_ptr, box_cell, box_level)
 
 
-def self_scene(kind, R, V, order, labels, thr, is3d):
+def self_scene(kind, R, V, order, labels, thr, is3d, serial):
     """The scene of the self-pairs of prepared rows ``R`` (vertices ``V`` for polygons)
     that are in the spatial order of :func:`index_extents` already (``order``: the input
     row at each position; ``labels``: int64 codes in that order, or an empty array)."""
-    e, s = side_extents(kind, R, is3d)
+    e, s = side_extents(kind, R, is3d, serial)
     return Scene(kind, R, V, e, s, order, R, V, e, s, order, True, labels, labels, float(thr), is3d)
 
 
@@ -731,7 +761,7 @@ def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial,
     rotated boxes: the former count-then-fill passes walked the grid twice per row.
     Memory grows with the number of candidates (extents overlapping, IoU bound above thr).
     """
-    scene, grid = prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d)
+    scene, grid = prepare_scene(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial)
     n = A.shape[0]
     chunks = 1 if serial else 8 * threads.count()
     step = -(-n // chunks)
@@ -759,7 +789,7 @@ def scene_pairs(kind, A, VA, B, VB, same, labels_a, labels_b, thr, is3d, serial,
 def candidate_count(kind, A, VA, B, VB, same, thr, is3d):
     """Number of candidate pairs (the index alone, no measure): for benchmarks."""
     none = np.zeros(0, np.int64)
-    scene, grid = prepare_scene(kind, A, VA, B, VB, same, none, none, thr, is3d)
+    scene, grid = prepare_scene(kind, A, VA, B, VB, same, none, none, thr, is3d, True)
     return _count_candidates(scene, grid)
 
 
