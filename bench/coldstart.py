@@ -11,6 +11,14 @@ others share, steadier than wall time.
     python bench/coldstart.py              # the table (about 4 minutes on 2 cores)
     python bench/coldstart.py --profile    # and the compile time of every kernel per row
     python bench/coldstart.py --only iou   # rows whose name contains "iou"
+    python bench/coldstart.py --only suppress --against HEAD~1 --runs 5
+                                           # A/B: this tree against a git revision
+
+``--against`` runs the chosen rows alternately from the working tree and from a temporary
+checkout of the revision (fresh processes, empty caches) and prints the median and range
+of their CPU seconds: compile time drifts by a tenth of its value within half an hour
+on a shared machine, so two versions are compared side by side, never one run against
+another from earlier.
 
 The kernel table lists, per row, each compiled function (``module.function``) with its
 exclusive compile time (its own typing, lowering and LLVM work, without the functions it
@@ -169,19 +177,26 @@ print("RESULT " + json.dumps({"first": first, "extra": extra, "kernels": kernels
     return head + textwrap.dedent(body) + tail
 
 
-def run_row(body: str, layout: str = "", profile: bool = False, cache: str | None = None) -> dict:
-    """Run one row in a fresh process; a fresh empty cache unless ``cache`` is given."""
+def run_row(
+    body: str,
+    layout: str = "",
+    profile: bool = False,
+    cache: str | None = None,
+    root: str = ROOT,
+) -> dict:
+    """Run one row in a fresh process; a fresh empty cache unless ``cache`` is given;
+    obbiou imported from ``root``."""
     own = cache is None
     cache = cache or tempfile.mkdtemp(prefix="obbiou-cold-")
     env = dict(os.environ, NUMBA_CACHE_DIR=cache)
-    env["PYTHONPATH"] = ROOT + os.pathsep + env.get("PYTHONPATH", "")
+    env["PYTHONPATH"] = root + os.pathsep + env.get("PYTHONPATH", "")
     try:
         done = subprocess.run(
             [sys.executable, "-c", _snippet(body, layout, profile)],
             capture_output=True,
             text=True,
             env=env,
-            cwd=ROOT,
+            cwd=root,
         )
     finally:
         if own:
@@ -220,11 +235,50 @@ def print_kernels(kernels: dict, top: int = 25) -> None:
         print(f"        {name:<44s} {excl:7.2f} s  (incl. {incl:6.2f} s)  n={n}")
 
 
+# The rows of first calls: name, snippet, layout, goal (multiple of the unit).
+ROWS = [
+    ("iou rotated (3 x 3, then 300 x 300)", FIRST_IOU, "rotated", 4),
+    ("iou polygon (3 x 3, then 300 x 300)", FIRST_IOU, "polygon", 4),
+    ("iou upright (3 x 3, then 300 x 300)", FIRST_IOU, "upright", 4),
+    ("overlapping_pairs rotated (50, then 30 000)", FIRST_PAIRS, "", 6),
+    ("suppress hard rotated (50, then 30 000)", FIRST_SUPPRESS, "", 6),
+    ("evaluate, small rotated table, 10 thresholds", FIRST_EVALUATE, "", 8),
+]
+
+
+def compare(rev: str, only: str, runs: int) -> None:
+    """CPU seconds of the first-call rows, this tree against ``rev``, alternating."""
+    other = tempfile.mkdtemp(prefix="obbiou-against-")
+    subprocess.run(["git", "worktree", "add", "--detach", "-q", other, rev], cwd=ROOT, check=True)
+    try:
+        print(f"CPU seconds, median (range) of {runs} fresh processes each, alternating")
+        print(f"{'first use, cold cache':<46s} {'this tree':>20s} {rev:>20s}")
+        for name, body, layout, _ in ROWS:
+            if only and only not in name:
+                continue
+            cpu: dict[str, list[float]] = {"this": [], "rev": []}
+            for _ in range(runs):
+                cpu["this"].append(run_row(body, layout)["cpu"])
+                cpu["rev"].append(run_row(body, layout, root=other)["cpu"])
+            cells = []
+            for side in ("this", "rev"):
+                v = sorted(cpu[side])
+                cells.append(f"{v[len(v) // 2]:.2f} ({v[0]:.2f}-{v[-1]:.2f})")
+            print(f"{name:<46s} {cells[0]:>20s} {cells[1]:>20s}", flush=True)
+    finally:
+        subprocess.run(["git", "worktree", "remove", "--force", other], cwd=ROOT, check=False)
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--profile", action="store_true", help="print each kernel's compile time")
     parser.add_argument("--only", default="", help="run only rows whose name contains this")
+    parser.add_argument("--against", metavar="REV", help="A/B: compare with a git revision")
+    parser.add_argument("--runs", type=int, default=5, help="processes per side with --against")
     args = parser.parse_args()
+    if args.against:
+        compare(args.against, args.only, args.runs)
+        return
 
     trivial = run_row(TRIVIAL_PARALLEL)
     unit, unit_cpu = trivial["first"], trivial["cpu"]
@@ -249,15 +303,7 @@ def main() -> None:
             note = f"[CPU {cpu:.2f} s = {cpu / unit_cpu:.1f}x] {note}"
         print(f"{name:<46s} {seconds:8.2f} {mult:6.1f}x {goal_s:>6s} {verdict} {note}", flush=True)
 
-    rows = [
-        ("iou rotated (3 x 3, then 300 x 300)", FIRST_IOU, "rotated", 4),
-        ("iou polygon (3 x 3, then 300 x 300)", FIRST_IOU, "polygon", 4),
-        ("iou upright (3 x 3, then 300 x 300)", FIRST_IOU, "upright", 4),
-        ("overlapping_pairs rotated (50, then 30 000)", FIRST_PAIRS, "", 6),
-        ("suppress hard rotated (50, then 30 000)", FIRST_SUPPRESS, "", 6),
-        ("evaluate, small rotated table, 10 thresholds", FIRST_EVALUATE, "", 8),
-    ]
-    for name, body, layout, goal in rows:
+    for name, body, layout, goal in ROWS:
         if args.only and args.only not in name:
             continue
         r = run_row(body, layout, args.profile)
