@@ -592,16 +592,42 @@ def _values_poly(scene, ci, cj, n, out):
 
 @njit(inline="always")
 def _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, values):
-    """For the chunks c0..c1-1, what ``todo`` says: for SAMPLE, the candidates of every
-    SAMPLE_STRIDE-th of its rows c * step ... into need[c] (they size its buffer; a
-    chunk that overflows it is walked again with exact room); for PAIRS,
-    :func:`_chunk_pairs`. Written once; the ``chunk_pairs_*`` kernels below bind
-    ``values`` to their kind's measure (numba inlines this body into each, so each is
-    cached as a plain kernel)."""
+    """For the chunks c0..c1-1, what ``todo`` says. PAIRS: the pairs of a's rows
+    c * step ... (spatial order) with IoU above the threshold: candidates from one walk
+    each into ci, cj [lo[c], hi[c]), all of them counted into need[c]; when they fit,
+    their IoU into cv, and the pairs above the threshold compacted to the front, their
+    number into got[c]. SAMPLE: only every SAMPLE_STRIDE-th row's candidates, counted
+    into need[c] (they size the chunk's buffer; a chunk that overflows it is walked again
+    with exact room). One call of the walk: each call is a copy of it for LLVM to
+    optimise. Written once; the ``chunk_pairs_*`` kernels below bind ``values`` to their
+    kind's measure (numba inlines this body into each, so each is cached as a plain
+    kernel)."""
+    n = scene.A.shape[0]
+    cell_ptr = grid.cell_ptr
+    static, ends = cell_ptr[:0], cell_ptr[1:]  # (the static grid: no items)
+    thr = scene.thr
     for c in range(c0, c1):
-        if todo[c] != SKIP:
-            sample = todo[c] == SAMPLE
-            _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo[c], hi[c], need, got, sample, values)
+        if todo[c] == SKIP:
+            continue
+        sample = todo[c] == SAMPLE
+        a, b, v = ci[lo[c] : hi[c]], cj[lo[c] : hi[c]], cv[lo[c] : hi[c]]
+        cap = b.shape[0]
+        pos = np.int64(0)
+        for i in range(c * step, min(n, (c + 1) * step), SAMPLE_STRIDE if sample else 1):
+            m = walk(i, scene, grid, static, ends, np.bool_(False), b[min(pos, cap) :])
+            for k in range(pos, min(pos + m, cap)):
+                a[k] = i
+            pos += m
+        need[c] = pos
+        if sample or pos > cap:
+            continue
+        values(scene, a, b, pos, v)
+        kept = 0
+        for k in range(pos):
+            if v[k] > thr:
+                a[kept], b[kept], v[kept] = a[k], b[k], v[k]
+                kept += 1
+        got[c] = kept
 
 
 @njit(nogil=True, **ENTRY)
@@ -621,37 +647,6 @@ def chunk_pairs_poly(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0,
 
 #: The chunk kernel of each kind, by its code.
 CHUNK_PAIRS = (chunk_pairs_axis, chunk_pairs_rect, chunk_pairs_poly)
-
-
-@njit(inline="always")
-def _chunk_pairs(c, step, scene, grid, ci, cj, cv, lo, hi, need, got, sample, values):
-    """The pairs of a's rows c * step ... (spatial order) with IoU above the threshold:
-    candidates from one walk each into ci, cj [lo, hi), all of them counted into need[c];
-    when they fit, their IoU into cv, and the pairs above the threshold compacted to the
-    front, their number into got[c]. With ``sample``, only every SAMPLE_STRIDE-th row's
-    candidates, counted into need[c]. (One call of the walk: each call is a copy of it
-    for LLVM to optimise.)"""
-    ci, cj, cv = ci[lo:hi], cj[lo:hi], cv[lo:hi]
-    n = scene.A.shape[0]
-    cell_ptr = grid.cell_ptr
-    cap = cj.shape[0]
-    pos = np.int64(0)
-    for i in range(c * step, min(n, (c + 1) * step), SAMPLE_STRIDE if sample else 1):
-        m = walk(i, scene, grid, cell_ptr[:0], cell_ptr[1:], np.bool_(False), cj[min(pos, cap) :])
-        for k in range(pos, min(pos + m, cap)):
-            ci[k] = i
-        pos += m
-    need[c] = pos
-    if sample or pos > cap:
-        return
-    values(scene, ci, cj, pos, cv)
-    thr = scene.thr
-    kept = 0
-    for k in range(pos):
-        if cv[k] > thr:
-            ci[kept], cj[kept], cv[kept] = ci[k], cj[k], cv[k]
-            kept += 1
-    got[c] = kept
 
 
 # chunk_room and regrow are plain numpy: they run once per scene, and as numba kernels their
