@@ -89,11 +89,15 @@ def pad_extents(env):
     return np.concatenate([lo, hi], axis=1)
 
 
+# Prepared-row kinds (see obbiou._kernels.pairs): the measure of a pair is the very kernel
+# function the all-pairs matrices use, so values are bit for bit the matrix entries.
+AXIS, RECT, POLY = int(Kind.AXIS), int(Kind.RECT), int(Kind.POLY)
+
 # The extent columns of prepared rows, by kind: x0, y0, x1, y1, z0, z1 (-1: no z) and size.
 _EXTENT_COLUMNS = {
-    0: (AX_X0, AX_Y0, AX_X1, AX_Y1, AX_Z0, AX_Z1, AX_SIZE),
-    1: (R_XMIN, R_YMIN, R_XMAX, R_YMAX, R_Z0, R_Z1, R_SIZE),
-    2: (P_XMIN, P_YMIN, P_XMAX, P_YMAX, -1, -1, P_AREA),
+    AXIS: (AX_X0, AX_Y0, AX_X1, AX_Y1, AX_Z0, AX_Z1, AX_SIZE),
+    RECT: (R_XMIN, R_YMIN, R_XMAX, R_YMAX, R_Z0, R_Z1, R_SIZE),
+    POLY: (P_XMIN, P_YMIN, P_XMAX, P_YMAX, -1, -1, P_AREA),
 }
 
 
@@ -315,10 +319,6 @@ def cell_order(ext, level, levels, ncells):
 Scene = namedtuple("Scene", "kind A VA ea sa oa B VB eb sb ob same la lb thr is3d")
 #: The grid over b (see :func:`build_index`).
 Grid = namedtuple("Grid", "levels bounds cell_ptr box_cell box_level")
-
-# Prepared-row kinds (see obbiou._kernels.pairs): the measure of a pair is the very kernel
-# function the all-pairs matrices use, so values are bit for bit the matrix entries.
-AXIS, RECT, POLY = int(Kind.AXIS), int(Kind.RECT), int(Kind.POLY)
 
 
 def median_extent(ext):
