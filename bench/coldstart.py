@@ -249,7 +249,15 @@ ROWS = [
 def compare(rev: str, only: str, runs: int) -> None:
     """CPU seconds of the first-call rows, this tree against ``rev``, alternating."""
     other = tempfile.mkdtemp(prefix="obbiou-against-")
-    subprocess.run(["git", "worktree", "add", "--detach", "-q", other, rev], cwd=ROOT, check=True)
+    done = subprocess.run(
+        ["git", "worktree", "add", "--detach", "-q", other, rev],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+    )
+    if done.returncode != 0:
+        shutil.rmtree(other, ignore_errors=True)
+        sys.exit(f"coldstart.py: --against {rev}: no checkout of it: {done.stderr.strip()}")
     try:
         print(f"CPU seconds, median (range) of {runs} fresh processes each, alternating")
         print(f"{'first use, cold cache':<46s} {'this tree':>20s} {rev:>20s}")
