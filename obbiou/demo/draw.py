@@ -165,20 +165,7 @@ def draw_scene(
         loc="left",
         pad=5,
     )
-    ax.annotate(
-        title or f"{scenario.title}: {frame}",
-        (0, 1),
-        xycoords="axes fraction",
-        xytext=(0, 32),
-        textcoords="offset points",
-        fontsize=12.5,
-        va="bottom",
-    )
-    ax.tick_params(labelsize=8)
-    fig.tight_layout()
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fig.savefig(path, bbox_inches="tight", pad_inches=0.25)
-    return path
+    return _titled_save(fig, ax, title or f"{scenario.title}: {frame}", path)
 
 
 def draw_tiles(
@@ -322,20 +309,7 @@ def draw_tiles(
         loc="left",
         pad=5,
     )
-    ax.annotate(
-        f"{scenario.title}: {frame}, the detector's tiles",
-        (0, 1),
-        xycoords="axes fraction",
-        xytext=(0, 32),
-        textcoords="offset points",
-        fontsize=12.5,
-        va="bottom",
-    )
-    ax.tick_params(labelsize=8)
-    fig.tight_layout()
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fig.savefig(path, bbox_inches="tight", pad_inches=0.25)
-    return path
+    return _titled_save(fig, ax, f"{scenario.title}: {frame}, the detector's tiles", path)
 
 
 def _draw_quay(ax: Any, scenario: Any, frame: str, polygon: Any) -> None:
@@ -390,3 +364,22 @@ def _draw_racks(ax: Any, scenario: Any, frame: str, polygon: Any) -> None:
             ha="right",
             va="center",
         )
+
+
+def _titled_save(fig: Any, ax: Any, title: str, path: Path) -> Path:
+    """Title above the axes, small tick labels, and the figure saved to ``path``: the
+    common end of the demo's pictures."""
+    ax.annotate(
+        title,
+        (0, 1),
+        xycoords="axes fraction",
+        xytext=(0, 32),
+        textcoords="offset points",
+        fontsize=12.5,
+        va="bottom",
+    )
+    ax.tick_params(labelsize=8)
+    fig.tight_layout()
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fig.savefig(path, bbox_inches="tight", pad_inches=0.25)
+    return path
