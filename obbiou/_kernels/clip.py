@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from numba import njit
 
+from obbiou._kernels.minmax import larger
 from obbiou._kernels.options import HELPER
 
 
@@ -137,4 +138,4 @@ def hull_area(xs, ys, n, hx, hy):
         hy[m] = ys[i]
         m += 1
     # The last point repeats the first one.
-    return max(shoelace(hx, hy, m - 1), 0.0)
+    return larger(shoelace(hx, hy, m - 1), 0.0)

@@ -141,7 +141,10 @@ def extent_rows(R, cols, ext, size, lo, hi):
 @njit(**HELPER)
 def _cell(x, g, inv, n):
     """Cell of coordinate x on an axis from g with cells of size 1 / inv, clamped to n."""
-    c = int(np.floor((x - g) * inv))
+    # np.int64, not int(), here and in the kernels below: numba compiles int() of a float
+    # as a function of its own, once per set of the callers' compile options (measured:
+    # three copies, 0.05 s of the first suppression)
+    c = np.int64(np.floor((x - g) * inv))
     c = c if c > 0 else 0
     return c if c < n - 1 else n - 1
 
@@ -293,7 +296,11 @@ def cell_order(ext, level, levels, ncells):
         x0, y0 = ext[j, X0], ext[j, Y0]
         lv = level[j]
         gx, gy, inv = levels[lv, L_GX], levels[lv, L_GY], levels[lv, L_INV]
-        nx, ny, c0 = int(levels[lv, L_NX]), int(levels[lv, L_NY]), int(levels[lv, L_FIRST])
+        nx, ny, c0 = (
+            np.int64(levels[lv, L_NX]),
+            np.int64(levels[lv, L_NY]),
+            np.int64(levels[lv, L_FIRST]),
+        )
         key[j] = c0 + _cell(y0, gy, inv, ny) * nx + _cell(x0, gx, inv, nx)
         cell_ptr[key[j] + 1] += 1
     fill = np.empty(ncells, np.int64)
@@ -345,7 +352,7 @@ def order_on(ext, levels):
     while levels[lv, L_NX] == 0.0:
         lv += 1
     gx, gy, inv = levels[lv, L_GX], levels[lv, L_GY], levels[lv, L_INV]
-    nx, ny = int(levels[lv, L_NX]), int(levels[lv, L_NY])
+    nx, ny = np.int64(levels[lv, L_NX]), np.int64(levels[lv, L_NY])
     n = ext.shape[0]
     key = np.empty(n, np.int64)
     ptr = np.empty(nx * ny + 1, np.int64)
@@ -402,9 +409,12 @@ def arrange(kind, R, V, order, labels):
     return R, Vs, ls
 
 
-@njit(**HELPER)
+@njit(inline="always")
 def scratch(VA, VB):
-    return np.empty((6, max(RECT_SCRATCH, 2 * (VA.shape[1] + VB.shape[1]) + 4)))
+    # inlined at numba's level: its np.empty compiles with the kernels' options, which
+    # the index kernels' arrays already use, not once more for a helper's
+    k = 2 * (VA.shape[1] + VB.shape[1]) + 4
+    return np.empty((6, k if k > RECT_SCRATCH else RECT_SCRATCH))
 
 
 @njit(forceinline=True, **HELPER)
@@ -448,7 +458,7 @@ def walk(i, scene, grid, items, ends, growing, out):
     cap = out.shape[0]
     n = 0
     for lv in range(levels.shape[0]):
-        nx = int(levels[lv, L_NX])
+        nx = np.int64(levels[lv, L_NX])
         if nx == 0 or lv < own_level:
             continue
         if x1 <= bounds[lv, 0] or x0 >= bounds[lv, 2] or y1 <= bounds[lv, 1] or y0 >= bounds[lv, 3]:
@@ -459,7 +469,7 @@ def walk(i, scene, grid, items, ends, growing, out):
             levels[lv, L_INV],
             levels[lv, L_REACH],
         )
-        ny, c0 = int(levels[lv, L_NY]), int(levels[lv, L_FIRST])
+        ny, c0 = np.int64(levels[lv, L_NY]), np.int64(levels[lv, L_FIRST])
         qx0, qx1 = _cell(x0 - reach, gx, inv, nx), _cell(x1, gx, inv, nx)
         qy0, qy1 = _cell(y0 - reach, gy, inv, ny), _cell(y1, gy, inv, ny)
         own = lv == own_level

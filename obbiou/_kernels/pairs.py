@@ -34,6 +34,7 @@ from numba import njit
 from obbiou._kernels.clip import clip_axis, clip_line, hull_area, shoelace
 from obbiou._kernels.codes import Measure
 from obbiou._kernels.geometry import rect_tuple
+from obbiou._kernels.minmax import larger, smaller
 from obbiou._kernels.options import ENTRY, HELPER
 
 INTERSECTION = int(Measure.INTERSECTION)
@@ -61,10 +62,10 @@ def finish(measure, inter, sa, sb, hull, d2, c2):
     if measure == INTERSECTION:
         return inter
     if measure == COVERAGE:
-        share = min(max(inter / sa, 0.0), 1.0)
+        share = smaller(larger(inter / sa, 0.0), 1.0)
         return share if sa > 0.0 else 0.0
     union = sa + sb - inter
-    iou = min(max(inter / union, 0.0), 1.0)  # a select below, not a branch: loops vectorise
+    iou = smaller(larger(inter / union, 0.0), 1.0)  # a select below, not a branch: loops vectorise
     iou = iou if (union > 0.0) & (inter > 0.0) else 0.0
     if measure == IOU:
         return iou
@@ -72,12 +73,12 @@ def finish(measure, inter, sa, sb, hull, d2, c2):
         penalty = 0.0
         if hull > union:
             penalty = (hull - union) / hull
-        return min(max(iou - penalty, -1.0), 1.0)
+        return smaller(larger(iou - penalty, -1.0), 1.0)
     # DIOU
     penalty = 0.0
     if c2 > 0.0:
-        penalty = min(d2 / c2, 1.0)
-    return min(max(iou - penalty, -1.0), 1.0)
+        penalty = smaller(d2 / c2, 1.0)
+    return smaller(larger(iou - penalty, -1.0), 1.0)
 
 
 # --------------------------------------------------------------------------------------
@@ -97,33 +98,33 @@ def axis_less(A, i, B, j):
 def axis_pair(A, i, B, j, measure, is3d, buf):
     sa = A[i, AX_SIZE]
     sb = B[j, AX_SIZE]
-    ix = min(A[i, AX_X1], B[j, AX_X1]) - max(A[i, AX_X0], B[j, AX_X0])
-    iy = min(A[i, AX_Y1], B[j, AX_Y1]) - max(A[i, AX_Y0], B[j, AX_Y0])
+    ix = smaller(A[i, AX_X1], B[j, AX_X1]) - larger(A[i, AX_X0], B[j, AX_X0])
+    iy = smaller(A[i, AX_Y1], B[j, AX_Y1]) - larger(A[i, AX_Y0], B[j, AX_Y0])
     iz = 1.0
     if is3d:
-        iz = min(A[i, AX_Z1], B[j, AX_Z1]) - max(A[i, AX_Z0], B[j, AX_Z0])
+        iz = smaller(A[i, AX_Z1], B[j, AX_Z1]) - larger(A[i, AX_Z0], B[j, AX_Z0])
     inter = 0.0
     if ix > 0.0 and iy > 0.0 and iz > 0.0 and sa > 0.0 and sb > 0.0:
-        inter = min(ix * iy * iz, sa, sb)
+        inter = smaller(smaller(ix * iy * iz, sa), sb)
     if measure == INTERSECTION or measure == IOU or measure == COVERAGE:
         return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
     if measure == DIOU:
         # Centre offsets from differences of like coordinates: antisymmetric exactly.
         dx = 0.5 * ((B[j, AX_X0] - A[i, AX_X0]) + (B[j, AX_X1] - A[i, AX_X1]))
         dy = 0.5 * ((B[j, AX_Y0] - A[i, AX_Y0]) + (B[j, AX_Y1] - A[i, AX_Y1]))
-        cw = max(A[i, AX_X1], B[j, AX_X1]) - min(A[i, AX_X0], B[j, AX_X0])
-        ch = max(A[i, AX_Y1], B[j, AX_Y1]) - min(A[i, AX_Y0], B[j, AX_Y0])
+        cw = larger(A[i, AX_X1], B[j, AX_X1]) - smaller(A[i, AX_X0], B[j, AX_X0])
+        ch = larger(A[i, AX_Y1], B[j, AX_Y1]) - smaller(A[i, AX_Y0], B[j, AX_Y0])
         d2 = dx * dx + dy * dy
         c2 = cw * cw + ch * ch
         if is3d:
             dz = 0.5 * ((B[j, AX_Z0] - A[i, AX_Z0]) + (B[j, AX_Z1] - A[i, AX_Z1]))
-            cd = max(A[i, AX_Z1], B[j, AX_Z1]) - min(A[i, AX_Z0], B[j, AX_Z0])
+            cd = larger(A[i, AX_Z1], B[j, AX_Z1]) - smaller(A[i, AX_Z0], B[j, AX_Z0])
             d2 += dz * dz
             c2 += cd * cd
         return finish(measure, inter, sa, sb, 0.0, d2, c2)
     # GIOU: convex hull of both footprints (x span of the joint z interval in 3D).
-    if inter > 0.0 and inter >= min(sa, sb):
-        return finish(measure, inter, sa, sb, max(sa, sb), 0.0, 0.0)
+    if inter > 0.0 and inter >= smaller(sa, sb):
+        return finish(measure, inter, sa, sb, larger(sa, sb), 0.0, 0.0)
     if axis_less(A, i, B, j):
         hull = axis_hull(B, j, A, i, is3d, buf)
     else:
@@ -158,7 +159,7 @@ def axis_hull(P, p, Q, q, is3d, buf):
     axis_corners(Q, q, ox, oy, xs, ys, np.int64(4))
     hull = hull_area(xs, ys, np.int64(8), buf[2], buf[3])
     if is3d:
-        hull *= max(P[p, AX_Z1], Q[q, AX_Z1]) - min(P[p, AX_Z0], Q[q, AX_Z0])
+        hull *= larger(P[p, AX_Z1], Q[q, AX_Z1]) - smaller(P[p, AX_Z0], Q[q, AX_Z0])
     return hull
 
 
@@ -244,9 +245,9 @@ def span_inside(x0, y0, rx, ry, hx, hy):
     tb = (hx - x0) * rx
     tc = (-hy - y0) * ry
     td = (hy - y0) * ry
-    lo = max(0.0, max(min(ta, tb), min(tc, td)))
-    hi = min(1.0, min(max(ta, tb), max(tc, td)))
-    return max(hi - lo, 0.0)
+    lo = larger(0.0, larger(smaller(ta, tb), smaller(tc, td)))
+    hi = smaller(1.0, smaller(larger(ta, tb), larger(tc, td)))
+    return larger(hi - lo, 0.0)
 
 
 # Below this |cos| or |sin| of the angle between two rectangles, edges are near parallel:
@@ -277,7 +278,7 @@ def rect_intersection(a, b):
     q = pick(swap, b, a)
     sa = p[R_SIZE]
     sb = q[R_SIZE]
-    dz = min(p[R_Z1], q[R_Z1]) - max(p[R_Z0], q[R_Z0])
+    dz = smaller(p[R_Z1], q[R_Z1]) - larger(p[R_Z0], q[R_Z0])
     # Extents that meet exactly mean an exact 0 (boxes sharing an edge in absolute
     # coordinates), unless an extent has collapsed to a point: a side below the rounding of
     # the centre's coordinates (1e-20 at x = 1) does that, and the box would be disjoint
@@ -360,13 +361,13 @@ def rect_intersection(a, b):
     sp += span_inside(x1, y1, rbx, rby, qhw, qhh)
     sp += span_inside(x2, y2, -rax, -ray, qhw, qhh)
     sp += span_inside(x3, y3, -rbx, -rby, qhw, qhh)
-    area = min(max(sq + phw * phh * sp, 0.0), p[R_AREA], q[R_AREA])
+    area = smaller(smaller(larger(sq + phw * phh * sp, 0.0), p[R_AREA]), q[R_AREA])
     area = q[R_AREA] if q_in_p else area
     area = p[R_AREA] if p_in_q else area
     area = 0.0 if disjoint else area
     near = (abs(c) < NEAR_PARALLEL) | (abs(s) < NEAR_PARALLEL)
     redo = near & ~(disjoint | q_in_p | p_in_q)
-    inter = 0.0 if separate else min(area * dz, sa, sb)
+    inter = 0.0 if separate else smaller(smaller(area * dz, sa), sb)
     return inter, redo & ~separate
 
 
@@ -411,9 +412,9 @@ def rect_slow(a, b, buf):
     n = clip_axis(x2, y2, n, x1, y1, -1.0, phw)
     n = clip_axis(y1, x1, n, y2, x2, 1.0, phh)
     n = clip_axis(y2, x2, n, y1, x1, -1.0, phh)
-    area = min(max(shoelace(x1, y1, n), 0.0), a[R_AREA], b[R_AREA])
-    dz = min(a[R_Z1], b[R_Z1]) - max(a[R_Z0], b[R_Z0])
-    return min(area * dz, a[R_SIZE], b[R_SIZE])
+    area = smaller(smaller(larger(shoelace(x1, y1, n), 0.0), a[R_AREA]), b[R_AREA])
+    dz = smaller(a[R_Z1], b[R_Z1]) - larger(a[R_Z0], b[R_Z0])
+    return smaller(smaller(area * dz, a[R_SIZE]), b[R_SIZE])
 
 
 @njit(**HELPER)
@@ -492,26 +493,26 @@ def rect_measure(a, b, measure, is3d, buf):
         pey = abs(p[R_S]) * p[R_HW] + abs(p[R_C]) * p[R_HH]
         qex = abs(q[R_C]) * q[R_HW] + abs(q[R_S]) * q[R_HH]
         qey = abs(q[R_S]) * q[R_HW] + abs(q[R_C]) * q[R_HH]
-        cw = max(pex, dx + qex) - min(-pex, dx - qex)
-        ch = max(pey, dy + qey) - min(-pey, dy - qey)
+        cw = larger(pex, dx + qex) - smaller(-pex, dx - qex)
+        ch = larger(pey, dy + qey) - smaller(-pey, dy - qey)
         d2 = dx * dx + dy * dy
         c2 = cw * cw + ch * ch
         if is3d:
             ddz = 0.5 * ((q[R_Z0] - p[R_Z0]) + (q[R_Z1] - p[R_Z1]))
-            cd = max(p[R_Z1], q[R_Z1]) - min(p[R_Z0], q[R_Z0])
+            cd = larger(p[R_Z1], q[R_Z1]) - smaller(p[R_Z0], q[R_Z0])
             d2 += ddz * ddz
             c2 += cd * cd
         return finish(measure, inter, sa, sb, 0.0, d2, c2)
     # GIOU: hull of the footprints times the joint z span (exactly 1 for 2D rows).
-    if inter > 0.0 and inter >= min(sa, sb):
-        return finish(measure, inter, sa, sb, max(sa, sb), 0.0, 0.0)
-    hull = rect_hull(p, q, buf) * (max(p[R_Z1], q[R_Z1]) - min(p[R_Z0], q[R_Z0]))
+    if inter > 0.0 and inter >= smaller(sa, sb):
+        return finish(measure, inter, sa, sb, larger(sa, sb), 0.0, 0.0)
+    hull = rect_hull(p, q, buf) * (larger(p[R_Z1], q[R_Z1]) - smaller(p[R_Z0], q[R_Z0]))
     return finish(measure, inter, sa, sb, hull, 0.0, 0.0)
 
 
 @njit(forceinline=True, **HELPER)
 def _overlap(lo0, hi0, lo1, hi1):
-    return max(min(hi0, hi1) - max(lo0, lo1), 0.0)
+    return larger(smaller(hi0, hi1) - larger(lo0, lo1), 0.0)
 
 
 @njit(**ENTRY)
@@ -548,7 +549,7 @@ def rect_iou_verdict(A, i, B, j, thr):
     sb = B[j, R_SIZE]
     if not (sa > 0.0 and sb > 0.0):
         return -1
-    dz = min(A[i, R_Z1], B[j, R_Z1]) - max(A[i, R_Z0], B[j, R_Z0])  # 1 for 2D rows
+    dz = smaller(A[i, R_Z1], B[j, R_Z1]) - larger(A[i, R_Z0], B[j, R_Z0])  # 1 for 2D rows
     if not dz > 0.0:
         return -1
     dx = qcx - pcx
@@ -677,7 +678,7 @@ def poly_inter(VP, p, VQ, q, buf):
         y1, y2 = y2, y1
         if n == 0:
             return 0.0
-    return max(shoelace(x1, y1, n), 0.0)
+    return larger(shoelace(x1, y1, n), 0.0)
 
 
 @njit(**HELPER)
@@ -714,9 +715,9 @@ def poly_pair(VA, A, i, VB, B, j, measure, buf):
         if poly_same(VA, i, VB, j):
             inter = sa
         elif poly_less(VA, i, VB, j):
-            inter = min(poly_inter(VB, j, VA, i, buf), sa, sb)
+            inter = smaller(smaller(poly_inter(VB, j, VA, i, buf), sa), sb)
         else:
-            inter = min(poly_inter(VA, i, VB, j, buf), sa, sb)
+            inter = smaller(smaller(poly_inter(VA, i, VB, j, buf), sa), sb)
     return finish(measure, inter, sa, sb, 0.0, 0.0, 0.0)
 
 
@@ -730,12 +731,12 @@ def poly_pair_full(VA, A, i, VB, B, j, measure, buf):
         # centroids relative to each polygon's vertex 0: no loss at map offsets near 1e7
         dx = (VB[j, 0, 0] - VA[i, 0, 0]) + (B[j, P_GX] - A[i, P_GX])
         dy = (VB[j, 0, 1] - VA[i, 0, 1]) + (B[j, P_GY] - A[i, P_GY])
-        cw = max(A[i, P_XMAX], B[j, P_XMAX]) - min(A[i, P_XMIN], B[j, P_XMIN])
-        ch = max(A[i, P_YMAX], B[j, P_YMAX]) - min(A[i, P_YMIN], B[j, P_YMIN])
+        cw = larger(A[i, P_XMAX], B[j, P_XMAX]) - smaller(A[i, P_XMIN], B[j, P_XMIN])
+        ch = larger(A[i, P_YMAX], B[j, P_YMAX]) - smaller(A[i, P_YMIN], B[j, P_YMIN])
         return finish(measure, inter, sa, sb, 0.0, dx * dx + dy * dy, cw * cw + ch * ch)
     # identical polygons have inter == sa == sb > 0: no hull needed
-    if inter > 0.0 and inter >= min(sa, sb):
-        return finish(measure, inter, sa, sb, max(sa, sb), 0.0, 0.0)
+    if inter > 0.0 and inter >= smaller(sa, sb):
+        return finish(measure, inter, sa, sb, larger(sa, sb), 0.0, 0.0)
     if poly_less(VA, i, VB, j):
         hull = poly_hull(VB, j, VA, i, buf)
     else:
