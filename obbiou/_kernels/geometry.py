@@ -104,7 +104,7 @@ def rect_tuple(data, i, layout):
     return (cx, cy, hw, hh, c, s, area, xmin, ymin, xmax, ymax, z0, z1, size, ihw, ihh)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def rect_rows(data, layout, rows, lo, hi):
     """Rows of :func:`rect_tuple` for boxes lo..hi-1 into ``rows`` (N, 16)."""
     for i in range(lo, hi):

@@ -121,7 +121,7 @@ def _padded(lo, hi):
     return lo - p, hi + p
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def extent_rows(R, cols, ext, size, lo, hi):
     """Padded extents and sizes of prepared rows lo..hi-1 (:func:`side_extents`; the
     arithmetic of :func:`_pad`): one kernel for every kind, which passes its columns
@@ -640,17 +640,17 @@ def _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, valu
         got[c] = kept
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def chunk_pairs_axis(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
     _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, _values_axis)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def chunk_pairs_rect(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
     _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, _values_rect)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def chunk_pairs_poly(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1):
     _chunks(step, scene, grid, ci, cj, cv, lo, hi, need, got, todo, c0, c1, _values_poly)
 

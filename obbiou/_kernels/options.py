@@ -10,7 +10,11 @@ matrix, fresh processes, empty cache, three runs each: 1.32-1.41 s with the wrap
 
 * :data:`HELPER`: a function that only numba code calls (no wrapper at all);
 * :data:`ENTRY`: a function that Python calls, such as a kernel body (Python's wrapper
-  only); bodies add ``nogil=True``.
+  only). Every one releases the GIL (bodies run on Python threads, see
+  :mod:`obbiou._kernels.threads`), and all share one set of options: numba compiles the
+  functions behind ``np.empty``, ``min`` and the like once per set of options of their
+  callers (measured: ``np.empty`` of a shape compiled twice in a first
+  ``overlapping_pairs``, once for kernels with ``nogil`` and once for those without).
 """
 
 from __future__ import annotations
@@ -22,4 +26,4 @@ HELPER = {
     "no_cfunc_wrapper": True,
 }
 
-ENTRY = {"error_model": "numpy", "cache": True, "no_cfunc_wrapper": True}
+ENTRY = {"error_model": "numpy", "cache": True, "no_cfunc_wrapper": True, "nogil": True}

@@ -749,7 +749,7 @@ def poly_pair_full(VA, A, i, VB, B, j, measure, buf):
 # are written flat, row i at out[i * m : (i + 1) * m].
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def axis_matrix_rows(A, B, measure, is3d, out, lo, hi):
     """Rows lo..hi-1 of the all-pairs matrix of prepared axis boxes A with B."""
     m = B.shape[0]
@@ -760,7 +760,7 @@ def axis_matrix_rows(A, B, measure, is3d, out, lo, hi):
             row[j] = axis_pair(A, i, B, j, measure, is3d, buf)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def axis_list(A, B, first, second, measure, is3d, out, lo, hi):
     """out[k] = the measure of (A[first[k]], B[second[k]]) for k in lo..hi-1."""
     buf = np.empty((4, RECT_SCRATCH))
@@ -805,7 +805,7 @@ def _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, block):
 # (layouts la, lb), no (N, 16) arrays.
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def rect_matrix_rows(A, BT, m, measure, out, redo, lo, hi):
     """Rows lo..hi-1 of a fast measure's matrix; near-parallel pairs are left at -1 and
     counted in ``redo[i]``, for :func:`rect_matrix_redo` (only called when there are
@@ -824,7 +824,7 @@ def rect_matrix_rows(A, BT, m, measure, out, redo, lo, hi):
         redo[i] = flagged
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def rect_matrix_redo(A, BT, m, measure, out, redo, lo, hi):
     """The pairs of rows lo..hi-1 that :func:`rect_matrix_rows` left at -1, by clipping:
     what :func:`rect_inter_value` does with a flagged pair, so bit for bit
@@ -841,7 +841,7 @@ def rect_matrix_redo(A, BT, m, measure, out, redo, lo, hi):
                 row[j] = finish(measure, inter, a[R_SIZE], BT[R_SIZE, j], 0.0, 0.0, 0.0)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def rect_matrix_rows_full(A, BT, m, measure, is3d, out, lo, hi):
     """Rows lo..hi-1 of the matrix of GIoU or DIoU."""
     buf = np.empty((4, RECT_SCRATCH))
@@ -852,22 +852,22 @@ def rect_matrix_rows_full(A, BT, m, measure, is3d, out, lo, hi):
             row[j] = rect_measure(a, rect_load_t(BT, j), measure, is3d, buf)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def rect_list(A, B, first, second, measure, is3d, out, lo, hi):
     rect_list_body(A, B, first, second, measure, is3d, out, lo, hi, rect_block)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def rect_list_full(A, B, first, second, measure, is3d, out, lo, hi):
     rect_list_body(A, B, first, second, measure, is3d, out, lo, hi, rect_block_full)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi):
     _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, rect_block)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def rect_elementwise_full(Da, la, Db, lb, measure, is3d, out, lo, hi):
     _rect_elementwise(Da, la, Db, lb, measure, is3d, out, lo, hi, rect_block_full)
 
@@ -904,22 +904,22 @@ def poly_list_body(VA, A, VB, B, first, second, measure, out, lo, hi, pair_fn):
 # out[k] for the pairs (VA[first[k]], VB[second[k]]), k in lo..hi-1.
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi):
     _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, poly_pair)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def poly_matrix_rows_full(VA, A, VB, B, measure, out, lo, hi):
     _poly_matrix_rows(VA, A, VB, B, measure, out, lo, hi, poly_pair_full)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def poly_list(VA, A, VB, B, first, second, measure, out, lo, hi):
     poly_list_body(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def poly_list_full(VA, A, VB, B, first, second, measure, out, lo, hi):
     poly_list_body(VA, A, VB, B, first, second, measure, out, lo, hi, poly_pair_full)
 

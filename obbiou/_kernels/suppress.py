@@ -346,19 +346,19 @@ def _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, excee
         got[c] = 0 if over else kept
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def exceeding_axis(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1):
     """:func:`_exceeding` of axis boxes."""
     _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, exceeds_axis)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def exceeding_rect(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1):
     """:func:`_exceeding` of rectangles (rotated, upright)."""
     _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, exceeds_rect)
 
 
-@njit(nogil=True, **ENTRY)
+@njit(**ENTRY)
 def exceeding_poly(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1):
     """:func:`_exceeding` of polygons."""
     _exceeding(step, scene, grid, ci, cj, lo, hi, need, got, todo, c0, c1, exceeds_poly)
