@@ -496,15 +496,19 @@ def _column_name(layout: str, col: int) -> str:
 def _validate(arr: np.ndarray, layout: str, name: str) -> None:
     # Each check finds its own first failing row; the earliest row wins (for one row, the
     # checks' order decides), so the message always names the first offending row.
-    # A finite sum proves every value finite in one fast pass; only when it is not (a NaN or
-    # inf, or a sum that overflowed) is the element-wise mask built.
-    with np.errstate(over="ignore", invalid="ignore"):
-        all_finite = bool(np.isfinite(arr.sum()))
+    # The common case takes a few whole-array passes and builds no mask: a finite minimum
+    # and maximum prove every value finite (numpy's min and max propagate NaN) and bound
+    # them for the LIMIT test; the smallest size, taken once, settles the negative and the
+    # tiny sizes. Measured on 10^6 rotated boxes: 13.6 ms before (a sum, then the size
+    # columns' minimum twice as a strided block, 5.2 ms each), 5.8 ms now.
+    lo, hi = (float(arr.min()), float(arr.max())) if arr.size else (0.0, 0.0)
+    all_finite = bool(np.isfinite(lo) and np.isfinite(hi))
     finite = np.ones(1, dtype=bool) if all_finite else np.isfinite(arr)
-    all_finite = all_finite or bool(finite.all())
     failures = [None if all_finite else _non_finite(arr, finite, layout)]
+    smallest = None  # the smallest size (NaN when a size is NaN)
     if layout in _SIZE_COLUMNS:
-        failures.append(_negative_size(arr, layout))
+        smallest = _smallest_size(arr, layout)
+        failures.append(_negative_size(arr, layout, smallest))
     elif layout in _EXTENT_COLUMNS:
         failures.extend(_inverted_extent(arr, layout, lo, hi) for lo, hi in _EXTENT_COLUMNS[layout])
     elif layout == "polygon":
@@ -514,13 +518,16 @@ def _validate(arr: np.ndarray, layout: str, name: str) -> None:
         with np.errstate(over="ignore", invalid="ignore"):  # huge ones fail _too_large below
             failures.extend(_bad_polygons(arr))
     clean = arr if all_finite else np.where(finite, arr, 0.0)
+    if not all_finite:
+        lo, hi = (float(clean.min()), float(clean.max())) if clean.size else (0.0, 0.0)
+        smallest = _smallest_size(clean, layout) if smallest is not None else None
     # Coordinates and sizes within LIMIT cannot overflow an area, a volume or a squared
-    # distance: one cheap pass spares the exact tests for nearly all inputs.
-    if clean.size and max(float(clean.max()), -float(clean.min())) > LIMIT:
+    # distance: the minimum and maximum spare the exact tests for nearly all inputs.
+    if max(hi, -lo) > LIMIT:
         failures.append(_too_large(clean, layout))
         failures.append(_out_of_range(clean, layout))
     if clean.size:
-        failures.append(_too_small(clean, layout))
+        failures.append(_too_small(clean, layout, smallest))
     found = [f for f in failures if f is not None]
     if found:
         row, reason, column = min(found, key=lambda f: f[0])
@@ -546,10 +553,22 @@ def _non_finite(arr: np.ndarray, finite: np.ndarray, layout: str) -> Failure:
     return row, f"{where} is {what}", vertex * arr.shape[-1] + col
 
 
-def _negative_size(arr: np.ndarray, layout: str) -> Failure:
+def _smallest_size(arr: np.ndarray, layout: str) -> float | None:
+    """The smallest value of the size columns, NaN when one is NaN, None for no rows. One
+    column at a time: measured on 10^6 rotated boxes, 2.9 ms against 5.2 ms for the minimum
+    of the two columns as one strided block."""
+    if arr.shape[0] == 0:
+        return None
+    low = np.float64(np.inf)
+    for c in _SIZE_COLUMNS[layout]:
+        low = np.minimum(low, arr[:, c].min())  # (np.minimum keeps a NaN; min() may not)
+    return float(low)
+
+
+def _negative_size(arr: np.ndarray, layout: str, smallest: float | None) -> Failure:
     cols = list(_SIZE_COLUMNS[layout])
     sizes = arr[:, cols[0] : cols[-1] + 1]  # the size columns are adjacent: a view, no copy
-    if sizes.size and sizes.min() >= 0:  # the common case: one pass, no mask
+    if smallest is not None and smallest >= 0:  # the common case: no mask
         return None
     neg = sizes < 0  # NaN compares False here: the non-finite check reports those
     if not neg.any():
@@ -612,12 +631,13 @@ def _out_of_range(arr: np.ndarray, layout: str) -> Failure:
     return row, reason, vertex * arr.shape[-1] + col
 
 
-def _too_small(arr: np.ndarray, layout: str) -> Failure:
-    """The first non-zero size (or extent) below TINY."""
+def _too_small(arr: np.ndarray, layout: str, smallest: float | None) -> Failure:
+    """The first non-zero size (or extent) below TINY (``smallest``: the smallest size of
+    ``arr``, for the layouts with size columns)."""
     if layout in _SIZE_COLUMNS:
         cols = list(_SIZE_COLUMNS[layout])
         sizes = arr[:, cols[0] : cols[-1] + 1]
-        low = float(sizes.min())
+        low = smallest
         lost: Failure = None
         if layout == "upright" and not low >= RESOLUTION * float(np.abs(arr[:, 2]).max()):
             height, cz = arr[:, 5], np.abs(arr[:, 2])
