@@ -291,6 +291,27 @@ def test_degenerate_polygons_pass(poly):
     np.testing.assert_array_equal(out, np.asarray(poly, dtype=float))
 
 
+def test_repeated_vertex_passes_in_every_position_and_direction():
+    # A convex triangle with one vertex written twice is a convex quadrilateral with a
+    # zero-length edge, which the docstring of _bad_polygons allows (hand-worked: its turns
+    # are the triangle's, plus a zero turn at the repeated vertex). The turns beside a
+    # zero-length edge meet dot products of exactly zero, whose sign must not count: a
+    # -0.0 made arctan2 see a half turn (at both ends of the zero-length edge when the
+    # edges around it both point into the third quadrant), and such quadrilaterals were
+    # once rejected as winding twice. A flat triangle (an obtuse corner, so that both edges
+    # around it can point into one quadrant), turned every 15 degrees, the repeat at each
+    # vertex, both windings.
+    base = np.array([[0.0, 0.0], [4.0, 0.0], [2.0, 0.5]])
+    for deg in range(0, 360, 15):
+        t = np.radians(deg)
+        rot = np.array([[np.cos(t), -np.sin(t)], [np.sin(t), np.cos(t)]])
+        tri = base @ rot.T
+        for order in (tri, tri[::-1]):
+            for k in range(3):
+                quad = np.insert(order, k, order[k], axis=0)
+                check(quad, "polygon")
+
+
 @pytest.mark.parametrize("offset", [0.0, 5e5, -1e6, 1e6])
 def test_polygons_far_from_origin_either_winding(offset):
     square = np.array([[0, 0], [3, 0], [3, 2], [0, 2]], dtype=float) + offset
