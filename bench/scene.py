@@ -338,7 +338,7 @@ def index_comparison() -> None:
     for n in (50_000, 1_000_000):
         a = mosaic(n, 10_000.0 * np.sqrt(n / 50_000), seed=7)
         rows = prepare(read_boxes(a)).rows
-        ext, _ = grid.side_extents(1, rows, False)
+        ext = grid.side_extents(1, rows, False)
         run_sweep(ext[:100])
         run_grid(rows[:100])
         t_s, c_s = timed(lambda e=ext: run_sweep(e), 2, warmup=0)
