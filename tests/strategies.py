@@ -246,6 +246,11 @@ def _exact_hull(points: list[tuple[float, float]]) -> list[tuple[float, float]]:
     return lower[:-1] + upper[:-1]
 
 
+def _unless_tiny(offset: float, half: float) -> float:
+    """``offset``, or 0.0 when it is below 1e-9 of ``half`` in magnitude."""
+    return offset if abs(offset) >= 1e-9 * half else 0.0
+
+
 @st.composite
 def hull_polygon(draw, centre=NEAR, sizes=SIZES, *, max_points=10) -> np.ndarray:
     """Convex hull (exact, counter-clockwise) of random points in a square: ``(K, 2)``,
@@ -254,6 +259,10 @@ def hull_polygon(draw, centre=NEAR, sizes=SIZES, *, max_points=10) -> np.ndarray
     half = draw(length(sizes)) / 2
     offsets = st.tuples(_finite(-half, half), _finite(-half, half))
     raw = draw(st.lists(offsets, min_size=3, max_size=max_points))
+    # Offsets far below the polygon's size snap to 0: a hull 1e-200 wide is below the
+    # smallest size obbiou computes with (1e-100, rejected by design) and shapely's own
+    # products underflow on it (hypothesis drew both: widths 2.7e-265 and 1.5e-201).
+    raw = [(_unless_tiny(dx, half), _unless_tiny(dy, half)) for dx, dy in raw]
     hull = _exact_hull([(cx + dx, cy + dy) for dx, dy in raw])
     if len(hull) < 3:
         # All points collinear: fall back to a triangle on the square (still random size).
